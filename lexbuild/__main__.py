@@ -1,0 +1,5 @@
+import sys
+
+from lexbuild.cli import main
+
+sys.exit(main())

@@ -1,0 +1,194 @@
+"""Stable XML identifiers for entries, senses, frames and examples.
+
+Every id lexbuild writes must be an XML NCName (TEI ``xml:id``, LMF ``ID``/``IDREF``), unique
+across a whole document, and stable across editions.
+
+Entry ids come from lemmas through one reversible mapping (``lemma_to_id`` / ``id_to_lemma``):
+
+* the lemma is NFC-normalised;
+* a space becomes ``_``;
+* letters, digits, ``-``, combining marks and the other characters XML allows in names pass
+  unchanged, except ``.``, ``_`` and ``:``;
+* any other character (apostrophes, ``.``, ``_``, ``:``, emoji, a leading space...) becomes ``.``
+  followed by four lower-case hex digits (``.0027`` for ``'``), or ``.+`` and six hex digits
+  beyond the Basic Multilingual Plane;
+* if the result cannot start an NCName (a digit, ``-``, ``.``, a combining mark), ``_`` is put in
+  front; a lemma cannot start with ``_`` after mapping otherwise, so decoding just drops it.
+
+So ``s'en aller`` -> ``s.0027en_aller``, ``se rendre compte`` -> ``se_rendre_compte``,
+``1er`` -> ``_1er``. Sense, frame and example ids extend the entry id with ``.s3``, ``.f2``,
+``.x1``: a dot followed by a letter other than a-f never occurs in an entry id, so the
+sub-ids never collide with entry ids. Homographs take ``.h2``, ``.h3``...
+"""
+
+from __future__ import annotations
+
+import re
+import unicodedata
+from collections.abc import Iterable
+
+from lexbuild.errors import IdentifierError
+
+__all__ = [
+    "entry_id",
+    "example_id",
+    "frame_id",
+    "id_to_lemma",
+    "is_ncname",
+    "lemma_to_id",
+    "next_free_id",
+    "sense_id",
+]
+
+# XML 1.0 (fifth edition) NameStartChar ranges, minus ':' (Namespaces in XML: NCName).
+_NAME_START_RANGES: tuple[tuple[int, int], ...] = (
+    (ord("A"), ord("Z")),
+    (ord("_"), ord("_")),
+    (ord("a"), ord("z")),
+    (0xC0, 0xD6),
+    (0xD8, 0xF6),
+    (0xF8, 0x2FF),
+    (0x370, 0x37D),
+    (0x37F, 0x1FFF),
+    (0x200C, 0x200D),
+    (0x2070, 0x218F),
+    (0x2C00, 0x2FEF),
+    (0x3001, 0xD7FF),
+    (0xF900, 0xFDCF),
+    (0xFDF0, 0xFFFD),
+    (0x10000, 0xEFFFF),
+)
+_NAME_EXTRA_RANGES: tuple[tuple[int, int], ...] = (
+    (ord("-"), ord("-")),
+    (ord("."), ord(".")),
+    (ord("0"), ord("9")),
+    (0xB7, 0xB7),
+    (0x300, 0x36F),
+    (0x203F, 0x2040),
+)
+
+# Characters that are legal in names but carry meaning in our ids.
+_RESERVED = frozenset("._:")
+_SPACE = " "
+_SPACE_CODE = "_"
+_ESCAPE = "."
+_ESCAPE_RE = re.compile(r"\.(\+[0-9a-f]{6}|[0-9a-f]{4})")
+
+
+def _in_ranges(code: int, ranges: tuple[tuple[int, int], ...]) -> bool:
+    return any(low <= code <= high for low, high in ranges)
+
+
+def _is_name_start(char: str) -> bool:
+    return _in_ranges(ord(char), _NAME_START_RANGES)
+
+
+def _is_name_char(char: str) -> bool:
+    code = ord(char)
+    return _in_ranges(code, _NAME_START_RANGES) or _in_ranges(code, _NAME_EXTRA_RANGES)
+
+
+def is_ncname(value: str) -> bool:
+    """True when ``value`` is an XML NCName (non-empty, no colon, legal first character)."""
+    return (
+        bool(value)
+        and ":" not in value
+        and _is_name_start(value[0])
+        and all(_is_name_char(char) for char in value[1:])
+    )
+
+
+def _escape(char: str) -> str:
+    code = ord(char)
+    return f"{_ESCAPE}{code:04x}" if code <= 0xFFFF else f"{_ESCAPE}+{code:06x}"
+
+
+def lemma_to_id(lemma: str) -> str:
+    """Map a lemma to an NCName; ``id_to_lemma`` reverses it exactly (on the NFC form)."""
+    if not lemma:
+        raise IdentifierError("an empty lemma has no identifier")
+    text = unicodedata.normalize("NFC", lemma)
+    parts: list[str] = []
+    for index, char in enumerate(text):
+        if char == _SPACE and index > 0:
+            parts.append(_SPACE_CODE)
+        elif char in _RESERVED or not _is_name_char(char):
+            parts.append(_escape(char))
+        else:
+            parts.append(char)
+    mapped = "".join(parts)
+    if not _is_name_start(mapped[0]) or mapped[0] == "_":
+        mapped = "_" + mapped
+    return mapped
+
+
+def id_to_lemma(identifier: str) -> str:
+    """Read back the lemma an entry id was made from (homograph suffix excluded)."""
+    if not is_ncname(identifier):
+        raise IdentifierError(f"{identifier!r} is not an XML NCName")
+    body = identifier[1:] if identifier.startswith("_") else identifier
+    out: list[str] = []
+    position = 0
+    while position < len(body):
+        char = body[position]
+        if char == _ESCAPE:
+            match = _ESCAPE_RE.match(body, position)
+            if match is None:
+                raise IdentifierError(
+                    f"{identifier!r}: '.' at position {position} is not followed by 4 hex digits "
+                    "(or '+' and 6), so it is not an entry id made by lemma_to_id"
+                )
+            code = match.group(1).lstrip("+")
+            out.append(chr(int(code, 16)))
+            position = match.end()
+        elif char == _SPACE_CODE:
+            out.append(_SPACE)
+            position += 1
+        else:
+            out.append(char)
+            position += 1
+    return "".join(out)
+
+
+def entry_id(lemma: str, homograph: int | None = None) -> str:
+    """The id of an entry: the mapped lemma, plus ``.hN`` for the N-th homograph (N >= 2)."""
+    base = lemma_to_id(lemma)
+    if homograph is None or homograph == 1:
+        return base
+    if homograph < 1:
+        raise IdentifierError(f"homograph numbers start at 1, got {homograph}")
+    return f"{base}.h{homograph}"
+
+
+def sense_id(entry: str, number: int) -> str:
+    return f"{entry}.s{number}"
+
+
+def frame_id(sense: str, number: int) -> str:
+    return f"{sense}.f{number}"
+
+
+def example_id(sense: str, number: int) -> str:
+    return f"{sense}.x{number}"
+
+
+_SUFFIX_NUMBER = re.compile(r"\.(?P<kind>[sfx])(?P<n>[1-9][0-9]*)$")
+
+
+def next_free_id(parent: str, kind: str, used: Iterable[str]) -> str:
+    """The next ``parent.<kind>N`` id above every number ever used under ``parent``.
+
+    ``used`` must include retired and deleted ids (the lexicon keeps them), so that an id is
+    never handed out twice, even after the sense that bore it was retired.
+    """
+    if kind not in {"s", "f", "x"}:
+        raise IdentifierError(f"unknown id kind {kind!r}; expected 's', 'f' or 'x'")
+    highest = 0
+    prefix_length = len(parent)
+    for identifier in used:
+        if not identifier.startswith(parent) or len(identifier) <= prefix_length:
+            continue
+        match = _SUFFIX_NUMBER.match(identifier, prefix_length)
+        if match and match.group("kind") == kind:
+            highest = max(highest, int(match.group("n")))
+    return f"{parent}.{kind}{highest + 1}"
