@@ -7,11 +7,11 @@ Entry ids come from lemmas through one reversible mapping (``lemma_to_id`` / ``i
 
 * the lemma is NFC-normalised;
 * a space becomes ``_``;
-* letters, digits, ``-``, combining marks and the other characters XML allows in names pass
-  unchanged, except ``.``, ``_`` and ``:``;
-* any other character (apostrophes, ``.``, ``_``, ``:``, emoji, a leading space...) becomes ``.``
-  followed by four lower-case hex digits (``.0027`` for ``'``), or ``.+`` and six hex digits
-  beyond the Basic Multilingual Plane;
+* ASCII letters and digits, ``-`` and the Latin letters of U+00C0-U+017E pass unchanged (the
+  letters libxml2, which follows the XML 1.0 fourth-edition name tables, accepts in ids);
+* any other character (apostrophes, ``.``, ``_``, ``:``, other scripts, emoji, a leading
+  space...) becomes ``.`` followed by four lower-case hex digits (``.0027`` for ``'``), or
+  ``.u`` and six hex digits beyond the Basic Multilingual Plane;
 * if the result cannot start an NCName (a digit, ``-``, ``.``, a combining mark), ``_`` is put in
   front; a lemma cannot start with ``_`` after mapping otherwise, so decoding just drops it.
 
@@ -67,12 +67,20 @@ _NAME_EXTRA_RANGES: tuple[tuple[int, int], ...] = (
     (0x203F, 0x2040),
 )
 
-# Characters that are legal in names but carry meaning in our ids.
-_RESERVED = frozenset("._:")
+# Characters an id made from a lemma keeps as they are. Wider than ASCII so that French, Spanish,
+# German, Polish... ids stay readable; narrow enough that libxml2 (fourth-edition XML name
+# tables) accepts every one of them in an xml:id (tests/test_ids.py checks them all).
+_LATIN_EXCLUDED = frozenset({0xD7, 0xF7, 0x132, 0x133, 0x13F, 0x140, 0x149})
+_PASS_THROUGH = frozenset(
+    [chr(c) for c in range(ord("a"), ord("z") + 1)]
+    + [chr(c) for c in range(ord("A"), ord("Z") + 1)]
+    + [chr(c) for c in range(0xC0, 0x17F) if c not in _LATIN_EXCLUDED]
+)
+_PASS_THROUGH_INNER = _PASS_THROUGH | frozenset("0123456789-")
 _SPACE = " "
 _SPACE_CODE = "_"
 _ESCAPE = "."
-_ESCAPE_RE = re.compile(r"\.(\+[0-9a-f]{6}|[0-9a-f]{4})")
+_ESCAPE_RE = re.compile(r"\.(u[0-9a-f]{6}|[0-9a-f]{4})")
 
 
 def _in_ranges(code: int, ranges: tuple[tuple[int, int], ...]) -> bool:
@@ -100,7 +108,7 @@ def is_ncname(value: str) -> bool:
 
 def _escape(char: str) -> str:
     code = ord(char)
-    return f"{_ESCAPE}{code:04x}" if code <= 0xFFFF else f"{_ESCAPE}+{code:06x}"
+    return f"{_ESCAPE}{code:04x}" if code <= 0xFFFF else f"{_ESCAPE}u{code:06x}"
 
 
 def lemma_to_id(lemma: str) -> str:
@@ -112,12 +120,12 @@ def lemma_to_id(lemma: str) -> str:
     for index, char in enumerate(text):
         if char == _SPACE and index > 0:
             parts.append(_SPACE_CODE)
-        elif char in _RESERVED or not _is_name_char(char):
-            parts.append(_escape(char))
-        else:
+        elif char in _PASS_THROUGH_INNER:
             parts.append(char)
+        else:
+            parts.append(_escape(char))
     mapped = "".join(parts)
-    if not _is_name_start(mapped[0]) or mapped[0] == "_":
+    if mapped[0] not in _PASS_THROUGH:
         mapped = "_" + mapped
     return mapped
 
@@ -136,9 +144,9 @@ def id_to_lemma(identifier: str) -> str:
             if match is None:
                 raise IdentifierError(
                     f"{identifier!r}: '.' at position {position} is not followed by 4 hex digits "
-                    "(or '+' and 6), so it is not an entry id made by lemma_to_id"
+                    "(or 'u' and 6), so it is not an entry id made by lemma_to_id"
                 )
-            code = match.group(1).lstrip("+")
+            code = match.group(1).lstrip("u")
             out.append(chr(int(code, 16)))
             position = match.end()
         elif char == _SPACE_CODE:

@@ -139,7 +139,11 @@ class Slot(_Strict):
     @field_validator("marker")
     @classmethod
     def _marker_syntax(cls, value: str) -> str:
-        if value != value.strip() or any(c in value for c in "[]\n\r\t") or "  " in value:
+        if (
+            value != value.strip()
+            or "  " in value
+            or any(c in "[]" or (c.isspace() and c != " ") for c in value)
+        ):
             raise ValueError(
                 f"marker {value!r} must be trimmed, on one line, with single spaces and no "
                 "brackets"

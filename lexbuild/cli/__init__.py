@@ -21,10 +21,14 @@ EXIT_FINDINGS = 1
 EXIT_USAGE = 2
 
 COMMAND_MODULES = (
-    "lexbuild.cli.core",  # check, export, validate, schema
-    "lexbuild.cli.corpus",  # parse, frames
-    "lexbuild.cli.senses",  # induce, evaluate, calibrate
-    "lexbuild.cli.editions",  # merge, release, diff, demo
+    "lexbuild.cli.lexicon",  # check, schema
+    "lexbuild.cli.xml",  # export, validate
+    "lexbuild.cli.parse",  # parse
+    "lexbuild.cli.corpus",  # frames
+    "lexbuild.cli.induce",  # induce
+    "lexbuild.cli.evaluation",  # evaluate, calibrate
+    "lexbuild.cli.editions",  # merge, release, diff
+    "lexbuild.cli.demo",  # demo
 )
 
 

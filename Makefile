@@ -1,0 +1,38 @@
+# Two entry points for a fresh machine: `make demo` and `make test`. Each creates its own
+# virtual environment and installs everything (torch's CPU build first, pinned, so that no
+# dependency pulls a multi-GB CUDA build).
+PYTHON ?= python3
+VENV ?= .venv
+PY := $(VENV)/bin/python
+SCHEMAS ?= $(abspath ../shared/schemas)
+DEMO_OUT ?= demo-output
+
+.PHONY: demo test lint bench clean
+
+$(VENV)/.installed: pyproject.toml
+	$(PYTHON) -m venv $(VENV)
+	$(PY) -m pip install --quiet --upgrade pip
+	$(PY) -m pip install --quiet torch==2.13.0
+	$(PY) -m pip install --quiet -e '.[dev]'
+	touch $@
+
+demo: $(VENV)/.installed
+	rm -rf $(DEMO_OUT) && mkdir -p $(DEMO_OUT)
+	$(VENV)/bin/lexbuild check sample_lexicon
+	$(VENV)/bin/lexbuild export sample_lexicon --format tei --output $(DEMO_OUT)/sample.tei.xml --schemas $(SCHEMAS)
+	$(VENV)/bin/lexbuild export sample_lexicon --format lmf --output $(DEMO_OUT)/sample.lmf.xml --schemas $(SCHEMAS)
+	$(VENV)/bin/lexbuild validate $(DEMO_OUT)/sample.tei.xml $(DEMO_OUT)/sample.lmf.xml --schemas $(SCHEMAS)
+
+test: $(VENV)/.installed
+	LEXBUILD_SCHEMAS=$(SCHEMAS) $(PY) -m pytest -q
+
+lint: $(VENV)/.installed
+	$(VENV)/bin/ruff check lexbuild tests benchmarks
+	$(VENV)/bin/mypy lexbuild
+
+bench: $(VENV)/.installed
+	LEXBUILD_SCHEMAS=$(SCHEMAS) $(PY) benchmarks/bench_corpus.py
+	LEXBUILD_SCHEMAS=$(SCHEMAS) $(PY) benchmarks/bench_lexicon.py
+
+clean:
+	rm -rf $(VENV) $(DEMO_OUT) .pytest_cache .mypy_cache .ruff_cache .hypothesis
