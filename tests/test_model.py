@@ -23,7 +23,9 @@ from lexbuild.model import (
 
 markers = st.lists(
     st.text(
-        alphabet=st.characters(blacklist_characters="[]", blacklist_categories=("Cs", "Cc", "Zs", "Zl", "Zp")),
+        alphabet=st.characters(
+            blacklist_characters="[]", blacklist_categories=("Cs", "Cc", "Zs", "Zl", "Zp")
+        ),
         min_size=1,
         max_size=6,
     ),
@@ -93,9 +95,7 @@ def test_strict_types() -> None:
 @pytest.mark.parametrize("tag", ["fr", "fr-CA", "en-GB", "zh-Hant-TW", "fr-x-brevenn"])
 def test_bcp47_accepted(tag: str) -> None:
     # Tag shapes from BCP 47 (RFC 5646, section 2.1 syntax).
-    LexiconMeta(
-        title="t", language=tag, edition=1, release_date="2026-12-01", licence="CC-BY-4.0"
-    )
+    LexiconMeta(title="t", language=tag, edition=1, release_date="2026-12-01", licence="CC-BY-4.0")
 
 
 @pytest.mark.parametrize("tag", ["français", "f", "fr_FR", "fr-"])

@@ -1,0 +1,37 @@
+"""The README's claims hold: its two set-up commands, its commands table, its frame examples."""
+
+from __future__ import annotations
+
+import re
+
+from conftest import PROJECT_ROOT
+
+from lexbuild.cli import build_parser
+from lexbuild.model import parse_frame
+
+README = (PROJECT_ROOT / "README.md").read_text(encoding="utf-8")
+
+
+def _blocks() -> list[str]:
+    return re.findall(r"```[a-z]*\n(.*?)```", README, flags=re.S)
+
+
+def test_exactly_two_setup_commands_and_ci_runs_the_test_one() -> None:
+    setup = _blocks()[0].strip().splitlines()
+    assert [line.split("#")[0].strip() for line in setup] == ["make demo", "make test"]
+    assert "make test" in (PROJECT_ROOT / ".ci" / "run").read_text(encoding="utf-8")
+
+
+def test_every_documented_command_exists() -> None:
+    parser = build_parser()
+    subparsers = next(a for a in parser._actions if a.dest == "command")
+    documented = re.findall(r"^\| `lexbuild (\w+)", README, flags=re.M)
+    assert documented
+    assert set(documented) <= set(subparsers.choices)  # type: ignore[attr-defined]
+
+
+def test_frame_examples_parse() -> None:
+    frames_block = next(b for b in _blocks() if "subj:" in b)
+    for line in frames_block.strip().splitlines():
+        pattern = re.split(r"\s{2,}", line.strip())[0]
+        assert parse_frame(pattern)
