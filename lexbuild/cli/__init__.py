@@ -12,13 +12,10 @@ import importlib
 import sys
 from collections.abc import Sequence
 
+from lexbuild.cli.common import EXIT_FINDINGS, EXIT_OK, EXIT_USAGE
 from lexbuild.errors import LexbuildError
 
 __all__ = ["EXIT_FINDINGS", "EXIT_OK", "EXIT_USAGE", "build_parser", "main"]
-
-EXIT_OK = 0
-EXIT_FINDINGS = 1
-EXIT_USAGE = 2
 
 COMMAND_MODULES = (
     "lexbuild.cli.lexicon",  # check, schema

@@ -1,0 +1,475 @@
+"""Read and write the YAML sources of a dictionary, remembering where every value came from.
+
+A sources folder holds ``lexicon.yaml`` (one ``LexiconMeta``) and ``entries/<id>.yaml`` (one
+``Entry`` per file). Loading keeps a ``SourceMap`` so that checks and errors can name
+``file:line:column``; writing goes through ruamel's round-trip mode so that an editor's comments
+and key order survive a machine update.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import io
+import json
+import typing
+from collections.abc import Iterator
+from dataclasses import dataclass, field
+from enum import Enum
+from pathlib import Path
+from typing import Any
+
+from pydantic import BaseModel, ValidationError
+from ruamel.yaml import YAML
+from ruamel.yaml.comments import CommentedMap, CommentedSeq
+from ruamel.yaml.error import MarkedYAMLError, YAMLError
+
+from lexbuild._atomic import atomic_write_text
+from lexbuild.errors import SourceError, SourceLocation
+from lexbuild.model import Entry, Lexicon, LexiconMeta
+
+__all__ = [
+    "ENTRIES_DIR",
+    "META_FILE",
+    "FieldPath",
+    "LoadedLexicon",
+    "SourceMap",
+    "dump_entry",
+    "dump_meta",
+    "entry_json_schema",
+    "format_path",
+    "lexicon_json_schema",
+    "load_lexicon",
+    "schema_text",
+    "write_entry",
+    "write_meta",
+    "write_schemas",
+]
+
+META_FILE = "lexicon.yaml"
+ENTRIES_DIR = "entries"
+ENTRY_SCHEMA_FILE = "lexbuild-entry.schema.json"
+LEXICON_SCHEMA_FILE = "lexbuild-lexicon.schema.json"
+
+FieldPath = tuple[str | int, ...]
+
+
+def format_path(path: FieldPath) -> str:
+    """``("senses", 0, "gloss")`` -> ``senses[0].gloss`` (``<root>`` for the empty path)."""
+    text = ""
+    for part in path:
+        text += f"[{part}]" if isinstance(part, int) else (f".{part}" if text else part)
+    return text or "<root>"
+
+
+# ------------------------------------------------------------------------------- source map
+
+
+@dataclass
+class SourceMap:
+    """File, line and column of every loaded value, by (entry id, field path)."""
+
+    _files: dict[str, str] = field(default_factory=dict)
+    _positions: dict[tuple[str, FieldPath], tuple[int, int]] = field(default_factory=dict)
+    _ids: dict[str, SourceLocation] = field(default_factory=dict)
+    meta_file: str = META_FILE
+    _meta: dict[FieldPath, tuple[int, int]] = field(default_factory=dict)
+
+    def add_entry(self, entry_id: str, file: str, node: Any) -> None:
+        self._files[entry_id] = file
+        for path, position in _walk_positions(node):
+            self._positions[(entry_id, path)] = position
+            if path and path[-1] == "id":
+                value = _get(node, path)
+                if isinstance(value, str):
+                    self._ids.setdefault(value, SourceLocation(file, *position))
+
+    def add_meta(self, file: str, node: Any) -> None:
+        self.meta_file = file
+        self._meta = dict(_walk_positions(node))
+
+    def entry_file(self, entry_id: str) -> str:
+        return self._files.get(entry_id, f"{ENTRIES_DIR}/{entry_id}.yaml")
+
+    def locate(self, entry_id: str, path: FieldPath = ()) -> SourceLocation:
+        """Location of a value, or of its nearest known ancestor when it was not written."""
+        file = self.entry_file(entry_id)
+        for length in range(len(path), -1, -1):
+            position = self._positions.get((entry_id, tuple(path[:length])))
+            if position is not None:
+                return SourceLocation(file, *position)
+        return SourceLocation(file)
+
+    def locate_id(self, identifier: str) -> SourceLocation | None:
+        """Location of the ``id`` value of an entry, sense, frame or example."""
+        return self._ids.get(identifier)
+
+    def meta_location(self, path: FieldPath = ()) -> SourceLocation:
+        for length in range(len(path), -1, -1):
+            position = self._meta.get(tuple(path[:length]))
+            if position is not None:
+                return SourceLocation(self.meta_file, *position)
+        return SourceLocation(self.meta_file)
+
+
+def _walk_positions(node: Any, path: FieldPath = ()) -> Iterator[tuple[FieldPath, tuple[int, int]]]:
+    # ruamel positions are 0-based; ours are 1-based like every editor.
+    if path == () and hasattr(node, "lc"):
+        yield (), (node.lc.line + 1, node.lc.col + 1)
+    if isinstance(node, CommentedMap):
+        for key, value in node.items():
+            line, col = node.lc.value(key) if _is_scalar(value) else node.lc.key(key)
+            yield (*path, str(key)), (line + 1, col + 1)
+            yield from _walk_positions(value, (*path, str(key)))
+    elif isinstance(node, CommentedSeq):
+        for index, value in enumerate(node):
+            line, col = node.lc.item(index)
+            yield (*path, index), (line + 1, col + 1)
+            yield from _walk_positions(value, (*path, index))
+
+
+def _is_scalar(value: Any) -> bool:
+    return not isinstance(value, CommentedMap | CommentedSeq)
+
+
+def _get(node: Any, path: FieldPath) -> Any:
+    for part in path:
+        node = node[part]
+    return node
+
+
+# ------------------------------------------------------------------------------------ load
+
+
+@dataclass
+class LoadedLexicon:
+    lexicon: Lexicon
+    source_map: SourceMap
+    root: Path
+
+
+def _yaml() -> YAML:
+    yaml = YAML(typ="rt")
+    yaml.allow_unicode = True
+    yaml.width = 4096  # never fold long glosses: a diff should show the changed line only
+    yaml.indent(mapping=2, sequence=4, offset=2)
+    yaml.preserve_quotes = True
+    return yaml
+
+
+def _read_text(path: Path, shown: str) -> str:
+    try:
+        data = path.read_bytes()
+    except FileNotFoundError:
+        raise SourceError(f"file not found: {path}", SourceLocation(shown)) from None
+    try:
+        return data.decode("utf-8")
+    except UnicodeDecodeError as error:
+        line = data[: error.start].count(b"\n") + 1
+        raise SourceError(
+            f"not UTF-8 (byte {data[error.start]:#04x} at offset {error.start}); save the file "
+            "as UTF-8",
+            SourceLocation(shown, line),
+        ) from None
+
+
+def _parse_yaml(text: str, shown: str) -> Any:
+    try:
+        return _yaml().load(text)
+    except MarkedYAMLError as error:
+        mark = error.problem_mark or error.context_mark
+        location = (
+            SourceLocation(shown, mark.line + 1, mark.column + 1) if mark else SourceLocation(shown)
+        )
+        problem = " ".join(str(part) for part in (error.context, error.problem) if part)
+        raise SourceError(f"invalid YAML: {problem or error}", location) from None
+    except YAMLError as error:
+        raise SourceError(f"invalid YAML: {error}", SourceLocation(shown)) from None
+
+
+def _plain(node: Any) -> Any:
+    """ruamel's commented/styled types -> plain Python values, so strict pydantic accepts them."""
+    if isinstance(node, dict):
+        return {str(key): _plain(value) for key, value in node.items()}
+    if isinstance(node, list):
+        return [_plain(value) for value in node]
+    if isinstance(node, bool):
+        return bool(node)
+    if isinstance(node, int):
+        return int(node)
+    if isinstance(node, float):
+        return float(node)
+    if isinstance(node, str):
+        return str(node)
+    return node
+
+
+_M = typing.TypeVar("_M", bound=BaseModel)
+
+
+def _validate(
+    model: type[_M], node: Any, shown: str, locate: typing.Callable[[FieldPath], SourceLocation]
+) -> _M:
+    if not isinstance(node, CommentedMap):
+        raise SourceError(
+            f"expected a mapping of {model.__name__} fields at the top level, got "
+            f"{type(node).__name__}",
+            SourceLocation(shown, 1, 1),
+        )
+    try:
+        return model.model_validate(_plain(node))
+    except ValidationError as error:
+        problems = [_describe(model, item, locate) for item in error.errors()]
+        problems.sort(key=lambda pair: (pair[0].line, pair[0].column, pair[1]))
+        lines = "\n".join(f"  {location}: {text}" for location, text in problems)
+        raise SourceError(
+            f"{len(problems)} value(s) do not fit the {model.__name__} model:\n{lines}",
+            problems[0][0],
+        ) from None
+
+
+def _describe(
+    model: type[BaseModel],
+    item: Any,
+    locate: typing.Callable[[FieldPath], SourceLocation],
+) -> tuple[SourceLocation, str]:
+    """One pydantic error -> (location, 'field.path: what is wrong; what is allowed')."""
+    path: FieldPath = tuple(part for part in item["loc"] if isinstance(part, str | int))
+    kind = item["type"]
+    if kind == "extra_forbidden":
+        allowed = ", ".join(_fields_at(model, path[:-1])) or "none"
+        text = f"unknown field {path[-1]!r}; allowed fields here: {allowed}"
+    elif kind == "missing":
+        text = "required field is missing"
+    else:
+        given = item.get("input")
+        shown_input = "" if isinstance(given, dict | list) else f" (got {given!r})"
+        text = f"{item['msg']}{shown_input}"
+    return locate(path), f"{format_path(path)}: {text}"
+
+
+def _fields_at(model: type[BaseModel], path: FieldPath) -> list[str]:
+    """Names of the fields of the nested model reached by ``path`` (for 'allowed' hints)."""
+    current: Any = model
+    for part in path:
+        if isinstance(part, int):
+            continue
+        if not (isinstance(current, type) and issubclass(current, BaseModel)):
+            return []
+        info = current.model_fields.get(part)
+        if info is None:
+            return []
+        current = _model_in(info.annotation)
+    if isinstance(current, type) and issubclass(current, BaseModel):
+        return list(current.model_fields)
+    return []
+
+
+def _model_in(annotation: Any) -> Any:
+    if isinstance(annotation, type) and issubclass(annotation, BaseModel):
+        return annotation
+    for arg in typing.get_args(annotation):
+        found = _model_in(arg)
+        if found is not None:
+            return found
+    return None
+
+
+def _load_meta(root: Path, source_map: SourceMap) -> LexiconMeta:
+    shown = str(root / META_FILE)
+    node = _parse_yaml(_read_text(root / META_FILE, shown), shown)
+    source_map.add_meta(shown, node)
+    return _validate(LexiconMeta, node, shown, source_map.meta_location)
+
+
+def _load_entry(path: Path, source_map: SourceMap) -> Entry:
+    shown = str(path)
+    node = _parse_yaml(_read_text(path, shown), shown)
+    key = path.stem  # the file name is the id: locate errors before the id is known valid
+    source_map.add_entry(key, shown, node)
+    entry = _validate(Entry, node, shown, lambda field_path: source_map.locate(key, field_path))
+    if entry.id != key:
+        raise SourceError(
+            f"entry id {entry.id!r} does not match the file name: rename the file to "
+            f"{entry.id}.yaml or change the id to {key!r}",
+            source_map.locate(key, ("id",)),
+        )
+    return entry
+
+
+def entry_files(root: Path) -> list[Path]:
+    folder = root / ENTRIES_DIR
+    if not folder.is_dir():
+        return []
+    return sorted(folder.glob("*.yaml"), key=lambda path: path.name)
+
+
+def load_lexicon(folder: str | Path, *, problems: list[SourceError] | None = None) -> LoadedLexicon:
+    """Load ``lexicon.yaml`` and ``entries/*.yaml``; raises ``SourceError`` naming the place.
+
+    With a ``problems`` list, an entry file that does not load is skipped and its error appended
+    instead, so that a checker can report every bad file at once (the metadata file must load).
+    """
+    root = Path(folder)
+    if not root.is_dir():
+        raise SourceError(f"sources folder not found: {root}", SourceLocation(str(root)))
+    source_map = SourceMap()
+    meta = _load_meta(root, source_map)
+    entries = []
+    for path in entry_files(root):
+        try:
+            entries.append(_load_entry(path, source_map))
+        except SourceError as error:
+            if problems is None:
+                raise
+            problems.append(error)
+    return LoadedLexicon(Lexicon(meta=meta, entries=entries), source_map, root)
+
+
+# ----------------------------------------------------------------------------------- write
+
+
+_FLOW_MODELS = frozenset({"SourceRef", "ArgumentSpan"})  # short records read best on one line
+
+
+def _to_node(value: Any) -> Any:
+    """A model value -> ruamel node in model field order, without None/empty defaults."""
+    if isinstance(value, BaseModel):
+        node = CommentedMap()
+        for name, info in type(value).model_fields.items():
+            item = getattr(value, name)
+            if item is None or (item in ("", [], ()) and item == info.get_default(
+                call_default_factory=True
+            )):
+                continue
+            node[name] = _to_node(item)
+        if type(value).__name__ in _FLOW_MODELS:
+            node.fa.set_flow_style()
+        return node
+    if isinstance(value, tuple):  # spans
+        seq = CommentedSeq(_to_node(item) for item in value)
+        seq.fa.set_flow_style()
+        return seq
+    if isinstance(value, list):
+        return CommentedSeq(_to_node(item) for item in value)
+    if isinstance(value, Enum):
+        return value.value
+    if isinstance(value, dt.date):
+        return value
+    return value
+
+
+def _dump(node: Any) -> str:
+    buffer = io.StringIO()
+    _yaml().dump(node, buffer)
+    return buffer.getvalue()
+
+
+def dump_entry(entry: Entry) -> str:
+    """The YAML text of a new entry file."""
+    return _dump(_to_node(entry))
+
+
+def dump_meta(meta: LexiconMeta) -> str:
+    return _dump(_to_node(meta))
+
+
+def _same(old: Any, new: Any) -> bool:
+    return _plain(old) == _plain(new)
+
+
+def _merge_map(old: CommentedMap, new: CommentedMap) -> CommentedMap:
+    """Apply ``new`` onto ``old`` in place: unchanged keys keep their comments and order."""
+    for key in [key for key in old if key not in new]:
+        if _plain(old[key]) not in ("", [], {}, None):  # an empty value written out stays
+            del old[key]
+    for key, value in new.items():
+        if key in old:
+            old[key] = _merge_value(old[key], value)
+        else:
+            old[key] = value  # appended: ``new`` is in model field order
+    return old
+
+
+def _merge_seq(old: CommentedSeq, new: CommentedSeq) -> CommentedSeq:
+    if _is_flow(new) or (not _is_flow(old) and len(old) == 0):
+        return old if _same(old, new) else new
+    for index, value in enumerate(new):
+        if index < len(old):
+            old[index] = _merge_value(old[index], value)
+        else:
+            old.append(value)
+    while len(old) > len(new):
+        del old[len(old) - 1]
+    return old
+
+
+def _is_flow(node: Any) -> bool:
+    return bool(getattr(node, "fa", None) is not None and node.fa.flow_style())
+
+
+def _merge_value(old: Any, new: Any) -> Any:
+    if isinstance(old, CommentedMap) and isinstance(new, CommentedMap):
+        if "id" in old and "id" in new and old["id"] != new["id"]:
+            return new  # another object now sits here: its comments belong to the old one
+        return _merge_map(old, new)
+    if isinstance(old, CommentedSeq) and isinstance(new, CommentedSeq):
+        return _merge_seq(old, new)
+    return old if type(_plain(old)) is type(_plain(new)) and _same(old, new) else new
+
+
+def _write_node(path: Path, new: CommentedMap) -> None:
+    if path.is_file():
+        shown = str(path)
+        old = _parse_yaml(_read_text(path, shown), shown)
+        if isinstance(old, CommentedMap):
+            new = _merge_map(old, new)
+    atomic_write_text(path, _dump(new))
+
+
+def write_entry(folder: str | Path, entry: Entry) -> Path:
+    """Write or update ``entries/<id>.yaml``, keeping comments and order of unchanged keys."""
+    path = Path(folder) / ENTRIES_DIR / f"{entry.id}.yaml"
+    _write_node(path, _to_node(entry))
+    return path
+
+
+def write_meta(folder: str | Path, meta: LexiconMeta) -> Path:
+    path = Path(folder) / META_FILE
+    _write_node(path, _to_node(meta))
+    return path
+
+
+# ----------------------------------------------------------------------------- JSON Schema
+
+
+def entry_json_schema() -> dict[str, Any]:
+    """JSON Schema of one ``entries/<id>.yaml`` file."""
+    return _with_header(Entry.model_json_schema(), "lexbuild entry")
+
+
+def lexicon_json_schema() -> dict[str, Any]:
+    """JSON Schema of ``lexicon.yaml``."""
+    return _with_header(LexiconMeta.model_json_schema(), "lexbuild lexicon metadata")
+
+
+def _with_header(schema: dict[str, Any], title: str) -> dict[str, Any]:
+    return {"$schema": "https://json-schema.org/draft/2020-12/schema", **schema, "title": title}
+
+
+def schema_text(schema: dict[str, Any]) -> str:
+    """The file form of a schema: sorted keys, indent 2, trailing newline (stable diffs)."""
+    return json.dumps(schema, indent=2, sort_keys=True, ensure_ascii=False) + "\n"
+
+
+def write_schemas(output: str | Path) -> list[Path]:
+    """Regenerate both schema files in ``output``; returns their paths."""
+    folder = Path(output)
+    written = []
+    for name, schema in (
+        (ENTRY_SCHEMA_FILE, entry_json_schema()),
+        (LEXICON_SCHEMA_FILE, lexicon_json_schema()),
+    ):
+        atomic_write_text(folder / name, schema_text(schema))
+        written.append(folder / name)
+    return written
+
