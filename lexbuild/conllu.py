@@ -5,9 +5,25 @@ Types are fixed here so that every stage can rely on them; the reader fills them
 
 from __future__ import annotations
 
+import glob as _glob
+import gzip
+import lzma
+from collections.abc import Iterable, Iterator
 from dataclasses import dataclass, field
+from pathlib import Path
+from typing import BinaryIO, Literal
 
-__all__ = ["Sentence", "Token"]
+from lexbuild.errors import CorpusError, SourceLocation
+
+__all__ = [
+    "Sentence",
+    "Token",
+    "format_sentence",
+    "iter_sentences",
+    "read_sentences",
+    "resolve_paths",
+    "write_conllu",
+]
 
 
 @dataclass(frozen=True, slots=True)
@@ -31,7 +47,7 @@ class Token:
 class Sentence:
     """One sentence: its syntactic words (multiword-token ranges and empty nodes set apart)."""
 
-    id: str  # sent_id, or '<file stem>-<n>' when the file gives none
+    id: str  # sent_id, or '<file stem>.<n>' when the file gives none (n counts from 1)
     text: str  # '# text', or the forms joined following SpaceAfter=No
     tokens: tuple[Token, ...]
     source: str = ""  # the file it came from
@@ -39,3 +55,305 @@ class Sentence:
     metadata: tuple[tuple[str, str], ...] = ()  # '# key = value' comments, in order
     multiword: tuple[tuple[int, int, str, str], ...] = ()  # (first id, last id, form, misc)
     empty_nodes: tuple[str, ...] = field(default=())  # raw lines of empty nodes (8.1 ...)
+
+
+# ------------------------------------------------------------------------------------ reader
+
+
+OnError = Literal["raise", "skip"]
+PathLike = str | Path
+_SUFFIXES = (".conllu", ".conllu.gz", ".conllu.xz")
+_NCOLS = 10
+
+
+def resolve_paths(paths: PathLike | Iterable[PathLike]) -> list[Path]:
+    """Files in reading order: files as given, folders' CoNLL-U files sorted, globs sorted."""
+    if isinstance(paths, str | Path):
+        paths = [paths]
+    files: list[Path] = []
+    for item in paths:
+        path = Path(item)
+        if path.is_dir():
+            # Sorted so that ids and outputs do not depend on the file system's order.
+            files.extend(sorted(p for p in path.iterdir() if p.name.endswith(_SUFFIXES)))
+        elif path.exists():
+            files.append(path)
+        elif _glob.has_magic(str(item)):
+            matches = sorted(Path(p) for p in _glob.glob(str(item)) if Path(p).is_file())
+            if not matches:
+                raise CorpusError(f"no file matches {str(item)!r}")
+            files.extend(matches)
+        else:
+            raise FileNotFoundError(f"corpus file {str(item)!r} not found")
+    return files
+
+
+def _open_binary(path: Path) -> BinaryIO:
+    # Compression is chosen by suffix; both modules stream, so memory stays constant.
+    if path.suffix == ".gz":
+        return gzip.open(path, "rb")  # type: ignore[return-value]
+    if path.suffix == ".xz":
+        return lzma.open(path, "rb")  # type: ignore[return-value]
+    return path.open("rb")
+
+
+def _stem(path: Path) -> str:
+    name = path.name
+    for suffix in (".gz", ".xz"):
+        name = name.removesuffix(suffix)
+    return Path(name).stem
+
+
+class _Bad(Exception):
+    """A defect found while building one sentence (turned into a CorpusError with location)."""
+
+    def __init__(self, message: str, line: int) -> None:
+        super().__init__(message)
+        self.message = message
+        self.line = line
+
+
+def _join_text(tokens: tuple[Token, ...], multiword: tuple[tuple[int, int, str, str], ...]) -> str:
+    """Surface text from forms, using multiword tokens' forms and honouring SpaceAfter=No."""
+    ranges = {first: (last, form, misc) for first, last, form, misc in multiword}
+    parts: list[str] = []
+    index = 0
+    while index < len(tokens):
+        token = tokens[index]
+        if token.id in ranges:
+            last, form, misc = ranges[token.id]
+            index += last - token.id + 1
+        else:
+            form, misc = token.form, token.misc
+            index += 1
+        parts.append(form)
+        if "SpaceAfter=No" not in misc:
+            parts.append(" ")
+    return "".join(parts).rstrip(" ")
+
+
+def _check_tree(tokens: list[Token]) -> None:
+    """Raise _Bad on a head out of range, no root, or a cycle (each in O(n))."""
+    n = len(tokens)
+    has_root = False
+    for token in tokens:
+        if token.head < 0 or token.head > n:
+            raise _Bad(f"head {token.head} of word {token.id} is out of range 0..{n}", token.line)
+        if token.head == token.id:
+            raise _Bad(f"word {token.id} is its own head (cycle)", token.line)
+        if token.head == 0:
+            has_root = True
+    if not has_root:
+        raise _Bad("no word has head 0 (no root)", tokens[0].line)
+    # state: 0 unseen, 1 on the current path, 2 known to reach the root.
+    state = [0] * (n + 1)
+    state[0] = 2
+    for start in range(1, n + 1):
+        path: list[int] = []
+        node = start
+        while state[node] == 0:
+            state[node] = 1
+            path.append(node)
+            node = tokens[node - 1].head
+        if state[node] == 1:  # back on the current path: the cycle is its tail from node
+            cycle = sorted(path[path.index(node) :])
+            raise _Bad(f"words {cycle} form a cycle of heads", tokens[cycle[0] - 1].line)
+        for visited in path:
+            state[visited] = 2
+
+
+def _parse_word(cols: list[str], lineno: int, expected: int) -> Token:
+    try:
+        ident = int(cols[0])
+    except ValueError:
+        raise _Bad(f"word id {cols[0]!r} is not an integer", lineno) from None
+    if ident != expected:
+        raise _Bad(f"word id {ident} out of sequence (expected {expected})", lineno)
+    try:
+        head = int(cols[6])
+    except ValueError:
+        raise _Bad(f"head {cols[6]!r} of word {ident} is not an integer", lineno) from None
+    return Token(
+        ident, cols[1], cols[2], cols[3], cols[4], cols[5], head, cols[7], cols[8], cols[9], lineno
+    )
+
+
+def _build(block: list[tuple[int, str]], stem: str, number: int, source: str) -> Sentence:
+    """One sentence from its (line number, text) lines; raises _Bad on a defect."""
+    metadata: list[tuple[str, str]] = []
+    tokens: list[Token] = []
+    multiword: list[tuple[int, int, str, str]] = []
+    empty: list[str] = []
+    for lineno, line in block:
+        if line[0] == "#":
+            key, sep, value = line[1:].partition("=")
+            metadata.append((key.strip(), value.strip()) if sep else (key.strip(), ""))
+            continue
+        cols = line.split("\t")
+        if len(cols) != _NCOLS:
+            raise _Bad(f"expected {_NCOLS} tab-separated columns, found {len(cols)}", lineno)
+        ident = cols[0]
+        head = cols[6]
+        if ident.isdecimal() and head.isdecimal():  # the common case, inlined: a word
+            word_id = int(ident)
+            if word_id != len(tokens) + 1:
+                raise _Bad(
+                    f"word id {word_id} out of sequence (expected {len(tokens) + 1})", lineno
+                )
+            tokens.append(
+                Token(
+                    word_id,
+                    cols[1],
+                    cols[2],
+                    cols[3],
+                    cols[4],
+                    cols[5],
+                    int(head),
+                    cols[7],
+                    cols[8],
+                    cols[9],
+                    lineno,
+                )
+            )
+        elif ident.isdigit():  # a head that is no plain number: checked with its message
+            tokens.append(_parse_word(cols, lineno, len(tokens) + 1))
+        elif "-" in ident:
+            first, _, last = ident.partition("-")
+            if not (first.isdigit() and last.isdigit()) or int(first) > int(last):
+                raise _Bad(f"multiword range {ident!r} is malformed", lineno)
+            multiword.append((int(first), int(last), cols[1], cols[9]))
+        elif "." in ident:
+            whole, _, part = ident.partition(".")
+            if not (whole.isdigit() and part.isdigit()):
+                raise _Bad(f"empty node id {ident!r} is malformed", lineno)
+            empty.append(line)
+        else:
+            raise _Bad(f"word id {ident!r} is not an integer", lineno)
+    if not tokens:
+        raise _Bad("sentence has no words", block[0][0])
+    _check_tree(tokens)
+    meta = dict(metadata)
+    words = tuple(tokens)
+    mwt = tuple(multiword)
+    return Sentence(
+        id=meta.get("sent_id") or f"{stem}.{number}",
+        text=meta["text"] if "text" in meta else _join_text(words, mwt),
+        tokens=words,
+        source=source,
+        line=block[0][0],
+        metadata=tuple(metadata),
+        multiword=mwt,
+        empty_nodes=tuple(empty),
+    )
+
+
+def _iter_blocks(path: Path) -> Iterator[tuple[list[tuple[int, str]], _Bad | None]]:
+    """Blank-line separated blocks of (line number, text), with an encoding defect if any."""
+    block: list[tuple[int, str]] = []
+    defect: _Bad | None = None
+    with _open_binary(path) as handle:
+        for lineno, raw in enumerate(handle, 1):
+            try:
+                line = raw.decode("utf-8")
+            except UnicodeDecodeError as error:
+                if defect is None:
+                    defect = _Bad(f"not valid UTF-8 (byte {error.start + 1})", lineno)
+                line = raw.decode("utf-8", errors="replace")
+            if lineno == 1 and line.startswith("\ufeff"):
+                line = line[1:]  # a byte-order mark is tolerated, not part of the data
+            line = line.rstrip("\r\n")
+            if line.strip():
+                block.append((lineno, line))
+            elif block:
+                yield block, defect
+                block, defect = [], None
+        if block:
+            yield block, defect
+
+
+def iter_sentences(
+    paths: PathLike | Iterable[PathLike],
+    *,
+    on_error: OnError = "raise",
+    errors: list[CorpusError] | None = None,
+) -> Iterator[Sentence]:
+    """Stream sentences from CoNLL-U files, folders, globs, .gz or .xz; constant memory.
+
+    A malformed sentence raises ``CorpusError`` (file and line); with ``on_error="skip"`` it is
+    left out and its error appended to ``errors`` when a list is given.
+    """
+    if on_error not in ("raise", "skip"):
+        raise ValueError(f"on_error must be 'raise' or 'skip', not {on_error!r}")
+    for path in resolve_paths(paths):
+        stem, source = _stem(path), str(path)
+        for number, (block, defect) in enumerate(_iter_blocks(path), 1):
+            try:
+                if defect is not None:
+                    raise defect
+                sentence = _build(block, stem, number, source)
+            except _Bad as bad:
+                error = CorpusError(bad.message, SourceLocation.of(path, bad.line))
+                if on_error == "raise":
+                    raise error from None
+                if errors is not None:
+                    errors.append(error)
+                continue
+            yield sentence
+
+
+def read_sentences(
+    paths: PathLike | Iterable[PathLike],
+    *,
+    on_error: OnError = "raise",
+    errors: list[CorpusError] | None = None,
+) -> list[Sentence]:
+    """All sentences of ``iter_sentences`` in a list (for small corpora and tests)."""
+    return list(iter_sentences(paths, on_error=on_error, errors=errors))
+
+
+def _token_line(token: Token) -> str:
+    return "\t".join(
+        (
+            str(token.id),
+            token.form,
+            token.lemma,
+            token.upos,
+            token.xpos,
+            token.feats,
+            str(token.head),
+            token.deprel,
+            token.deps,
+            token.misc,
+        )
+    )
+
+
+def format_sentence(sentence: Sentence) -> str:
+    """CoNLL-U text of one sentence, ending with its blank line."""
+    lines: list[str] = []
+    keys = {key for key, _ in sentence.metadata}
+    if "sent_id" not in keys:
+        lines.append(f"# sent_id = {sentence.id}")
+    if "text" not in keys:
+        lines.append(f"# text = {sentence.text}")
+    for key, value in sentence.metadata:
+        lines.append(f"# {key} = {value}" if value else f"# {key}")
+    ranges = {first: (first, last, form, misc) for first, last, form, misc in sentence.multiword}
+    empties: dict[int, list[str]] = {}
+    for raw in sentence.empty_nodes:
+        empties.setdefault(int(raw.split(".", 1)[0]), []).append(raw)
+    lines.extend(empties.get(0, []))
+    for token in sentence.tokens:
+        if token.id in ranges:
+            first, last, form, misc = ranges[token.id]
+            lines.append(f"{first}-{last}\t{form}\t_\t_\t_\t_\t_\t_\t_\t{misc}")
+        lines.append(_token_line(token))
+        lines.extend(empties.get(token.id, []))
+    return "\n".join(lines) + "\n\n"
+
+
+def write_conllu(sentences: Iterable[Sentence], path: PathLike) -> None:
+    """Write sentences to one CoNLL-U file atomically (a reader never sees half a file)."""
+    from lexbuild._atomic import atomic_write_text
+
+    atomic_write_text(path, "".join(format_sentence(sentence) for sentence in sentences))

@@ -96,8 +96,14 @@ def _is_name_char(char: str) -> bool:
     return _in_ranges(code, _NAME_START_RANGES) or _in_ranges(code, _NAME_EXTRA_RANGES)
 
 
+# Most ids are ASCII: a regex answers for them without walking the Unicode ranges.
+_ASCII_NCNAME = re.compile(r"[A-Za-z_][A-Za-z0-9_.\-]*\Z")
+
+
 def is_ncname(value: str) -> bool:
     """True when ``value`` is an XML NCName (non-empty, no colon, legal first character)."""
+    if _ASCII_NCNAME.match(value):
+        return True
     return (
         bool(value)
         and ":" not in value

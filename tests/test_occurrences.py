@@ -1,0 +1,277 @@
+"""Verb occurrences and their slots, on hand-written trees and on the UD treebanks.
+
+Facts about French and English verbs below are facts of the trade, written from memory (no
+dictionary consulted); they are checked as shares of a verb's occurrences, never exact counts.
+"""
+
+from __future__ import annotations
+
+from collections import Counter
+from collections.abc import Callable
+from pathlib import Path
+
+import conllu as reference
+import pytest
+
+from lexbuild.conllu import iter_sentences
+from lexbuild.errors import CorpusError
+from lexbuild.model import Function, Realisation, parse_frame, slot_sort_key
+from lexbuild.occurrences import (
+    Occurrence,
+    extract_occurrences,
+    iter_occurrences,
+    profile_for,
+)
+
+FIXTURES = Path(__file__).parent / "fixtures" / "corpus"
+SLOTS_FR = FIXTURES / "slots_fr.conllu"
+
+# ------------------------------------------------------------------ hand-written Brévenn trees
+
+# (sent_id, verb lemma, frame, passive, causative): one rule of the issue each. The trees follow
+# the UD French guidelines (universaldependencies.org/fr: obl:arg, expl:pv, expl:subj,
+# expl:pass, aux:caus, obl:agent, fixed).
+EXPECTED = [
+    ("brevenn-dative", "donner", "subj:NP obj:NP iobj:PP[à]", False, False),
+    ("brevenn-clitic-iobj", "permettre", "subj:NP iobj:CLITIC comp:INF[de]", False, False),
+    ("brevenn-clitic-iobj", "pêcher", "subj:NP", False, False),  # controlled subject
+    ("brevenn-pronominal", "agir", "subj:EXPL refl:CLITIC[se] obl:PP[de]", False, False),
+    ("brevenn-passive", "construire", "subj:NP obj:NP", True, False),
+    ("brevenn-fixed", "voter", "subj:NP obl:PP[en faveur de]", False, False),
+    ("brevenn-coordination", "rentrer", "subj:NP", False, False),
+    ("brevenn-coordination", "réparer", "subj:NP obj:NP", False, False),
+    ("brevenn-clause", "penser", "subj:NP comp:CLAUSE[que]", False, False),
+    ("brevenn-clause", "cesser", "subj:NP", False, False),
+    ("brevenn-causative", "réparer", "subj:NP obj:NP", False, True),
+    ("brevenn-participle", "donner", "subj:NP obj:NP iobj:PP[à]", True, False),
+    ("brevenn-participle", "sécher", "subj:NP", False, False),
+    ("brevenn-raising", "sembler", "subj:EXPL comp:INF", False, False),
+    ("brevenn-raising", "agir", "subj:EXPL refl:CLITIC[se] obl:PP[de]", False, False),
+    ("brevenn-relative", "dépendre", "subj:NP obl:PP[de]", False, False),
+    ("brevenn-relative", "céder", "subj:NP", False, False),
+    ("brevenn-clitic-en", "dépendre", "subj:NP obl:CLITIC[en]", False, False),
+    ("brevenn-se-passive", "vendre", "subj:NP obj:NP", True, False),
+    ("brevenn-auxiliary", "bâtir", "subj:NP obj:NP", False, False),  # "ont" is no occurrence
+    # GSD attaches "y" and "en" as iobj; they stand for an à- or de-complement, not a dative.
+    ("brevenn-clitic-y", "penser", "subj:NP obl:CLITIC[y]", False, False),
+]
+
+
+@pytest.fixture(scope="module")
+def fixture_occurrences() -> list[Occurrence]:
+    return list(iter_occurrences(SLOTS_FR, language="fr"))
+
+
+def test_fixture_parses_with_the_reference_reader() -> None:
+    # The fixture itself is valid CoNLL-U for the conllu package (github.com/EmilStenstrom/conllu).
+    sentences = reference.parse(SLOTS_FR.read_text(encoding="utf-8"))
+    assert len(sentences) == len({sent_id for sent_id, *_ in EXPECTED})
+
+
+def test_each_rule_gives_the_expected_frame(fixture_occurrences: list[Occurrence]) -> None:
+    found = [(o.sentence_id, o.lemma, o.frame, o.passive, o.causative) for o in fixture_occurrences]
+    assert found == EXPECTED
+
+
+def test_implicit_and_inherited_subjects(fixture_occurrences: list[Occurrence]) -> None:
+    by_key = {(o.sentence_id, o.lemma): o for o in fixture_occurrences}
+    pecher = by_key[("brevenn-clitic-iobj", "pêcher")]
+    assert [(a.head, a.lemma, a.span, a.expressed) for a in pecher.arguments] == [
+        (-1, "", (-1, -1), False)
+    ]
+    reparer = by_key[("brevenn-coordination", "réparer")]
+    assert reparer.arguments[0].lemma == "Maëlle"  # shared subject of the first conjunct
+    # Raised under impersonal "il semble": the unexpressed subject is the expletive.
+    agir = by_key[("brevenn-raising", "agir")]
+    assert agir.arguments[0].slot.realisation is Realisation.EXPLETIVE
+    assert not agir.arguments[0].expressed
+    # The noun a passive participle modifies is its (active) object.
+    donnes = by_key[("brevenn-participle", "donner")]
+    assert donnes.arguments[1].lemma == "filet"
+
+
+def test_spans_and_adjunct_counts(fixture_occurrences: list[Occurrence]) -> None:
+    by_key = {(o.sentence_id, o.lemma): o for o in fixture_occurrences}
+    donner = by_key[("brevenn-dative", "donner")]
+    start, end = donner.char_span
+    assert donner.text[start:end] == "donne"
+    assert [donner.text[a.span[0] : a.span[1]] for a in donner.arguments] == [
+        "Le pêcheur",
+        "un filet",
+        "à sa fille",
+    ]
+    agir = by_key[("brevenn-pronominal", "agir")]  # multiword token "du" inside the PP
+    assert agir.text[slice(*agir.arguments[2].span)] == "de la fête du port"
+    assert by_key[("brevenn-passive", "construire")].adjuncts == 1  # "en 1820" (obl:mod)
+    assert by_key[("brevenn-clause", "cesser")].adjuncts == 1  # "bientôt" (advmod)
+
+
+def test_auxiliaries_are_configurable() -> None:
+    sentence = next(s for s in iter_sentences(SLOTS_FR) if s.id == "brevenn-auxiliary")
+    default = extract_occurrences(sentence, profile_for("fr"))
+    assert [o.lemma for o in default] == ["bâtir"]
+    # "ont" is aux:tense: still no occurrence; only an AUX heading its clause would be one.
+    assert [o.lemma for o in extract_occurrences(sentence, include_auxiliaries=True)] == ["bâtir"]
+
+
+# ---------------------------------------------------------------------------- UD treebanks
+
+
+def _fr_files(ud_dir: Path) -> list[Path]:
+    files = sorted(ud_dir.glob("fr_sequoia-ud-*.conllu")) + sorted(
+        ud_dir.glob("fr_gsd-ud-*.conllu")
+    )
+    assert len(files) >= 4, f"French UD files expected in {ud_dir}"
+    return files
+
+
+FR_VERBS = ("dépendre", "donner", "penser", "permettre", "agir", "parler", "demander")
+
+
+@pytest.fixture(scope="module")
+def fr_occurrences(ud_dir: Path) -> dict[str, list[Occurrence]]:
+    by_lemma: dict[str, list[Occurrence]] = {lemma: [] for lemma in FR_VERBS}
+    for occurrence in iter_occurrences(_fr_files(ud_dir), language="fr", lemmas=FR_VERBS):
+        by_lemma[occurrence.lemma].append(occurrence)
+    return by_lemma
+
+
+def _share(occurrences: list[Occurrence], test: Callable[[Occurrence], bool]) -> float:
+    assert occurrences, "no occurrence to compute a share on"
+    return sum(map(test, occurrences)) / len(occurrences)
+
+
+def _has(occurrence: Occurrence, text: str) -> bool:
+    return any(str(slot) == text for slot in occurrence.slots)
+
+
+def test_verbs_are_frequent_enough(fr_occurrences: dict[str, list[Occurrence]]) -> None:
+    for lemma in ("dépendre", "donner", "penser", "permettre", "agir"):
+        assert len(fr_occurrences[lemma]) >= 7, lemma
+
+
+def test_depend_takes_a_de_complement(fr_occurrences: dict[str, list[Occurrence]]) -> None:
+    # From memory: dépendre de qch/qn; "en" pronominalises the de-complement.
+    share = _share(
+        fr_occurrences["dépendre"],
+        lambda o: _has(o, "obl:PP[de]") or _has(o, "obl:CLITIC[en]"),
+    )
+    assert share >= 0.7
+
+
+def test_give_takes_an_object_and_a_dative(fr_occurrences: dict[str, list[Occurrence]]) -> None:
+    # From memory: donner qch à qn, the dative also as clitic (lui, leur).
+    occurrences = fr_occurrences["donner"]
+    assert _share(occurrences, lambda o: any(s.function is Function.OBJECT for s in o.slots)) > 0.7
+    dative = _share(occurrences, lambda o: _has(o, "iobj:PP[à]") or _has(o, "iobj:CLITIC"))
+    assert dative >= 0.25
+    assert _share(occurrences, lambda o: _has(o, "iobj:CLITIC")) > 0.05
+
+
+def test_think_takes_a_que_clause_or_an_a_complement(
+    fr_occurrences: dict[str, list[Occurrence]],
+) -> None:
+    # From memory: penser que + clause (most frequent), penser à qch / à faire.
+    occurrences = fr_occurrences["penser"]
+    assert _share(occurrences, lambda o: _has(o, "comp:CLAUSE[que]")) >= 0.4
+    a_complement = _share(occurrences, lambda o: _has(o, "obl:PP[à]") or _has(o, "comp:INF[à]"))
+    assert 0.05 <= a_complement < 0.5
+
+
+def test_allow_takes_a_dative_and_a_de_infinitive(
+    fr_occurrences: dict[str, list[Occurrence]],
+) -> None:
+    # From memory: permettre à qn de faire qch (the dative often left out or a clitic).
+    occurrences = fr_occurrences["permettre"]
+    with_infinitive = [o for o in occurrences if _has(o, "comp:INF[de]")]
+    assert len(with_infinitive) / len(occurrences) >= 0.6
+    assert _share(with_infinitive, lambda o: _has(o, "iobj:PP[à]") or _has(o, "iobj:CLITIC")) >= 0.3
+
+
+def test_s_agir_is_pronominal_impersonal_with_de(
+    fr_occurrences: dict[str, list[Occurrence]],
+) -> None:
+    # From memory: il s'agit de qch / de faire qch, never with a personal subject.
+    pronominal = [o for o in fr_occurrences["agir"] if _has(o, "refl:CLITIC[se]")]
+    assert len(pronominal) >= 0.6 * len(fr_occurrences["agir"])
+    assert _share(pronominal, lambda o: _has(o, "subj:EXPL")) >= 0.8
+    assert _share(pronominal, lambda o: _has(o, "obl:PP[de]") or _has(o, "comp:INF[de]")) >= 0.8
+    top = Counter(o.frame for o in pronominal).most_common(1)[0][0]
+    # Canonical order (model.slot_sort_key): functions subj < obj < iobj < obl < comp < pred < refl.
+    assert top == "subj:EXPL refl:CLITIC[se] obl:PP[de]"
+
+
+EN_VERBS = ("give", "look", "want", "live", "talk")
+
+
+def test_english_verbs_with_their_complements(ud_dir: Path) -> None:
+    by_lemma: dict[str, list[Occurrence]] = {lemma: [] for lemma in EN_VERBS}
+    for occurrence in iter_occurrences(
+        ud_dir / "en_ewt-ud-dev.conllu", language="en", lemmas=EN_VERBS
+    ):
+        by_lemma[occurrence.lemma].append(occurrence)
+    # From memory: give sb sth (double object), look for, want to + infinitive, live in, talk to.
+    assert _share(by_lemma["give"], lambda o: _has(o, "iobj:NP")) >= 0.3
+    assert _share(by_lemma["give"], lambda o: _has(o, "obj:NP")) >= 0.7
+    assert _share(by_lemma["look"], lambda o: _has(o, "obl:PP[for]")) >= 0.1
+    assert _share(by_lemma["want"], lambda o: _has(o, "comp:INF")) >= 0.3
+    assert _share(by_lemma["live"], lambda o: _has(o, "obl:PP[in]")) >= 0.5
+    assert (
+        _share(by_lemma["talk"], lambda o: _has(o, "obl:PP[to]") or _has(o, "obl:PP[about]")) >= 0.3
+    )
+    # The English profile has no clitics: the core rules alone.
+    everything = [o for occurrences in by_lemma.values() for o in occurrences]
+    assert not any(s.realisation is Realisation.CLITIC for o in everything for s in o.slots)
+
+
+def test_every_verb_of_every_file_is_an_occurrence(ud_dir: Path) -> None:
+    # Cross-check with the conllu package: one occurrence per UPOS VERB word.
+    for path in sorted(ud_dir.glob("*.conllu")):
+        language = path.name.split("_", 1)[0]
+        expected = 0
+        with path.open(encoding="utf-8") as handle:
+            for tokenlist in reference.parse_incr(handle):
+                expected += sum(
+                    1 for t in tokenlist if isinstance(t["id"], int) and t["upos"] == "VERB"
+                )
+        occurrences = list(iter_occurrences(path, language=language))
+        assert len(occurrences) == expected, path.name
+        for occurrence in occurrences:
+            slots = occurrence.slots
+            assert list(slots) == sorted(slots, key=slot_sort_key)
+            assert parse_frame(occurrence.frame) == slots  # canonical string round trip
+            assert sum(s.function is Function.SUBJECT for s in slots) == 1
+            for argument in occurrence.arguments:
+                assert argument.span == (-1, -1) or 0 <= argument.span[0] < argument.span[1] <= len(
+                    occurrence.text
+                )
+
+
+def test_verb_spans_are_found_in_gsd(ud_dir: Path) -> None:
+    occurrences = list(iter_occurrences(ud_dir / "fr_gsd-ud-test.conllu", language="fr"))
+    located = [o for o in occurrences if o.char_span[0] >= 0]
+    assert len(located) >= 0.99 * len(occurrences)
+    # A verb inside a multiword token shares its span; GSD verbs are almost never in one.
+    exact = [o for o in located if o.text[slice(*o.char_span)] == o.words[o.token]]
+    assert len(exact) >= 0.99 * len(located)
+
+
+def test_lemma_filter_matches_the_full_stream(ud_dir: Path) -> None:
+    path = ud_dir / "fr_gsd-ud-test.conllu"
+    every = [o for o in iter_occurrences(path) if o.lemma in {"donner", "faire"}]
+    filtered = list(iter_occurrences(path, lemmas=["donner", "faire"]))
+    assert [o.key for o in filtered] == [o.key for o in every]
+    assert every, "the filter test needs occurrences"
+
+
+def test_bad_sentence_is_skipped_and_reported() -> None:
+    errors: list[CorpusError] = []
+    occurrences = list(
+        iter_occurrences(FIXTURES / "bad_head.conllu", on_error="skip", errors=errors)
+    )
+    assert [o.lemma for o in occurrences] == ["pêcher"]  # the good sentence after the bad one
+    assert len(errors) == 1
+    assert errors[0].location is not None and errors[0].location.line == 8
+    assert "bad_head.conllu:8" in str(errors[0])
+    with pytest.raises(CorpusError, match=r"bad_head\.conllu:8"):
+        list(iter_occurrences(FIXTURES / "bad_head.conllu"))

