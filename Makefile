@@ -17,11 +17,7 @@ $(VENV)/.installed: pyproject.toml
 	touch $@
 
 demo: $(VENV)/.installed
-	rm -rf $(DEMO_OUT) && mkdir -p $(DEMO_OUT)
-	$(VENV)/bin/lexbuild check sample_lexicon
-	$(VENV)/bin/lexbuild export sample_lexicon --format tei --output $(DEMO_OUT)/sample.tei.xml --schemas $(SCHEMAS)
-	$(VENV)/bin/lexbuild export sample_lexicon --format lmf --output $(DEMO_OUT)/sample.lmf.xml --schemas $(SCHEMAS)
-	$(VENV)/bin/lexbuild validate $(DEMO_OUT)/sample.tei.xml $(DEMO_OUT)/sample.lmf.xml --schemas $(SCHEMAS)
+	$(VENV)/bin/lexbuild demo --output $(DEMO_OUT) --schemas $(SCHEMAS)
 
 test: $(VENV)/.installed
 	LEXBUILD_SCHEMAS=$(SCHEMAS) $(PY) -m pytest -q
