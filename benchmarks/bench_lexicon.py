@@ -17,7 +17,7 @@ from pathlib import Path
 from typing import TypeVar
 
 from lexbuild import ids
-from lexbuild.model import Entry, Example, Frame, LexiconMeta, Sense, SourceRef, Status
+from lexbuild.model import Corpus, Entry, Example, Frame, LexiconMeta, Sense, SourceRef, Status
 
 T = TypeVar("T")
 PATTERNS = (
@@ -85,6 +85,7 @@ def main() -> None:
         edition=1,
         release_date=dt.date(2026, 12, 1),
         licence="CC-BY-4.0",
+        corpora=[Corpus(id="synthetic", title="Synthetic benchmark corpus")],
     )
     figures: dict[str, float] = {}
     with tempfile.TemporaryDirectory() as tmp:

@@ -24,7 +24,7 @@ from typing import Any
 
 from lexbuild.errors import SourceError, SourceLocation
 from lexbuild.model import NEEDS_MARKER, Entry, Lexicon, Sense, Status
-from lexbuild.sources import FieldPath, LoadedLexicon, format_path
+from lexbuild.sources import FieldPath, LoadedLexicon, format_path, id_paths
 
 __all__ = [
     "RULES",
@@ -151,18 +151,6 @@ def _sense_without_example(lexicon: Lexicon) -> Iterator[Problem]:
                 yield Problem(entry.id, ("senses", index), f"sense {sense.id!r} has no example")
 
 
-def _ids_with_paths(entry: Entry) -> Iterator[tuple[str, FieldPath]]:
-    yield entry.id, ("id",)
-    for s, sense in enumerate(entry.senses):
-        yield sense.id, ("senses", s, "id")
-        for f, frame in enumerate(sense.frames):
-            if frame.id:
-                yield frame.id, ("senses", s, "frames", f, "id")
-        for x, example in enumerate(sense.examples):
-            if example.id:
-                yield example.id, ("senses", s, "examples", x, "id")
-
-
 @_rule(
     "E104",
     "duplicate-id",
@@ -172,7 +160,7 @@ def _ids_with_paths(entry: Entry) -> Iterator[tuple[str, FieldPath]]:
 def _duplicate_id(lexicon: Lexicon) -> Iterator[Problem]:
     first_seen: dict[str, str] = {}
     for entry in lexicon.entries:
-        for identifier, path in _ids_with_paths(entry):
+        for identifier, path in id_paths(entry):
             if identifier in first_seen:
                 yield Problem(
                     entry.id,
@@ -192,7 +180,7 @@ def _duplicate_id(lexicon: Lexicon) -> Iterator[Problem]:
 def _retired_id_reused(lexicon: Lexicon) -> Iterator[Problem]:
     retired = set(lexicon.meta.retired_ids)
     for entry in lexicon.entries:
-        for identifier, path in _ids_with_paths(entry):
+        for identifier, path in id_paths(entry):
             if identifier in retired:
                 yield Problem(entry.id, path, f"id {identifier!r} was retired and is in use again")
 

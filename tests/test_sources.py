@@ -179,3 +179,15 @@ def test_schema_command_writes_both_files(tmp_path: Path) -> None:
     assert sorted(p.name for p in tmp_path.iterdir()) == sorted(
         [ENTRY_SCHEMA_FILE, LEXICON_SCHEMA_FILE]
     )
+
+
+def test_parallel_loading_gives_the_same_lexicon(
+    sample_lexicon_dir: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    serial = load_lexicon(sample_lexicon_dir)
+    monkeypatch.setattr("lexbuild.sources.PARALLEL_FILES", 2)
+    parallel = load_lexicon(sample_lexicon_dir)
+    assert parallel.lexicon == serial.lexicon
+    assert parallel.source_map.locate_id("tenir.s2.x1") == serial.source_map.locate_id(
+        "tenir.s2.x1"
+    )

@@ -1,0 +1,131 @@
+"""``lexbuild export`` and ``lexbuild validate``: publish the sources as XML, check XML files.
+
+``export`` refuses to write anything while the sources have check errors or the export does not
+validate (published schemas + the lexicon's extra schemas); each validation problem is shown
+with the YAML file and line of the entry it comes from. The file is written atomically.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+from typing import Any
+
+from lexbuild.cli.common import EXIT_FINDINGS, EXIT_OK
+
+
+def register(subparsers: Any) -> None:
+    export = subparsers.add_parser(
+        "export",
+        help="write the sources as TEI Lex-0 or LMF, validated",
+        description="Check the sources, export them as TEI Lex-0 or LMF rev. 16, validate the "
+        "result against the published schemas (and the lexicon's extra schemas), then write it "
+        "atomically. Exit 0 when written, 1 when check errors or validation problems stopped "
+        "the export (nothing is written), 2 on a usage or I/O error.",
+    )
+    export.add_argument("sources", type=Path, help="folder holding lexicon.yaml and entries/")
+    export.add_argument("--format", choices=("tei", "lmf"), required=True)
+    export.add_argument("--output", type=Path, required=True, help="file to write")
+    export.add_argument(
+        "--schemas",
+        type=Path,
+        default=None,
+        help="folder with the published schema files (default: $LEXBUILD_SCHEMAS, else the "
+        "per-user cache)",
+    )
+    export.add_argument(
+        "--change",
+        action="append",
+        default=[],
+        metavar="TEXT",
+        help="a change-log line for the TEI header (repeatable)",
+    )
+    export.set_defaults(handler=run_export)
+
+    validate = subparsers.add_parser(
+        "validate",
+        help="validate TEI Lex-0 or LMF files against the published schemas",
+        description="Recognise each file's format (TEI Lex-0 or LMF rev. 16) and validate it "
+        "against the published schemas. With --sources, the lexicon's extra schemas apply too "
+        "and problems are traced back to the YAML file and line. Exit 0 when every file is "
+        "valid, 1 when a problem was found, 2 on a usage or I/O error.",
+    )
+    validate.add_argument("files", type=Path, nargs="+", metavar="FILE")
+    validate.add_argument("--schemas", type=Path, default=None, help="published schemas folder")
+    validate.add_argument(
+        "--sources", type=Path, default=None, help="the sources folder the files come from"
+    )
+    validate.add_argument("--format", choices=("text", "json"), default="text")
+    validate.set_defaults(handler=run_validate)
+
+
+def run_export(args: argparse.Namespace) -> int:
+    from lexbuild._atomic import atomic_write_bytes
+    from lexbuild.checks import check_lexicon, findings_text, has_errors, load_problem_findings
+    from lexbuild.errors import SourceError
+    from lexbuild.sources import load_lexicon
+    from lexbuild.validate import findings_text as xml_findings_text
+    from lexbuild.validate import validate_bytes
+
+    problems: list[SourceError] = []
+    loaded = load_lexicon(args.sources, problems=problems)
+    findings = load_problem_findings(problems) + check_lexicon(loaded)
+    if has_errors(findings):
+        errors = [finding for finding in findings if finding.severity.value == "error"]
+        sys.stdout.write(findings_text(errors))
+        print(f"lexbuild export: nothing written to {args.output}", file=sys.stderr)
+        return EXIT_FINDINGS
+    lexicon = loaded.lexicon
+    if args.format == "tei":
+        from lexbuild.tei import to_tei
+
+        data = to_tei(lexicon, changes=args.change)
+    else:
+        from lexbuild.lmf import to_lmf
+
+        data = to_lmf(lexicon)
+    problems_found = validate_bytes(
+        data,
+        schemas_dir=args.schemas,
+        extra_schemas=lexicon.meta.extra_schemas,
+        name=f"{args.output} (not written)",
+        source_map=loaded.source_map,
+        base_dir=loaded.root,
+    )
+    if problems_found:
+        sys.stdout.write(xml_findings_text(problems_found))
+        print(f"lexbuild export: nothing written to {args.output}", file=sys.stderr)
+        return EXIT_FINDINGS
+    atomic_write_bytes(args.output, data)
+    print(f"{args.output}: {args.format.upper()} export of {len(lexicon.entries)} entries, valid")
+    return EXIT_OK
+
+
+def run_validate(args: argparse.Namespace) -> int:
+    from lexbuild.validate import XmlFinding, findings_json, findings_text, validate_file
+
+    source_map = None
+    extra_schemas: list[Any] = []
+    base_dir = None
+    if args.sources is not None:
+        from lexbuild.sources import load_lexicon
+
+        loaded = load_lexicon(args.sources)
+        source_map = loaded.source_map
+        extra_schemas = list(loaded.lexicon.meta.extra_schemas)
+        base_dir = loaded.root
+    findings: list[XmlFinding] = []
+    for path in args.files:
+        findings += validate_file(
+            path,
+            schemas_dir=args.schemas,
+            source_map=source_map,
+            extra_schemas=extra_schemas,
+            base_dir=base_dir,
+        )
+    if args.format == "json":
+        sys.stdout.write(findings_json(findings))
+    else:
+        sys.stdout.write(findings_text(findings))
+    return EXIT_FINDINGS if findings else EXIT_OK

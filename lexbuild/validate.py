@@ -1,0 +1,615 @@
+"""Validate TEI Lex-0 and LMF documents against the published schemas (and a project's own).
+
+* TEI Lex-0: ``TEILex0.rng`` (RelaxNG) and ``TEILex0.sch`` (Schematron);
+* LMF: ``DTD_LMF_REV_16.dtd``;
+* both: the pointers the schemas cannot check (TEI ``#id`` references, LMF ``feat`` values naming
+  frames and slots), and the extra schemas a lexicon's metadata lists (XSD through
+  ``xmlschema``, RelaxNG, Schematron).
+
+The published files come from :mod:`lexbuild.schemastore` (checksums verified). Documents are
+parsed from bytes with :func:`lexbuild.xmlsafe.parse_untrusted`, so duplicate ids are caught
+(lxml only sees them when parsing, never on a tree built in memory). Every finding names the
+line in the XML, the nearest ancestor carrying an id, and, given the ``SourceMap`` of the YAML
+sources, the file and line of that id in the sources.
+"""
+
+from __future__ import annotations
+
+import bisect
+import contextlib
+import io
+import json
+import os
+import re
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, Literal, Protocol
+
+from lxml import etree, isoschematron
+
+from lexbuild.errors import SchemaError, SourceLocation, UnsafeXMLError, ValidationFailed
+from lexbuild.model import ExtraSchema
+from lexbuild.schemastore import LMF_DTD, TEI_RNG, TEI_SCH, SchemaSet, load_schemas
+from lexbuild.xmlsafe import DEFAULT_MAX_BYTES, parse_untrusted, safe_parser
+
+__all__ = [
+    "XmlFinding",
+    "detect_format",
+    "findings_json",
+    "findings_text",
+    "validate_bytes",
+    "validate_file",
+]
+
+Format = Literal["tei", "lmf"]
+TEI_NS = "http://www.tei-c.org/ns/1.0"
+_XML_ID = "{http://www.w3.org/XML/1998/namespace}id"
+_SVRL = {"svrl": "http://purl.oclc.org/dsdl/svrl"}
+POINTERS = "lexbuild pointer check"
+SAFETY = "lexbuild safe parsing"
+_DUPLICATE_ID = re.compile(r"ID (\S+) already defined")
+_LOCAL_NAME = re.compile(r"\*\[local-name\(\)='([^']+)' and namespace-uri\(\)='[^']*'\]")
+
+
+class _Locator(Protocol):  # what a SourceMap offers (lexbuild.sources.SourceMap)
+    def locate_id(self, identifier: str) -> SourceLocation | None: ...
+
+    def meta_location(self, path: tuple[str | int, ...] = ()) -> SourceLocation: ...
+
+
+@dataclass(frozen=True, slots=True)
+class XmlFinding:
+    """One validation problem: where in the XML, which id, which schema, where in the sources."""
+
+    message: str
+    line: int
+    xml_id: str | None
+    source: SourceLocation | None
+    schema: str
+    document: str = "<bytes>"
+
+    def __str__(self) -> str:
+        where = f"{self.document}:{self.line}" if self.line else self.document
+        text = f"{where}: {self.message} [{self.schema}]"
+        if self.xml_id:
+            text += f" (in id {self.xml_id})"
+        if self.source is not None:
+            text += f"\n    source: {self.source}"
+        return text
+
+    def as_dict(self) -> dict[str, Any]:
+        return {
+            "document": self.document,
+            "line": self.line,
+            "xml_id": self.xml_id,
+            "schema": self.schema,
+            "message": self.message,
+            "source": None
+            if self.source is None
+            else {
+                "file": self.source.file,
+                "line": self.source.line,
+                "column": self.source.column,
+            },
+        }
+
+
+def findings_text(findings: Sequence[XmlFinding]) -> str:
+    lines = [str(finding) for finding in findings]
+    lines.append(f"{len(findings)} validation problem(s)" if findings else "valid")
+    return "\n".join(lines) + "\n"
+
+
+def findings_json(findings: Sequence[XmlFinding]) -> str:
+    document = {"problems": len(findings), "findings": [f.as_dict() for f in findings]}
+    return json.dumps(document, indent=2, ensure_ascii=False) + "\n"
+
+
+# ------------------------------------------------------------------------------ format
+
+
+def _format_of(tag: Any) -> Format | None:
+    if tag == "{" + TEI_NS + "}TEI":
+        return "tei"
+    if tag == "LexicalResource":
+        return "lmf"
+    return None
+
+
+def detect_format(data: bytes) -> Format:
+    """``"tei"`` (TEI root element) or ``"lmf"`` (``LexicalResource``); reads only the root."""
+    try:
+        for _, element in etree.iterparse(
+            io.BytesIO(data),
+            events=("start",),
+            resolve_entities=False,
+            no_network=True,
+            load_dtd=False,
+        ):
+            found = _format_of(element.tag)
+            if found is None:
+                raise ValidationFailed(
+                    f"root element {element.tag!r} is neither TEI (TEI Lex-0, namespace "
+                    f"{TEI_NS}) nor LexicalResource (LMF rev. 16, no namespace)"
+                )
+            return found
+    except etree.XMLSyntaxError as error:
+        raise ValidationFailed(f"not well-formed XML: {error}") from None
+    raise ValidationFailed("empty document: no root element")
+
+
+# ------------------------------------------------------------------------------ locating
+
+
+class _Where:
+    """Maps XML lines to elements, elements to ids, ids to source lines (built lazily)."""
+
+    def __init__(
+        self,
+        tree: etree._ElementTree | None,
+        fmt: Format | None,
+        source_map: _Locator | None,
+        document: str,
+    ) -> None:
+        self.tree = tree
+        self.id_attr = "id" if fmt == "lmf" else _XML_ID
+        self.source_map = source_map
+        self.document = document
+        self._lines: list[int] | None = None
+        self._elements: list[etree._Element] = []
+
+    def element_at(self, line: int) -> etree._Element | None:
+        if self.tree is None or line <= 0:
+            return None
+        if self._lines is None:
+            lines: list[int] = []
+            for element in self.tree.getroot().iter(tag=etree.Element):
+                number = element.sourceline or 0
+                if not lines or number > lines[-1]:
+                    lines.append(number)
+                    self._elements.append(element)
+            self._lines = lines
+        index = bisect.bisect_right(self._lines, line) - 1
+        return self._elements[index] if index >= 0 else None
+
+    def ids_up(self, element: etree._Element | None) -> list[str]:
+        found = []
+        while element is not None:
+            value = element.get(self.id_attr)
+            if value:
+                found.append(value)
+            element = element.getparent()
+        return found
+
+    def finding(
+        self,
+        message: str,
+        schema: str,
+        *,
+        line: int = 0,
+        element: etree._Element | None = None,
+        xml_id: str | None = None,
+    ) -> XmlFinding:
+        if element is None:
+            element = self.element_at(line)
+        elif not line:
+            line = element.sourceline or 0
+        chain = self.ids_up(element)
+        if xml_id is None and chain:
+            xml_id = chain[0]
+        source = None
+        if self.source_map is not None:
+            for identifier in ([xml_id] if xml_id else []) + chain:
+                source = self.source_map.locate_id(identifier)
+                if source is not None:
+                    break
+            if source is None and element is not None and _in_header(element):
+                source = self.source_map.meta_location(())
+        return XmlFinding(message, line, xml_id, source, schema, self.document)
+
+
+def _in_header(element: etree._Element) -> bool:
+    for ancestor in element.iterancestors():
+        if ancestor.tag in ("{" + TEI_NS + "}teiHeader", "GlobalInformation"):
+            return True
+    return element.tag in ("{" + TEI_NS + "}teiHeader", "GlobalInformation")
+
+
+def _log_findings(log: Any, schema: str, where: _Where) -> list[XmlFinding]:
+    return [where.finding(entry.message, schema, line=entry.line) for entry in log]
+
+
+def _schematron_findings(
+    schematron: isoschematron.Schematron, tree: etree._ElementTree, schema: str, where: _Where
+) -> list[XmlFinding]:
+    if schematron.validate(tree):
+        return []
+    report = schematron.validation_report
+    findings = []
+    if report is None:
+        return _log_findings(schematron.error_log, schema, where)
+    for failure in report.getroot().xpath(
+        "svrl:failed-assert | svrl:successful-report", namespaces=_SVRL
+    ):
+        text = " ".join("".join(failure.itertext()).split())
+        location = failure.get("location", "")
+        element = None
+        try:
+            hits = tree.xpath(location) if location else []
+            element = hits[0] if hits and isinstance(hits[0], etree._Element) else None
+        except etree.XPathError:
+            element = None
+        shown = _LOCAL_NAME.sub(r"\1", location)
+        findings.append(where.finding(f"{text} (at {shown})", schema, element=element))
+    return findings
+
+
+# ------------------------------------------------------------------------------ pointers
+
+
+_POINTER_ATTRIBUTES = ("ana", "corresp", "target", "change", "who")
+_POINTER_VALUES = re.compile(
+    rb"\s(?:ana|corresp|target|change|who)\s*=\s*(?:\"([^\"]*)\"|'([^']*)')"
+)
+
+
+def _pointers_resolve(data: bytes, known: set[str]) -> bool:
+    """Fast first pass over the raw bytes: True when every ``#id`` pointer resolves.
+
+    A value with a character reference, or a pointer that does not resolve, sends the caller
+    to the exact check on the parsed tree (which also ignores look-alikes in text content).
+    """
+    for double, single in _POINTER_VALUES.findall(data):
+        value = double or single
+        if b"&" in value:
+            return False
+        for token in value.split():
+            if token[:1] == b"#" and token[1:].decode("utf-8", "replace") not in known:
+                return False
+    return True
+
+
+def _tei_pointers(data: bytes, tree: etree._ElementTree, where: _Where) -> list[XmlFinding]:
+    root = tree.getroot()
+    known = set(root.xpath("//@xml:id"))
+    findings = []
+    for element in root.xpath("//*[@subtype and not(@type)]"):
+        findings.append(
+            where.finding("@subtype is used without @type (a TEI rule)", POINTERS, element=element)
+        )
+    if _pointers_resolve(data, known):
+        return findings
+    for name in _POINTER_ATTRIBUTES:
+        # One query per attribute: a union (a | b) makes libxml2 sort the whole result.
+        for value in root.xpath(f"//@{name}"):
+            for token in str(value).split():
+                if token.startswith("#") and token[1:] not in known:
+                    findings.append(
+                        where.finding(
+                            f"@{name} points at {token}, which no xml:id in the document bears",
+                            POINTERS,
+                            element=value.getparent(),
+                        )
+                    )
+    return findings
+
+
+def _lmf_pointers(tree: etree._ElementTree, where: _Where) -> list[XmlFinding]:
+    root = tree.getroot()
+    frames = set(root.xpath("//SubcategorizationFrame/@id"))
+    arguments = set(root.xpath("//SyntacticArgument/@id"))
+    findings = []
+    for feat in root.xpath("//SenseExample/feat[@att='subcategorizationFrame']"):
+        if feat.get("val") not in frames:
+            findings.append(
+                where.finding(
+                    f"feat subcategorizationFrame names {feat.get('val')!r}, which is not the id "
+                    "of a SubcategorizationFrame",
+                    POINTERS,
+                    element=feat,
+                )
+            )
+    for feat in root.xpath("//SenseExample/feat[@att='argumentPosition']"):
+        name = (feat.get("val") or "").split("=", 1)[0]
+        if not re.fullmatch(r"slot-?[0-9]+", name) and name not in arguments:
+            findings.append(
+                where.finding(
+                    f"feat argumentPosition names {name!r}, which is not the id of a "
+                    "SyntacticArgument",
+                    POINTERS,
+                    element=feat,
+                )
+            )
+    return findings
+
+
+# ------------------------------------------------------------------------------ extra schemas
+
+
+_EXTRA_CACHE: dict[tuple[str, str, float], Any] = {}
+
+
+def _extra_path(extra: ExtraSchema, base_dir: Path | None) -> Path:
+    path = Path(extra.path)
+    if not path.is_absolute() and base_dir is not None:
+        path = base_dir / path
+    if not path.is_file():
+        raise SchemaError(
+            f"extra {extra.kind} schema {path} (listed under extra_schemas in the lexicon "
+            "metadata) not found"
+        )
+    return path
+
+
+def _compiled_extra(extra: ExtraSchema, path: Path) -> Any:
+    key = (str(path.resolve()), extra.kind, path.stat().st_mtime)
+    if key in _EXTRA_CACHE:
+        return _EXTRA_CACHE[key]
+    try:
+        if extra.kind == "xsd":
+            import xmlschema
+
+            compiled: Any = xmlschema.XMLSchema(str(path))
+        elif extra.kind == "rng":
+            compiled = etree.RelaxNG(etree.parse(str(path)))
+        else:
+            compiled = isoschematron.Schematron(
+                etree.parse(str(path)),
+                error_finder=isoschematron.Schematron.ASSERTS_AND_REPORTS,
+                store_report=True,
+            )
+    except Exception as error:  # every library has its own parse/compile errors
+        raise SchemaError(f"cannot compile extra {extra.kind} schema {path}: {error}") from error
+    _EXTRA_CACHE[key] = compiled
+    return compiled
+
+
+def _extra_findings(
+    extra: ExtraSchema, path: Path, tree: etree._ElementTree, where: _Where
+) -> list[XmlFinding]:
+    compiled = _compiled_extra(extra, path)
+    label = f"{path.name} (extra {extra.kind})"
+    if extra.kind == "xsd":
+        findings = []
+        for error in compiled.iter_errors(tree):
+            element = error.elem if isinstance(error.elem, etree._Element) else None
+            reason = error.reason or error.message
+            findings.append(
+                where.finding(
+                    f"{reason} (at {error.path})",
+                    label,
+                    line=getattr(error, "sourceline", None) or 0,
+                    element=element,
+                )
+            )
+        return findings
+    if extra.kind == "rng":
+        if compiled.validate(tree):
+            return []
+        return _log_findings(compiled.error_log, label, where)
+    return _schematron_findings(compiled, tree, label, where)
+
+
+# ------------------------------------------------------------------------------ RelaxNG in parts
+
+#: Below this many entries per part, splitting a TEI document for RelaxNG is not worth it.
+MIN_ENTRIES_PER_PART = 500
+
+
+def _default_workers() -> int:
+    return max(1, min(4, os.cpu_count() or 1))
+
+
+def _line_offsets(data: bytes, lines: Sequence[int]) -> list[int]:
+    """Byte offset of the start of each 1-based line number in ``lines``."""
+    import numpy as np
+
+    newlines = np.flatnonzero(np.frombuffer(data, dtype=np.uint8) == 0x0A)
+    return [0 if line <= 1 else int(newlines[line - 2]) + 1 for line in lines]
+
+
+def _tei_parts(
+    data: bytes, tree: etree._ElementTree, parts: int
+) -> list[tuple[bytes, int, int]] | None:
+    """Split a TEI document into ``parts`` documents, each with the whole header and a run of
+    entries, so that RelaxNG can check them in parallel threads (lxml lets go of the GIL while
+    libxml2 validates).
+
+    Returns ``(document, line shift, first entry line)`` triples, a line ``n`` past the header
+    of a part being line ``n + shift`` of the original; None when the layout does not allow
+    a clean split (each entry must start its own line, the body must hold entries only). As
+    libxml2 stops at the first entry that fails in a body, each part also reports its own.
+    """
+    root = tree.getroot()
+    body = root.find(f"{{{TEI_NS}}}text/{{{TEI_NS}}}body")
+    if body is None:
+        return None
+    entries = []
+    for child in body:
+        if child.tag is etree.Comment:
+            continue
+        if child.tag != f"{{{TEI_NS}}}entry" or not child.sourceline:
+            return None
+        entries.append(child)
+    if len(entries) < 2 * MIN_ENTRIES_PER_PART or parts < 2:
+        return None
+    parts = min(parts, len(entries) // MIN_ENTRIES_PER_PART)
+    size = -(-len(entries) // parts)
+    firsts = [entries[k] for k in range(0, len(entries), size)]
+    lines = [element.sourceline for element in firsts]
+    if len(set(lines)) != len(lines):
+        return None
+    offsets = _line_offsets(data, lines)
+    for element, offset in zip(firsts, offsets, strict=True):
+        tag = f"{element.prefix}:entry" if element.prefix else "entry"
+        if not data[offset : offset + 200].lstrip(b" \t\r").startswith(b"<" + tag.encode()):
+            return None
+    closing = "".join(
+        f"</{e.prefix}:{etree.QName(e).localname}>"
+        if e.prefix
+        else f"</{etree.QName(e).localname}>"
+        for e in [body, *body.iterancestors()]
+    ).encode()
+    prefix = data[: offsets[0]]
+    documents = []
+    for k, offset in enumerate(offsets):
+        end = offsets[k + 1] if k + 1 < len(offsets) else len(data)
+        piece = data[offset:end] + (b"\n" + closing + b"\n" if k + 1 < len(offsets) else b"")
+        documents.append((prefix + piece, lines[k] - lines[0], lines[0]))
+    return documents
+
+
+def _rng_errors(rng_path: Path, document: bytes) -> list[tuple[int, str]]:
+    rng = etree.RelaxNG(etree.parse(str(rng_path)))  # one per thread: error logs are per object
+    tree = etree.fromstring(document, safe_parser()).getroottree()
+    if rng.validate(tree):
+        return []
+    return [(entry.line, entry.message) for entry in rng.error_log]
+
+
+def _tei_rng_findings(
+    data: bytes, tree: etree._ElementTree, schemas: SchemaSet, where: _Where, workers: int
+) -> list[XmlFinding]:
+    parts = _tei_parts(data, tree, workers) if workers > 1 else None
+    if parts is None:
+        if schemas.tei_rng.validate(tree):
+            return []
+        return _log_findings(schemas.tei_rng.error_log, TEI_RNG, where)
+    from concurrent.futures import ThreadPoolExecutor
+
+    first_entry_line = parts[0][2]
+    rng_path = schemas.folder / TEI_RNG
+    with ThreadPoolExecutor(max_workers=len(parts)) as pool:
+        results = list(pool.map(lambda part: _rng_errors(rng_path, part[0]), parts))
+    seen: set[tuple[int, str]] = set()
+    findings = []
+    for (_, shift, _), errors in zip(parts, results, strict=True):
+        for line, message in errors:
+            original = line + shift if line >= first_entry_line else line
+            if (original, message) not in seen:
+                seen.add((original, message))
+                findings.append(where.finding(message, TEI_RNG, line=original))
+    return findings
+
+
+# ------------------------------------------------------------------------------ entry points
+
+
+def _parse(data: bytes, where: _Where, max_bytes: int) -> etree._ElementTree | list[XmlFinding]:
+    try:
+        return parse_untrusted(data, max_bytes=max_bytes)
+    except UnsafeXMLError as error:
+        return [where.finding(error.message.replace("<bytes>: ", ""), SAFETY)]
+    except etree.XMLSyntaxError as error:
+        # The exception's log may hold older messages: parse again with a parser of our own
+        # and read its log; then once more in recovery mode to name the element near each error.
+        parser = safe_parser()
+        with contextlib.suppress(etree.XMLSyntaxError):
+            etree.fromstring(data, parser)
+        log = [entry for entry in parser.error_log if entry.level >= etree.ErrorLevels.ERROR]
+        try:
+            recovered = etree.fromstring(
+                data,
+                etree.XMLParser(
+                    recover=True, resolve_entities=False, no_network=True, load_dtd=False
+                ),
+            )
+            where.tree = recovered.getroottree() if recovered is not None else None
+            if recovered is not None and _format_of(recovered.tag) == "lmf":
+                where.id_attr = "id"
+        except etree.XMLSyntaxError:
+            where.tree = None
+        findings = []
+        for entry in log:
+            duplicate = _DUPLICATE_ID.search(entry.message)
+            findings.append(
+                where.finding(
+                    f"not well-formed: {entry.message}",
+                    "XML 1.0 + xml:id",
+                    line=entry.line,
+                    xml_id=duplicate.group(1) if duplicate else None,
+                )
+            )
+        return findings or [where.finding(f"not well-formed: {error}", "XML 1.0")]
+
+
+def validate_bytes(
+    data: bytes,
+    *,
+    schemas_dir: str | Path | None = None,
+    extra_schemas: Iterable[ExtraSchema] = (),
+    name: str = "<bytes>",
+    source_map: _Locator | None = None,
+    base_dir: str | Path | None = None,
+    max_bytes: int = DEFAULT_MAX_BYTES,
+    workers: int | None = None,
+) -> list[XmlFinding]:
+    """Validate a TEI Lex-0 or LMF document given as bytes; an empty list means valid.
+
+    ``extra_schemas`` (``model.ExtraSchema``; paths relative to ``base_dir``, usually the
+    sources folder) apply to documents of their format. Big TEI documents are checked against
+    the RelaxNG schema in ``workers`` parts at once (default: the CPU count, at most 4).
+    Raises ``SchemaError`` when a published schema is missing or altered, or an extra schema
+    cannot be read.
+    """
+    schemas = load_schemas(schemas_dir)
+    extras = list(extra_schemas)
+    base = Path(base_dir) if base_dir is not None else None
+    where = _Where(None, None, source_map, name)
+    parsed = _parse(data, where, max_bytes)
+    if isinstance(parsed, list):
+        return parsed
+    tree = parsed
+    fmt = _format_of(tree.getroot().tag)
+    where = _Where(tree, fmt, source_map, name)
+    if fmt is None:
+        return [
+            where.finding(
+                f"root element {tree.getroot().tag!r} is neither TEI (TEI Lex-0) nor "
+                "LexicalResource (LMF rev. 16)",
+                "format detection",
+                line=tree.getroot().sourceline or 1,
+            )
+        ]
+    findings: list[XmlFinding] = []
+    if fmt == "tei":
+        parallel = _default_workers() if workers is None else workers
+        findings += _tei_rng_findings(data, tree, schemas, where, parallel)
+        findings += _schematron_findings(schemas.tei_sch, tree, TEI_SCH, where)
+        findings += _tei_pointers(data, tree, where)
+    else:
+        if not schemas.lmf_dtd.validate(tree):
+            findings += _log_findings(schemas.lmf_dtd.error_log, LMF_DTD, where)
+        findings += _lmf_pointers(tree, where)
+    for extra in extras:
+        if extra.format == fmt:
+            findings += _extra_findings(extra, _extra_path(extra, base), tree, where)
+    return findings
+
+
+def validate_file(
+    path: str | Path,
+    *,
+    schemas_dir: str | Path | None = None,
+    source_map: _Locator | None = None,
+    extra_schemas: Iterable[ExtraSchema] = (),
+    base_dir: str | Path | None = None,
+    max_bytes: int = DEFAULT_MAX_BYTES,
+    workers: int | None = None,
+) -> list[XmlFinding]:
+    """Validate the document in ``path`` (see ``validate_bytes``); OSError if unreadable."""
+    file = Path(path)
+    size = file.stat().st_size
+    if size > max_bytes:
+        raise UnsafeXMLError(f"{file}: {size} bytes is over the limit of {max_bytes} bytes")
+    return validate_bytes(
+        file.read_bytes(),
+        schemas_dir=schemas_dir,
+        extra_schemas=extra_schemas,
+        name=str(file),
+        source_map=source_map,
+        base_dir=base_dir,
+        max_bytes=max_bytes,
+        workers=workers,
+    )

@@ -1,0 +1,203 @@
+"""Safe parsing of XML that lexbuild did not write itself (files handed to ``validate``).
+
+No entity is ever expanded, no DTD or network resource is fetched, and a document that declares
+anything in an internal DTD subset is refused outright: that subset is where billion-laughs and
+external-entity attacks live, and none of our formats needs one.
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Collection, Iterable
+from pathlib import Path
+
+from lxml import etree
+
+from lexbuild.errors import UnsafeXMLError
+
+__all__ = [
+    "DEFAULT_MAX_BYTES",
+    "XmlWriter",
+    "escape_attribute",
+    "escape_text",
+    "forbidden_character",
+    "indent",
+    "parse_untrusted",
+    "safe_parser",
+]
+
+DEFAULT_MAX_BYTES = 256 * 1024 * 1024
+# An internal subset starts with '[' after the DOCTYPE name and optional external id.
+_DOCTYPE_RE = re.compile(rb"<!DOCTYPE[^>\[]*\[", re.IGNORECASE)
+_DECLARATION_RE = re.compile(rb"<!(ENTITY|ELEMENT|ATTLIST|NOTATION)\b")
+
+
+def safe_parser() -> etree.XMLParser:
+    """A parser that resolves nothing and fetches nothing (a fresh one: parsers keep state)."""
+    return etree.XMLParser(
+        resolve_entities=False,
+        no_network=True,
+        load_dtd=False,
+        dtd_validation=False,
+        huge_tree=False,
+        remove_blank_text=False,
+    )
+
+
+def _read(source: str | Path | bytes, max_bytes: int) -> tuple[bytes, str]:
+    if isinstance(source, bytes):
+        data, name = source, "<bytes>"
+    else:
+        path = Path(source)
+        size = path.stat().st_size
+        if size > max_bytes:
+            raise UnsafeXMLError(f"{path}: {size} bytes is over the limit of {max_bytes} bytes")
+        data, name = path.read_bytes(), str(path)
+    if len(data) > max_bytes:
+        raise UnsafeXMLError(f"{name}: {len(data)} bytes is over the limit of {max_bytes} bytes")
+    return data, name
+
+
+def parse_untrusted(
+    source: str | Path | bytes, max_bytes: int = DEFAULT_MAX_BYTES
+) -> etree._ElementTree:
+    """Parse ``source`` (a path or the bytes of a document) without trusting it.
+
+    Raises ``UnsafeXMLError`` for an internal DTD subset or entity declaration, or a document
+    over ``max_bytes``; ``lxml.etree.XMLSyntaxError`` for malformed XML.
+    """
+    data, name = _read(source, max_bytes)
+    # Check the raw bytes first so that nothing is even parsed when a subset is present.
+    if _DOCTYPE_RE.search(data) or _DECLARATION_RE.search(data):
+        raise UnsafeXMLError(
+            f"{name}: the document declares an internal DTD subset or entities; lexbuild refuses "
+            "them (entity expansion and external entities are attack vectors)"
+        )
+    tree = etree.ElementTree(etree.fromstring(data, safe_parser(), base_url=None))
+    # Belt and braces: the byte scan could be fooled by an encoding other than UTF-8/ASCII;
+    # unexpanded entity references would then still show up as Entity nodes.
+    for node in tree.iter(etree.Entity):
+        raise UnsafeXMLError(f"{name}: entity reference &{node.name}; refused")
+    return tree
+
+
+# XML 1.0 section 2.2 'Char': of the C0 controls only tab, line feed and carriage return; no
+# surrogates; not U+FFFE or U+FFFF. (lxml refuses all of these with a bare ValueError.)
+_NOT_XML_CHAR = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\ud800-\udfff\ufffe\uffff]")
+
+
+def forbidden_character(text: str) -> str | None:
+    """Describe the first character of ``text`` that XML 1.0 cannot hold, or None."""
+    match = _NOT_XML_CHAR.search(text)
+    if match is None:
+        return None
+    return f"character U+{ord(match.group(0)):04X} at position {match.start() + 1}"
+
+
+def indent(
+    root: etree._Element, *, mixed: Collection[str] = frozenset(), space: str = "  "
+) -> None:
+    """Indent element-only content in place; never touch text that belongs to the data.
+
+    An element whose tag is in ``mixed``, or that holds non-blank text or tails, is left as it
+    is, together with everything inside it (``lxml.etree.indent`` would put whitespace into a
+    quotation that starts with a marked-up word).
+    """
+    stack: list[tuple[etree._Element, int]] = [(root, 0)]
+    while stack:
+        element, level = stack.pop()
+        if len(element) == 0 or element.tag in mixed:
+            continue
+        if element.text and element.text.strip():
+            continue
+        if any(child.tail and child.tail.strip() for child in element):
+            continue
+        pad = "\n" + space * (level + 1)
+        element.text = pad
+        for child in element:
+            child.tail = pad
+            stack.append((child, level + 1))
+        element[-1].tail = "\n" + space * level
+
+
+# --------------------------------------------------------------------------- writing XML text
+
+_TEXT_SPECIAL = re.compile("[&<>\r]")
+_ATTRIBUTE_SPECIAL = re.compile('[&<>"\n\r\t]')
+_TEXT_TABLE = str.maketrans({"&": "&amp;", "<": "&lt;", ">": "&gt;", "\r": "&#13;"})
+_ATTRIBUTE_TABLE = str.maketrans(
+    {
+        "&": "&amp;",
+        "<": "&lt;",
+        ">": "&gt;",
+        '"': "&quot;",
+        "\n": "&#10;",
+        "\r": "&#13;",
+        "\t": "&#9;",
+    }
+)
+
+
+def escape_text(text: str) -> str:
+    """Character data as XML text content (a carriage return survives as ``&#13;``)."""
+    return text.translate(_TEXT_TABLE) if _TEXT_SPECIAL.search(text) else text
+
+
+def escape_attribute(text: str) -> str:
+    """A value for a double-quoted attribute; tab, newline and CR survive attribute
+    normalisation as character references."""
+    return text.translate(_ATTRIBUTE_TABLE) if _ATTRIBUTE_SPECIAL.search(text) else text
+
+
+def _attributes(attributes: Iterable[tuple[str, str]]) -> str:
+    return "".join(f' {name}="{escape_attribute(value)}"' for name, value in attributes)
+
+
+class XmlWriter:
+    """Indented XML built as text (several times faster than an lxml tree for big exports).
+
+    Attributes are ``(name, value)`` pairs written in the order given, so output is
+    deterministic. Callers check that text holds only XML characters (``forbidden_character``).
+    """
+
+    def __init__(self, space: str = "  ") -> None:
+        self.parts: list[str] = []
+        self.depth = 0
+        self.space = space
+
+    def open(self, tag: str, attributes: Iterable[tuple[str, str]] = ()) -> None:
+        self.parts.append(f"{self.space * self.depth}<{tag}{_attributes(attributes)}>")
+        self.depth += 1
+
+    def close(self, tag: str) -> None:
+        self.depth -= 1
+        self.parts.append(f"{self.space * self.depth}</{tag}>")
+
+    def leaf(
+        self, tag: str, text: str | None = None, attributes: Iterable[tuple[str, str]] = ()
+    ) -> None:
+        pad = self.space * self.depth
+        if text is None or text == "":
+            self.parts.append(f"{pad}<{tag}{_attributes(attributes)}/>")
+        else:
+            self.parts.append(f"{pad}<{tag}{_attributes(attributes)}>{escape_text(text)}</{tag}>")
+
+    def raw(self, markup: str) -> None:
+        """A line of markup the caller has escaped already, at the current depth."""
+        self.parts.append(f"{self.space * self.depth}{markup}")
+
+    def mark(self) -> int:
+        return len(self.parts)
+
+    def since(self, mark: int) -> str:
+        return "\n".join(self.parts[mark:])
+
+    def text(self) -> str:
+        return "\n".join(self.parts) + "\n"
+
+
+def inline(tag: str, text: str | None = None, attributes: Iterable[tuple[str, str]] = ()) -> str:
+    """One element as a string, for mixed content built by hand."""
+    if text is None:
+        return f"<{tag}{_attributes(attributes)}/>"
+    return f"<{tag}{_attributes(attributes)}>{escape_text(text)}</{tag}>"
