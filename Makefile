@@ -27,8 +27,11 @@ lint: $(VENV)/.installed
 	$(VENV)/bin/mypy lexbuild
 
 bench: $(VENV)/.installed
-	LEXBUILD_SCHEMAS=$(SCHEMAS) $(PY) benchmarks/bench_corpus.py
-	LEXBUILD_SCHEMAS=$(SCHEMAS) $(PY) benchmarks/bench_lexicon.py
+	$(PY) benchmarks/bench_corpus.py
+	$(PY) benchmarks/bench_lexicon.py --schemas $(SCHEMAS)
+	$(PY) benchmarks/bench_clustering.py
+	$(PY) benchmarks/bench_vectors.py
+	$(PY) benchmarks/bench_diff.py
 
 clean:
 	rm -rf $(VENV) $(DEMO_OUT) .pytest_cache .mypy_cache .ruff_cache .hypothesis
