@@ -21,6 +21,7 @@ __all__ = [
     "SOURCES",
     "SchemaSet",
     "checksums",
+    "install_schemas",
     "load_schemas",
     "schemas_dir",
 ]
@@ -135,3 +136,18 @@ def load_schemas(folder: str | Path | None = None) -> SchemaSet:
     if where not in _CACHE:
         _CACHE[where] = _compile(where)
     return _CACHE[where]
+
+
+def install_schemas(source: str | Path, target: str | Path | None = None) -> Path:
+    """Copy the published schemas from ``source`` into the per-user cache (or ``target``).
+
+    Every file is verified against its pinned checksum first, so a bad copy never lands.
+    """
+    from lexbuild._atomic import atomic_write_bytes
+
+    origin = Path(source)
+    files = {name: _checked(origin, name).read_bytes() for name in sorted(PINNED)}
+    destination = Path(target) if target is not None else _user_cache()
+    for name, data in files.items():
+        atomic_write_bytes(destination / name, data)
+    return destination

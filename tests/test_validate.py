@@ -325,3 +325,21 @@ def test_relaxng_in_parts_finds_the_same_problems(
     assert set(map(str, whole)) <= set(map(str, split))
     jouer = next(f for f in split if f.xml_id == "jouer" and "status" in f.message)
     assert jouer.line == xml_line(broken, b'<entry xml:id="jouer"')
+
+
+def test_install_schemas_fills_the_user_cache_with_verified_copies(
+    tmp_path: Path, schemas_dir: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    from lexbuild.cli import main
+
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
+    monkeypatch.delenv("LEXBUILD_SCHEMAS", raising=False)
+    assert main(["install-schemas", str(schemas_dir)]) == 0
+    assert schemastore.schemas_dir() == tmp_path / "cache" / "lexbuild" / "schemas"
+    assert schemastore.checksums() == schemastore.PINNED  # read back from the cache
+    # An altered copy is refused and nothing is written.
+    altered = tmp_path / "altered"
+    shutil.copytree(schemas_dir, altered)
+    (altered / "TEILex0.sch").write_bytes(b"<schema/>")
+    assert main(["install-schemas", str(altered), "--target", str(tmp_path / "t")]) == 2
+    assert not (tmp_path / "t").exists()
