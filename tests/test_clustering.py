@@ -1,0 +1,166 @@
+"""SenseClusterer: exact path equals scipy, two-stage path tracks the exact one."""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+import pytest
+from scipy.cluster.hierarchy import fcluster, linkage
+from scipy.spatial.distance import pdist
+from sklearn.metrics import adjusted_rand_score
+
+from lexbuild.clustering import SenseClusterer, assign_to_centroids, condensed_cosine
+from lexbuild.errors import InductionError
+
+NO_MERGE: dict[str, Any] = {"min_cluster_size": 1, "min_cluster_share": 0.0}
+
+
+def _blobs(n_per: int, k: int, dim: int, spread: float, seed: int) -> tuple[np.ndarray, np.ndarray]:
+    """Well-separated directions: orthogonal-ish centres plus small noise."""
+    rng = np.random.default_rng(seed)
+    centres = rng.normal(size=(k, dim))
+    X = np.repeat(centres, n_per, axis=0) + spread * rng.normal(size=(k * n_per, dim))
+    y = np.repeat(np.arange(k), n_per)
+    perm = rng.permutation(len(y))
+    return X[perm], y[perm]
+
+
+def test_condensed_matches_scipy_pdist() -> None:
+    # Reference: scipy.spatial.distance.pdist(X, "cosine").
+    rng = np.random.default_rng(1)
+    X = rng.normal(size=(57, 9))
+    Xn = (X / np.linalg.norm(X, axis=1, keepdims=True)).astype(np.float32)
+    np.testing.assert_allclose(condensed_cosine(Xn), pdist(X, "cosine"), atol=1e-6)
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+@pytest.mark.parametrize("threshold", [0.3, 0.6, 0.9, 1.0, 1.1])
+def test_exact_path_equals_scipy_average(seed: int, threshold: float) -> None:
+    # Reference: scipy.cluster.hierarchy.linkage(pdist(X, "cosine"), "average") cut by
+    # fcluster(criterion="distance"); compared as partitions (ARI == 1).
+    rng = np.random.default_rng(seed)
+    X = rng.normal(size=(120, 16))
+    expected = fcluster(linkage(pdist(X, "cosine"), "average"), t=threshold, criterion="distance")
+    model = SenseClusterer(threshold=threshold, **NO_MERGE).fit(X)
+    assert adjusted_rand_score(expected, model.labels_) == 1.0
+    assert model.n_clusters_ == len(set(expected))
+
+
+@pytest.mark.parametrize("threshold", [0.8, 1.2])
+def test_ward_path_equals_scipy_ward(threshold: float) -> None:
+    # Reference: scipy linkage(..., "ward") on L2-normalised rows in euclidean space.
+    rng = np.random.default_rng(7)
+    X = rng.normal(size=(80, 8))
+    Xn = X / np.linalg.norm(X, axis=1, keepdims=True)
+    expected = fcluster(linkage(Xn, "ward"), t=threshold, criterion="distance")
+    model = SenseClusterer(threshold=threshold, linkage="ward", **NO_MERGE).fit(X)
+    assert adjusted_rand_score(expected, model.labels_) == 1.0
+
+
+def test_labels_numbered_by_first_appearance() -> None:
+    X, _ = _blobs(20, 4, 32, 0.1, seed=3)
+    labels = SenseClusterer(threshold=0.5, **NO_MERGE).fit(X).labels_
+    seen: list[int] = []
+    for lab in labels:
+        if lab not in seen:
+            seen.append(int(lab))
+    assert seen == list(range(len(seen)))
+
+
+def test_centroids_are_normalised_member_means() -> None:
+    X, _ = _blobs(15, 3, 24, 0.2, seed=4)
+    model = SenseClusterer(threshold=0.5, **NO_MERGE).fit(X)
+    Xn = X / np.linalg.norm(X, axis=1, keepdims=True)
+    for k in range(model.n_clusters_):
+        mean = Xn[model.labels_ == k].mean(axis=0)
+        np.testing.assert_allclose(model.centroids_[k], mean / np.linalg.norm(mean), atol=1e-5)
+    np.testing.assert_array_equal(assign_to_centroids(X, model.centroids_), model.labels_)
+
+
+def test_two_stage_tracks_exact_on_separated_blobs() -> None:
+    X, y = _blobs(300, 6, 48, 0.15, seed=5)
+    exact = SenseClusterer(threshold=0.5, **NO_MERGE).fit(X)
+    two = SenseClusterer(threshold=0.5, exact_max=500, n_micro=64, **NO_MERGE).fit(X)
+    assert adjusted_rand_score(exact.labels_, two.labels_) >= 0.98
+    assert adjusted_rand_score(y, two.labels_) >= 0.98
+
+
+def test_two_stage_single_group_cut() -> None:
+    # A threshold above every distance joins all micro-clusters.
+    X, _ = _blobs(100, 3, 16, 0.2, seed=6)
+    model = SenseClusterer(threshold=2.0, exact_max=50, n_micro=20, **NO_MERGE).fit(X)
+    assert model.n_clusters_ == 1
+
+
+@pytest.mark.parametrize("exact_max", [20000, 200])
+def test_deterministic_for_random_state(exact_max: int) -> None:
+    X, _ = _blobs(100, 4, 20, 0.3, seed=8)
+    a = SenseClusterer(threshold=0.6, exact_max=exact_max, n_micro=30, random_state=11).fit(X)
+    b = SenseClusterer(threshold=0.6, exact_max=exact_max, n_micro=30, random_state=11).fit(X)
+    np.testing.assert_array_equal(a.labels_, b.labels_)
+    np.testing.assert_array_equal(a.centroids_, b.centroids_)
+
+
+def test_small_clusters_merge_into_nearest_large() -> None:
+    rng = np.random.default_rng(9)
+    dim = 12
+    a, b = np.eye(dim)[0], np.eye(dim)[1]
+    near_a = a + 0.6 * np.eye(dim)[2]  # its own cluster at a tight cut, but closest to a
+    X = np.vstack(
+        [
+            a + 0.01 * rng.normal(size=(40, dim)),
+            b + 0.01 * rng.normal(size=(40, dim)),
+            near_a + 0.01 * rng.normal(size=(2, dim)),
+        ]
+    )
+    unmerged = SenseClusterer(threshold=0.1, **NO_MERGE).fit(X)
+    assert unmerged.n_clusters_ == 3
+    merged = SenseClusterer(threshold=0.1, min_cluster_size=3, min_cluster_share=0.0).fit(X)
+    assert merged.n_clusters_ == 2
+    assert set(merged.labels_[80:]) == {merged.labels_[0]}
+    # Share-based floor: 5% of 82 points is 4.1, so the 2-point cluster is small too.
+    shared = SenseClusterer(threshold=0.1, min_cluster_size=1, min_cluster_share=0.05).fit(X)
+    assert shared.n_clusters_ == 2
+
+
+def test_no_large_cluster_keeps_the_largest() -> None:
+    rng = np.random.default_rng(10)
+    X = rng.normal(size=(10, 30))
+    model = SenseClusterer(threshold=0.05, min_cluster_size=50).fit(X)
+    assert model.n_clusters_ == 1
+    assert model.labels_.tolist() == [0] * 10
+
+
+def test_single_point() -> None:
+    model = SenseClusterer().fit([[1.0, 2.0]])
+    assert model.labels_.tolist() == [0]
+    assert model.n_clusters_ == 1
+
+
+def test_fit_returns_self_and_init_stores_only() -> None:
+    model = SenseClusterer(threshold=0.3)
+    assert not hasattr(model, "labels_")
+    assert model.fit(np.eye(4) + 0.1) is model
+
+
+@pytest.mark.parametrize(
+    "bad",
+    [np.empty((0, 3)), np.array([1.0, 2.0]), np.array([[1.0, np.nan]]), np.zeros((2, 3))],
+)
+def test_invalid_input_raises(bad: np.ndarray) -> None:
+    with pytest.raises(InductionError):
+        SenseClusterer().fit(bad)
+
+
+@pytest.mark.parametrize(
+    "params", [{"metric": "euclidean"}, {"linkage": "single"}, {"threshold": -1.0}]
+)
+def test_invalid_params_raise(params: dict[str, object]) -> None:
+    with pytest.raises(InductionError):
+        SenseClusterer(**params).fit(np.eye(3) + 0.1)  # type: ignore[arg-type]
+
+
+def test_assign_dimension_mismatch() -> None:
+    with pytest.raises(InductionError):
+        assign_to_centroids(np.ones((2, 3)), np.ones((2, 4)))
