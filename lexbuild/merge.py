@@ -74,11 +74,12 @@ from lexbuild import ids
 from lexbuild._atomic import atomic_write_bytes, staging_dir
 from lexbuild.errors import MergeError, SourceError, SourceLocation
 from lexbuild.model import Corpus, Entry, Example, Frame, Lexicon, LexiconMeta, Sense, Status
+from lexbuild.sources import load_entry
 
 __all__ = [
     "CENTROIDS_FILE",
     "FLAG_PREFIXES",
-    "InductionResult",
+    "InducedFolder",
     "MergeReport",
     "MergeSettings",
     "SenseMatch",
@@ -120,7 +121,7 @@ class MergeSettings:
 
 
 @dataclass
-class InductionResult:
+class InducedFolder:
     """An induction folder read into memory."""
 
     settings: dict[str, Any]
@@ -155,22 +156,6 @@ def write_centroids(path: str | Path, centroids: Mapping[str, Vector]) -> None:
             np.lib.format.write_array(array, np.asarray(centroids[key], dtype=np.float32))
             archive.writestr(info, array.getvalue())
     atomic_write_bytes(path, buffer.getvalue())
-
-
-def _read_entry(path: Path) -> Entry:
-    from ruamel.yaml import YAML
-    from ruamel.yaml.error import YAMLError
-
-    try:
-        node = YAML(typ="safe", pure=True).load(path.read_text(encoding="utf-8"))
-    except (YAMLError, UnicodeDecodeError) as error:
-        raise SourceError(f"invalid induced entry: {error}", SourceLocation(str(path))) from None
-    try:
-        return Entry.model_validate(node)
-    except ValueError as error:
-        raise SourceError(
-            f"induced entry does not fit the Entry model: {error}", SourceLocation(str(path))
-        ) from None
 
 
 _ASSIGNMENT_HEADER = ("lemma", "sense", "corpus", "sent_id", "token")
@@ -209,7 +194,7 @@ def _read_assignments(path: Path) -> dict[str, set[Sentence]]:
     return found
 
 
-def read_induction(folder: str | Path) -> InductionResult:
+def read_induction(folder: str | Path) -> InducedFolder:
     """Read an induction folder; errors name the file (and line for the TSV)."""
     root = Path(folder)
     settings_path = root / "induction.json"
@@ -225,8 +210,8 @@ def read_induction(folder: str | Path) -> InductionResult:
         raise MergeError(f"invalid JSON: {error}", SourceLocation(str(settings_path))) from None
     if not isinstance(settings, dict):
         raise MergeError("expected a JSON object", SourceLocation(str(settings_path)))
-    entries = [_read_entry(path) for path in sorted((root / "entries").glob("*.yaml"))]
-    return InductionResult(
+    entries = [load_entry(path) for path in sorted((root / "entries").glob("*.yaml"))]
+    return InducedFolder(
         settings=settings,
         entries=entries,
         centroids=read_centroids(root / CENTROIDS_FILE),
@@ -533,7 +518,7 @@ def _new_sense(
 
 
 def _coverage(
-    existing: Sequence[Sense], induced: Sequence[Sense], result: InductionResult
+    existing: Sequence[Sense], induced: Sequence[Sense], result: InducedFolder
 ) -> tuple[list[int], npt.NDArray[np.int64]]:
     """For each existing sense, how many of its example sentences this run clustered at all,
     and how many of them each induced sense holds.
@@ -566,7 +551,7 @@ def _coverage(
 def _merge_entry(
     targets: list[Entry],
     induced_entry: Entry,
-    result: InductionResult,
+    result: InducedFolder,
     centroids: dict[str, Vector],
     pools: _Pools,
     settings: MergeSettings,
@@ -664,7 +649,7 @@ def _merge_entry(
 def merge_lexicon(
     lexicon: Lexicon,
     centroids: Mapping[str, Vector],
-    result: InductionResult,
+    result: InducedFolder,
     settings: MergeSettings = MergeSettings(),
 ) -> tuple[Lexicon, dict[str, Vector], MergeReport]:
     """The merged lexicon, the sources' new centroid table, and the report (pure function)."""
@@ -716,7 +701,7 @@ def merge_lexicon(
 
 
 def _declare_corpora(
-    lexicon: Lexicon, entries: Sequence[Entry], result: InductionResult, report: MergeReport
+    lexicon: Lexicon, entries: Sequence[Entry], result: InducedFolder, report: MergeReport
 ) -> LexiconMeta:
     """Declare in the metadata the corpora that the added example candidates cite.
 

@@ -41,6 +41,7 @@ __all__ = [
     "format_path",
     "id_paths",
     "lexicon_json_schema",
+    "load_entry",
     "load_lexicon",
     "schema_text",
     "write_entry",
@@ -367,6 +368,11 @@ def _load_entry_located(path: Path, text: str, source_map: SourceMap) -> Entry:
             source_map.locate(key, ("id",)),
         )
     return entry
+
+
+def load_entry(path: str | Path) -> Entry:
+    """Load one entry file on its own; raises ``SourceError`` naming file, line and field."""
+    return _load_entry(Path(path), SourceMap())
 
 
 def entry_files(root: Path) -> list[Path]:

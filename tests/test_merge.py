@@ -31,7 +31,7 @@ from lexbuild.clustering import SenseClusterer
 from lexbuild.errors import SourceError
 from lexbuild.merge import (
     CENTROIDS_FILE,
-    InductionResult,
+    InducedFolder,
     MergeSettings,
     match_senses,
     merge_induction,
@@ -554,7 +554,7 @@ def curated_lexicons(draw: st.DrawFn) -> Lexicon:
 
 
 @st.composite
-def inductions(draw: st.DrawFn) -> InductionResult:
+def inductions(draw: st.DrawFn) -> InducedFolder:
     n = draw(st.integers(1, 4))
     senses = []
     assignments: dict[str, set[tuple[str, str]]] = {}
@@ -578,14 +578,14 @@ def inductions(draw: st.DrawFn) -> InductionResult:
         ))
         assignments[sid] = {(CORPUS, s) for s in sentences}
         centroids[sid] = unit(*draw(st.lists(st.floats(0.1, 1.0), min_size=3, max_size=3)))
-    return InductionResult({"run": "p"}, [Entry(id="filer", lemma="filer", senses=senses)],
+    return InducedFolder({"run": "p"}, [Entry(id="filer", lemma="filer", senses=senses)],
                            centroids, assignments)
 
 
 @settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(curated_lexicons(), inductions(), inductions())
 def test_curated_fields_never_lost_and_ids_never_reused(
-    lexicon: Lexicon, first: InductionResult, second: InductionResult
+    lexicon: Lexicon, first: InducedFolder, second: InducedFolder
 ) -> None:
     state: Lexicon = lexicon
     centroids: dict[str, np.ndarray] = {}
@@ -617,7 +617,7 @@ def test_curated_fields_never_lost_and_ids_never_reused(
 @settings(max_examples=100, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(inductions(), inductions(), st.data())
 def test_edits_made_after_a_merge_survive_the_next(
-    first: InductionResult, second: InductionResult, data: st.DataObject
+    first: InducedFolder, second: InducedFolder, data: st.DataObject
 ) -> None:
     """Machine proposes, editor curates the proposal, machine proposes again."""
     empty = Lexicon(meta=meta(["filer.s9"]), entries=[])
