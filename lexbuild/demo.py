@@ -44,6 +44,8 @@ class DemoSummary:
     sources: Path
     sentences: int
     occurrences: int
+    entries: int
+    senses: int
     senses_per_verb: dict[str, int]
     frames: int
     evaluation: EvaluationReport
@@ -164,6 +166,8 @@ def run_demo(
         sources=sources,
         sentences=len(sentences),
         occurrences=len(occurrences),
+        entries=len(merged.entries),
+        senses=sum(len(e.senses) for e in merged.entries),
         senses_per_verb=senses_per_verb,
         frames=frames,
         evaluation=evaluation,

@@ -61,7 +61,8 @@ def format_summary(summary: DemoSummary) -> str:
         f"merge: {len(summary.merge.matched)} senses matched, {len(summary.merge.senses_added)} "
         f"added, {len(summary.merge.entries_added)} entries added, "
         f"{len(summary.merge.unsupported)} flagged as unsupported",
-        f"frames in the merged dictionary: {summary.frames}",
+        f"merged dictionary: {summary.entries} entries, {summary.senses} senses, "
+        f"{summary.frames} frames",
         f"validation problems in the released edition: {summary.validation_problems}",
         "",
         "artefacts:",
