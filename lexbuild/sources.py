@@ -9,9 +9,11 @@ and key order survive a machine update.
 from __future__ import annotations
 
 import datetime as dt
+import functools
 import io
 import json
 import os
+import re
 import typing
 from collections.abc import Iterator
 from concurrent.futures import ProcessPoolExecutor
@@ -326,16 +328,83 @@ def _load_meta(root: Path, source_map: SourceMap) -> LexiconMeta:
     return _validate(LexiconMeta, node, shown, source_map.meta_location)
 
 
-def _fast_yaml() -> YAML:
-    # libyaml-backed when ruamel.yaml.clib is installed (about 6x faster than round-trip).
-    return YAML(typ="safe")
+# --------------------------------------------------------------- fast read-only YAML 1.2 loading
+#
+# Loading 10,000 entry files with ruamel's round-trip parser takes minutes; PyYAML's libyaml
+# loader is ~10x faster but implements YAML 1.1 (``no`` is false, ``010`` is 8). The loader below
+# keeps libyaml's speed with the YAML 1.2 core schema resolution that ruamel applies, so both
+# read the same values (a test compares them file by file). Positions are not kept: they are
+# read again with ruamel only when a message needs them.
+
+# ruamel's YAML 1.2 ints also allow '_' separators and 0b binaries.
+_CORE_INT = re.compile(r"^[-+]?(?:0b[01_]+|0o[0-7_]+|0x[0-9a-fA-F_]+|[0-9][0-9_]*)$")
+_CORE_FLOAT = re.compile(
+    r"^[-+]?(?:\.[0-9]+|[0-9]+(?:\.[0-9]*)?)(?:[eE][-+]?[0-9]+)?$"
+    r"|^[-+]?\.(?:inf|Inf|INF)$|^\.(?:nan|NaN|NAN)$"
+)
+_CORE_BOOL = re.compile(r"^(?:true|True|TRUE|false|False|FALSE)$")
+_CORE_NULL = re.compile(r"^(?:~|null|Null|NULL|)$")
+
+
+def _core_int(loader: Any, node: Any) -> int:
+    text = loader.construct_scalar(node).replace("_", "")
+    sign = -1 if text.startswith("-") else 1
+    digits = text.lstrip("+-")
+    base = {"0b": 2, "0o": 8, "0x": 16}.get(digits[:2], 10)
+    return sign * int(digits[2:] if base != 10 else digits, base)
+
+
+def _core_float(loader: Any, node: Any) -> float:
+    text = loader.construct_scalar(node).lower()
+    return float(text.replace(".inf", "inf").replace(".nan", "nan"))
+
+
+@functools.cache
+def _libyaml_loader() -> Any:
+    """A PyYAML libyaml loader with YAML 1.2 core schema resolution, or None without libyaml."""
+    try:
+        import yaml
+    except ImportError:
+        return None
+    if not getattr(yaml, "__with_libyaml__", False):
+        return None
+
+    class CoreLoader(yaml.CSafeLoader):
+        pass
+
+    CoreLoader.yaml_implicit_resolvers = {}  # drop the YAML 1.1 resolvers inherited
+
+    for tag, pattern, first in (
+        ("tag:yaml.org,2002:bool", _CORE_BOOL, list("tTfF")),
+        ("tag:yaml.org,2002:null", _CORE_NULL, ["~", "n", "N", ""]),
+        ("tag:yaml.org,2002:int", _CORE_INT, list("-+0123456789")),
+        ("tag:yaml.org,2002:float", _CORE_FLOAT, list("-+.0123456789")),
+    ):
+        CoreLoader.add_implicit_resolver(tag, pattern, first)
+    # ruamel resolves timestamps in YAML 1.2 documents too: keep PyYAML's rule for them.
+    for first, rules in yaml.CSafeLoader.yaml_implicit_resolvers.items():
+        for tag, pattern in rules:
+            if tag == "tag:yaml.org,2002:timestamp":
+                CoreLoader.add_implicit_resolver(tag, pattern, [first])
+    CoreLoader.add_constructor("tag:yaml.org,2002:int", _core_int)
+    CoreLoader.add_constructor("tag:yaml.org,2002:float", _core_float)
+    return CoreLoader
+
+
+def _fast_load(text: str) -> Any:
+    loader = _libyaml_loader()
+    if loader is None:
+        return YAML(typ="safe").load(text)
+    import yaml
+
+    return yaml.load(text, Loader=loader)  # a subclass of the safe loader
 
 
 def _read_fast(path: Path) -> Any:
     """Plain data of an entry file, or None when it needs the careful path (errors, encoding)."""
     try:
-        return _fast_yaml().load(path.read_bytes().decode("utf-8"))
-    except (OSError, UnicodeDecodeError, YAMLError, ValueError):
+        return _fast_load(path.read_bytes().decode("utf-8"))
+    except Exception:  # any problem (PyYAML's errors included): the careful path reports it
         return None
 
 

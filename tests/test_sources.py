@@ -191,3 +191,45 @@ def test_parallel_loading_gives_the_same_lexicon(
     assert parallel.source_map.locate_id("tenir.s2.x1") == serial.source_map.locate_id(
         "tenir.s2.x1"
     )
+
+
+TRICKY_SCALARS = [
+    "no", "yes", "on", "off", "y", "n", "true", "False", "TRUE", "null", "~", "Null", "",
+    "010", "0o17", "0x1F", "1_000", "1:20", "+12", "-7", "0", "3.5", ".5", "1e3", "1.5E-2",
+    ".inf", "-.Inf", ".nan", "2026-12-01", "2026-12-01 10:00:00", "0b101", "-0x_1f", "1__0",
+    "12e", "'010'",
+    '"no"', "à cause de", "subj:NP obj:NP", "[1, 2]", "{a: 1}",
+]
+
+
+@pytest.mark.parametrize("scalar", TRICKY_SCALARS)
+def test_fast_loader_reads_what_ruamel_reads(scalar: str) -> None:
+    # Reference: ruamel.yaml's round-trip loader (YAML 1.2). The fast libyaml path must give
+    # the same Python values, or the same entries would load differently by path.
+    from lexbuild.sources import _fast_load, _plain, _yaml
+
+    text = f"value: {scalar}\n"
+    expected = _plain(_yaml().load(text))
+    got = _fast_load(text)
+    assert type(got["value"]) is type(expected["value"])
+    if scalar == ".nan":
+        assert got["value"] != got["value"] and expected["value"] != expected["value"]
+    else:
+        assert got == expected
+
+
+def test_fast_loader_agrees_on_every_shipped_yaml_file(sample_lexicon_dir: Path) -> None:
+    from lexbuild.sources import _fast_load, _plain, _yaml
+
+    files = [
+        *sorted(sample_lexicon_dir.rglob("*.yaml")),
+        *sorted((PROJECT_ROOT / "tests" / "fixtures").rglob("*.yaml")),
+    ]
+    assert len(files) > 30
+    for path in files:
+        text = path.read_text(encoding="utf-8")
+        try:
+            expected = _plain(_yaml().load(text))
+        except Exception:
+            continue  # fixtures that are broken on purpose
+        assert _fast_load(text) == expected, path
