@@ -30,6 +30,7 @@ from collections.abc import Iterable
 from lexbuild.errors import IdentifierError
 
 __all__ = [
+    "DocumentIds",
     "entry_id",
     "example_id",
     "frame_id",
@@ -206,3 +207,30 @@ def next_free_id(parent: str, kind: str, used: Iterable[str]) -> str:
         if match and match.group("kind") == kind:
             highest = max(highest, int(match.group("n")))
     return f"{parent}.{kind}{highest + 1}"
+
+
+class DocumentIds:
+    """Every id written into one document so far: a second use raises ``error``.
+
+    Exporters use it so that a duplicate id becomes a clear export error naming both owners,
+    not a file that fails validation later; ``fresh`` hands out ids never used in the lexicon.
+    """
+
+    def __init__(self, reserved: Iterable[str], error: type[Exception]) -> None:
+        self.owner: dict[str, str] = {}
+        self.pool = set(reserved)
+        self.error = error
+
+    def add(self, identifier: str, owner: str) -> str:
+        previous = self.owner.get(identifier)
+        if previous is not None:
+            raise self.error(
+                f"id {identifier!r} of {owner} is already the id of {previous}: ids must be "
+                "unique in the whole document (lexbuild check reports it as E104)"
+            )
+        self.owner[identifier] = owner
+        self.pool.add(identifier)
+        return identifier
+
+    def fresh(self, parent: str, kind: str) -> str:
+        return next_free_id(parent, kind, self.pool)

@@ -31,7 +31,7 @@ from collections.abc import Iterable
 from typing import Any
 
 from lexbuild.errors import ExportError, LexbuildError
-from lexbuild.ids import next_free_id
+from lexbuild.ids import DocumentIds
 from lexbuild.model import Entry, Frame, Function, Lexicon, LexiconMeta, Realisation
 from lexbuild.xmlsafe import XmlWriter, forbidden_character
 
@@ -75,26 +75,6 @@ def is_lmf(data: bytes) -> bool:
         return False
 
 
-class _Ids:
-    def __init__(self, reserved: Iterable[str]) -> None:
-        self.owner: dict[str, str] = {}
-        self.pool = set(reserved)
-
-    def add(self, identifier: str, owner: str) -> str:
-        previous = self.owner.get(identifier)
-        if previous is not None:
-            raise LMFError(
-                f"id {identifier!r} of {owner} is already the id of {previous}: ids must be "
-                "unique in the whole document (lexbuild check reports it as E104)"
-            )
-        self.owner[identifier] = owner
-        self.pool.add(identifier)
-        return identifier
-
-    def fresh(self, parent: str, kind: str) -> str:
-        return next_free_id(parent, kind, self.pool)
-
-
 def _feat(out: XmlWriter, att: str, val: str) -> None:
     out.leaf("feat", None, [("att", att), ("val", val)])
 
@@ -117,7 +97,7 @@ def _global(out: XmlWriter, meta: LexiconMeta) -> None:
     out.close("GlobalInformation")
 
 
-def _frame(frames: XmlWriter, frame: Frame, frame_id: str, ids: _Ids) -> list[str]:
+def _frame(frames: XmlWriter, frame: Frame, frame_id: str, ids: DocumentIds) -> list[str]:
     frames.open("SubcategorizationFrame", [("id", frame_id)])
     _feat(frames, "label", frame.pattern)
     if any(slot.function is Function.REFLEXIVE for slot in frame.slots):
@@ -144,7 +124,9 @@ def _frame(frames: XmlWriter, frame: Frame, frame_id: str, ids: _Ids) -> list[st
     return slots
 
 
-def _entry(out: XmlWriter, frames: XmlWriter, entry: Entry, language: str, ids: _Ids) -> None:
+def _entry(
+    out: XmlWriter, frames: XmlWriter, entry: Entry, language: str, ids: DocumentIds
+) -> None:
     out.open("LexicalEntry", [("id", ids.add(entry.id, f"entry {entry.id!r}"))])
     _feat(out, "partOfSpeech", entry.pos)
     if entry.homograph is not None:
@@ -247,7 +229,7 @@ def to_lmf(lexicon: Lexicon) -> bytes:
     if not lexicon.entries:
         raise LMFError("the lexicon has no entry; an LMF Lexicon needs at least one LexicalEntry")
     meta = lexicon.meta
-    ids = _Ids(lexicon.all_ids())
+    ids = DocumentIds(lexicon.all_ids(), LMFError)
     out = XmlWriter()
     out.parts.append('<?xml version="1.0" encoding="UTF-8"?>')
     out.parts.append(f'<!DOCTYPE LexicalResource SYSTEM "{DTD_FILE}">')

@@ -42,7 +42,7 @@ from typing import Any
 from lxml import etree
 
 from lexbuild.errors import ExportError, LexbuildError, SourceError
-from lexbuild.ids import next_free_id
+from lexbuild.ids import DocumentIds
 from lexbuild.model import (
     ArgumentSpan,
     Corpus,
@@ -129,29 +129,7 @@ def is_tei(data: bytes) -> bool:
 # ------------------------------------------------------------------------------------ writer
 
 
-class _Ids:
-    """Every xml:id written so far: a second use is an export error, not a broken file."""
-
-    def __init__(self, reserved: Iterable[str]) -> None:
-        self.owner: dict[str, str] = {}
-        self.pool = set(reserved)
-
-    def add(self, identifier: str, owner: str) -> str:
-        previous = self.owner.get(identifier)
-        if previous is not None:
-            raise TEIError(
-                f"id {identifier!r} of {owner} is already the id of {previous}: ids must be "
-                "unique in the whole document (lexbuild check reports it as E104)"
-            )
-        self.owner[identifier] = owner
-        self.pool.add(identifier)
-        return identifier
-
-    def fresh(self, parent: str, kind: str) -> str:
-        return next_free_id(parent, kind, self.pool)
-
-
-def _header(out: XmlWriter, meta: LexiconMeta, changes: Sequence[str], ids: _Ids) -> None:
+def _header(out: XmlWriter, meta: LexiconMeta, changes: Sequence[str], ids: DocumentIds) -> None:
     out.open("teiHeader")
     out.open("fileDesc")
     out.open("titleStmt")
@@ -308,7 +286,7 @@ def _example(
     entry: Entry,
     slot_ids: dict[str, list[str]],
     corpora: set[str],
-    ids: _Ids,
+    ids: DocumentIds,
 ) -> None:
     attributes = [("type", "example")]
     if example.id:
@@ -354,7 +332,7 @@ def _sub_number(sense_number: int, frame_number: int) -> str:
 
 
 def _sense(
-    out: XmlWriter, entry: Entry, sense: Sense, number: int, corpora: set[str], ids: _Ids
+    out: XmlWriter, entry: Entry, sense: Sense, number: int, corpora: set[str], ids: DocumentIds
 ) -> None:
     out.open(
         "sense",
@@ -424,7 +402,9 @@ def _sense(
     out.close("sense")
 
 
-def _entry(out: XmlWriter, entry: Entry, language: str, corpora: set[str], ids: _Ids) -> None:
+def _entry(
+    out: XmlWriter, entry: Entry, language: str, corpora: set[str], ids: DocumentIds
+) -> None:
     attributes = [("xml:id", ids.add(entry.id, f"entry {entry.id!r}")), ("xml:lang", language)]
     if entry.homograph is not None:
         attributes.append(("n", str(entry.homograph)))
@@ -479,7 +459,7 @@ def to_tei(lexicon: Lexicon, *, changes: Sequence[str] = ()) -> bytes:
     if not lexicon.entries:
         raise TEIError("the lexicon has no entry; a TEI Lex-0 body needs at least one")
     meta = lexicon.meta
-    ids = _Ids(lexicon.all_ids())
+    ids = DocumentIds(lexicon.all_ids(), TEIError)
     out = XmlWriter()
     out.parts.append('<?xml version="1.0" encoding="UTF-8"?>')
     out.open("TEI", [("xmlns", TEI_NS), ("type", "lex-0")])
