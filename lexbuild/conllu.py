@@ -66,8 +66,15 @@ _SUFFIXES = (".conllu", ".conllu.gz", ".conllu.xz")
 _NCOLS = 10
 
 
-def resolve_paths(paths: PathLike | Iterable[PathLike]) -> list[Path]:
-    """Files in reading order: files as given, folders' CoNLL-U files sorted, globs sorted."""
+def resolve_paths(
+    paths: PathLike | Iterable[PathLike], *, suffixes: tuple[str, ...] | None = None
+) -> list[Path]:
+    """Files in reading order: files as given, folders' files sorted, globs sorted.
+
+    In a folder, only names ending with one of ``suffixes`` are taken (default: CoNLL-U,
+    plain or compressed).
+    """
+    wanted = _SUFFIXES if suffixes is None else suffixes
     if isinstance(paths, str | Path):
         paths = [paths]
     files: list[Path] = []
@@ -75,7 +82,9 @@ def resolve_paths(paths: PathLike | Iterable[PathLike]) -> list[Path]:
         path = Path(item)
         if path.is_dir():
             # Sorted so that ids and outputs do not depend on the file system's order.
-            files.extend(sorted(p for p in path.iterdir() if p.name.endswith(_SUFFIXES)))
+            files.extend(
+                sorted(p for p in path.iterdir() if p.is_file() and p.name.endswith(wanted))
+            )
         elif path.exists():
             files.append(path)
         elif _glob.has_magic(str(item)):

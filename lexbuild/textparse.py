@@ -79,6 +79,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import IO, TYPE_CHECKING, Any
 
+from lexbuild.conllu import resolve_paths
 from lexbuild.errors import CorpusError, ModelLoadError, SourceLocation
 
 if TYPE_CHECKING:
@@ -355,17 +356,10 @@ def _file_digest(path: Path, pipeline_id: str) -> str:
 
 
 def _resolve_texts(paths: str | Path | Iterable[str | Path]) -> list[Path]:
-    if isinstance(paths, str | Path):
-        paths = [paths]
-    files: list[Path] = []
-    for item in paths:
-        path = Path(item)
-        if path.is_dir():
-            files.extend(sorted(p for p in path.iterdir() if p.is_file() and p.suffix == ".txt"))
-        elif path.is_file():
-            files.append(path)
-        else:
-            raise CorpusError(f"text file {str(item)!r} not found")
+    try:
+        files = resolve_paths(paths, suffixes=(".txt",))
+    except FileNotFoundError as error:
+        raise CorpusError(f"text file not found: {error}") from None
     stems: dict[str, Path] = {}
     for path in files:
         other = stems.setdefault(_stem(path), path)
