@@ -23,9 +23,9 @@ from lexbuild.clustering import SenseClusterer
 SKLEARN_MAX = 10_000  # above this its dense n x n float64 matrix gets too large to be useful
 
 
-def _data(n: int, dim: int, k: int, seed: int) -> np.ndarray:
+def _data(n: int, dim: int, k: int, random_state: int) -> np.ndarray:
     """Blobs of contextual-embedding-like vectors: k sense directions plus noise."""
-    rng = np.random.default_rng(seed)
+    rng = np.random.default_rng(random_state)
     centres = rng.normal(size=(k, dim))
     labels = rng.integers(0, k, size=n)
     X = centres[labels] + 0.6 * rng.normal(size=(n, dim))
@@ -48,7 +48,7 @@ def main(argv: list[str] | None = None) -> None:
     ap.add_argument("--dim", type=int, default=768)
     ap.add_argument("--threshold", type=float, default=0.5)
     ap.add_argument("--senses", type=int, default=8)
-    ap.add_argument("--seed", type=int, default=0)
+    ap.add_argument("--random-state", type=int, default=0)
     ap.add_argument(
         "--exact-limit", type=int, default=40_000,
         help="largest n also clustered exactly (40k needs ~6.4 GB for the condensed matrix)",
@@ -60,7 +60,7 @@ def main(argv: list[str] | None = None) -> None:
     print(header)
     print("-" * len(header))
     for n in sizes:
-        X = _data(n, args.dim, args.senses, args.seed)
+        X = _data(n, args.dim, args.senses, args.random_state)
         common: dict[str, Any] = {
             "threshold": args.threshold,
             "min_cluster_size": 1,

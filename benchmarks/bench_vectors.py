@@ -73,8 +73,14 @@ def _tiny_bert(folder: Path) -> Path:
         intermediate_size=128,
         max_position_embeddings=512,
     )
-    torch.manual_seed(0)
-    BertModel(config).save_pretrained(folder)
+    model = BertModel(config)
+    # Weights drawn like BERT's initialiser (normal, sd 0.02), reproducibly.
+    weights = np.random.default_rng(0)
+    with torch.no_grad():
+        for parameter in model.parameters():
+            values = weights.normal(0.0, 0.02, tuple(parameter.shape)).astype(np.float32)
+            parameter.copy_(torch.from_numpy(values))
+    model.save_pretrained(folder)
     tokenizer.save_pretrained(folder)
     return folder
 

@@ -51,7 +51,7 @@ VARIANTS: dict[str, dict[str, Any]] = {
 
 
 def _report(name: str, calibrations: list[Any], seconds: float) -> None:
-    """Best mean ARI per kind, curves averaged over the seeds first."""
+    """Best mean ARI per kind, curves averaged over the random states first."""
     thresholds = [row.threshold for row in calibrations[0].thresholds]
     curves: dict[str, list[list[float]]] = {"all": []}
     clusters = np.mean([[r.clusters_per_verb for r in c.thresholds] for c in calibrations], 0)
@@ -78,7 +78,7 @@ def main(argv: list[str] | None = None) -> None:
     ap.add_argument("--pairs", type=int, default=30)
     ap.add_argument("--per-verb", type=int, default=150)
     ap.add_argument("--min-count", type=int, default=30)
-    ap.add_argument("--seeds", default="0", help="comma-separated; curves are averaged")
+    ap.add_argument("--random-states", default="0", help="comma-separated; curves are averaged")
     args = ap.parse_args(argv)
     occurrences = list(iter_occurrences(args.corpus))
     print(f"{len(occurrences)} occurrences from {len(args.corpus)} files", flush=True)
@@ -88,7 +88,7 @@ def main(argv: list[str] | None = None) -> None:
     ]
     if args.transformer:
         reps.append(("transformer", TransformerEncoder(args.transformer)))
-    seeds = [int(x) for x in args.seeds.split(",")]
+    states = [int(x) for x in args.random_states.split(",")]
     for name, rep in reps:
         t0 = time.perf_counter()
         calibrations = [
@@ -101,9 +101,9 @@ def main(argv: list[str] | None = None) -> None:
                 min_count=args.min_count,
                 per_verb=args.per_verb,
                 mask=not args.no_mask,
-                seed=seed,
+                random_state=random_state,
             )
-            for seed in seeds
+            for random_state in states
         ]
         _report(name, calibrations, time.perf_counter() - t0)
 

@@ -107,9 +107,9 @@ def build_pseudo_verbs(
     matched_pairs: int = 10,
     triples: int = 5,
     min_count: int = 30,
-    seed: int = 0,
+    random_state: int = 0,
 ) -> list[PseudoVerb]:
-    """Pseudo-verbs from the verbs seen at least ``min_count`` times (deterministic by seed)."""
+    """Pseudo-verbs from the verbs seen at least ``min_count`` times (fixed by random_state)."""
     frequent = sorted((lemma for lemma, n in counts.items() if n >= min_count),
                       key=lambda lemma: (-counts[lemma], lemma))
     if len(frequent) < 2:
@@ -117,7 +117,7 @@ def build_pseudo_verbs(
             f"calibration needs at least 2 verbs with {min_count}+ occurrences; the corpus has "
             f"{len(frequent)} (use a larger corpus or a lower --min-count)"
         )
-    rng = np.random.default_rng(seed)
+    rng = np.random.default_rng(random_state)
     out: list[PseudoVerb] = []
     seen: set[tuple[str, ...]] = set()
 
@@ -188,7 +188,7 @@ def conflate(
     per_verb: int = 200,
     placeholder: str = "X",
     mask: bool = True,
-    seed: int = 0,
+    random_state: int = 0,
 ) -> tuple[list[Occurrence], list[str]]:
     """The pseudo-verb's occurrences (at most ``per_verb`` of each verb) and gold labels."""
     occurrences: list[Occurrence] = []
@@ -196,7 +196,7 @@ def conflate(
     for number, verb in enumerate(pseudo.verbs):
         pool = list(by_lemma.get(verb, ()))
         if len(pool) > per_verb:
-            rng = np.random.default_rng([seed, number, len(pool)])
+            rng = np.random.default_rng([random_state, number, len(pool)])
             keep = np.sort(rng.choice(len(pool), per_verb, replace=False))
             pool = [pool[int(i)] for i in keep]
         occurrences.extend(_mask(occ, pseudo.name, placeholder, mask) for occ in pool)
@@ -221,7 +221,7 @@ def calibrate(
     linkage: str = "average",
     min_cluster_size: int = 3,
     min_cluster_share: float = 0.05,
-    seed: int = 0,
+    random_state: int = 0,
     cache: VectorCache | None = None,
     stats: CacheStats | None = None,
     progress: Callable[[int], None] | None = None,
@@ -239,7 +239,7 @@ def calibrate(
     counts = Counter({lemma: len(occs) for lemma, occs in by_lemma.items()})
     pseudo_verbs = build_pseudo_verbs(
         counts, pairs=pairs, matched_pairs=matched_pairs, triples=triples,
-        min_count=min_count, seed=seed,
+        min_count=min_count, random_state=random_state,
     )
     placeholder = representation.placeholder
     scores: dict[float, list[Any]] = {t: [] for t in grid}
@@ -247,7 +247,12 @@ def calibrate(
     described: list[dict[str, Any]] = []
     for pseudo in pseudo_verbs:
         occs, gold = conflate(
-            by_lemma, pseudo, per_verb=per_verb, placeholder=placeholder, mask=mask, seed=seed
+            by_lemma,
+            pseudo,
+            per_verb=per_verb,
+            placeholder=placeholder,
+            mask=mask,
+            random_state=random_state,
         )
         X = encode_cached(representation, occs, cache, stats=stats)
         aris: list[float] = []
@@ -255,7 +260,7 @@ def calibrate(
             linkage=linkage,
             min_cluster_size=min_cluster_size,
             min_cluster_share=min_cluster_share,
-            random_state=seed,
+            random_state=random_state,
         )
         for t, labels in zip(grid, clusterer.sweep(X, grid), strict=True):
             verb_scores = evaluate_verb(gold, labels.tolist(), pseudo.name)
@@ -301,7 +306,7 @@ def calibrate(
             "linkage": linkage,
             "min_cluster_size": min_cluster_size,
             "min_cluster_share": min_cluster_share,
-            "seed": seed,
+            "random_state": random_state,
         },
         per_verb_ari=per_verb_ari,
     )

@@ -166,7 +166,7 @@ class SenseClusterer:
         ``max(min_cluster_size, min_cluster_share * n)`` are merged into the nearest large one.
     exact_max: largest n clustered exactly; above it the two-stage path runs.
     n_micro: number of k-means micro-clusters in the two-stage path.
-    random_state: seed of the k-means stage.
+    random_state: fixes the random numbers of the k-means stage.
     """
 
     labels_: IntArray

@@ -9,7 +9,7 @@ nothing; ``write_induction`` writes the induction folder that ``merge`` and ``ev
     centroids.npz        sense id -> float32 L2-normalised centroid
     assignments.tsv      lemma, sense, corpus, sent_id, token (1-based CoNLL-U word id)
 
-Per verb: at most ``cap`` occurrences (a seeded sample) are clustered; every occurrence is then
+Per verb: at most ``cap`` occurrences (a random sample) are clustered; every occurrence is then
 assigned to its nearest sense centroid (the sampled ones keep their cluster). Senses are
 numbered by size, largest first. Each sense gets its frames (``valency.frames_for``) and up to
 ``examples`` example sentences chosen for dictionary use: complete sentences of moderate
@@ -88,7 +88,7 @@ class InductionSettings:
     min_occurrences: int = 1  # verbs seen fewer times are left out
     examples: int = 3
     example_words: tuple[int, int] = (6, 40)  # "moderate length", in words
-    seed: int = 0
+    random_state: int = 0
     frame_min_count: int = 2
     frame_min_share: float = 0.05
 
@@ -268,11 +268,11 @@ def _run_id(
     return "run-" + h.hexdigest()[:16]
 
 
-def sample_indices(n: int, cap: int, lemma: str, seed: int) -> npt.NDArray[np.intp]:
-    """The occurrences of a verb that are clustered: all up to ``cap``, else a seeded sample."""
+def sample_indices(n: int, cap: int, lemma: str, random_state: int) -> npt.NDArray[np.intp]:
+    """The occurrences of a verb that are clustered: all up to ``cap``, else a random sample."""
     if n <= cap:
         return np.arange(n, dtype=np.intp)
-    rng = np.random.default_rng([seed, zlib.crc32(lemma.encode("utf-8"))])
+    rng = np.random.default_rng([random_state, zlib.crc32(lemma.encode("utf-8"))])
     return np.sort(rng.choice(n, cap, replace=False)).astype(np.intp)
 
 
@@ -301,14 +301,14 @@ def _induce_verb(
     norms = np.linalg.norm(X, axis=1, keepdims=True)
     norms[norms == 0] = 1.0
     Xn = (X / norms).astype(np.float32)
-    sample = sample_indices(len(occs), settings.cap, lemma, settings.seed)
+    sample = sample_indices(len(occs), settings.cap, lemma, settings.random_state)
     clusterer = SenseClusterer(
         threshold=settings.threshold,
         linkage=settings.linkage,
         min_cluster_size=settings.min_cluster_size,
         min_cluster_share=settings.min_cluster_share,
         exact_max=settings.exact_max,
-        random_state=settings.seed,
+        random_state=settings.random_state,
     ).fit(Xn[sample])
     labels = assign_to_centroids(Xn, clusterer.centroids_)
     labels[sample] = clusterer.labels_  # sampled occurrences keep their own cluster

@@ -132,9 +132,10 @@ _GROUPS: dict[Function, str] = {
 }
 GROUP_NAMES = ("subj", "obj", "obl", "comp")
 
-#: Equal shares: on French UD pseudo-verbs (benchmarks/probe_representations.py, 3 seeds x 55
-#: pseudo-verbs) this beat every skewed weighting tried (random pairs: mean ARI 0.352 against
-#: 0.331 with a lighter subject and frame, 0.289 without window and frame, 0.086 window only).
+#: Equal shares: on French UD pseudo-verbs (benchmarks/probe_representations.py, 3 random
+#: states x 55 pseudo-verbs) this beat every skewed weighting tried (random pairs: mean ARI
+#: 0.352 against 0.331 with a lighter subject and frame, 0.289 without window and frame, 0.086
+#: window only).
 _DEFAULT_WEIGHTS: dict[str, float] = {
     "subj": 1.0,
     "obj": 1.0,

@@ -16,9 +16,11 @@ from lexbuild.errors import InductionError
 NO_MERGE: dict[str, Any] = {"min_cluster_size": 1, "min_cluster_share": 0.0}
 
 
-def _blobs(n_per: int, k: int, dim: int, spread: float, seed: int) -> tuple[np.ndarray, np.ndarray]:
+def _blobs(
+    n_per: int, k: int, dim: int, spread: float, random_state: int
+) -> tuple[np.ndarray, np.ndarray]:
     """Well-separated directions: orthogonal-ish centres plus small noise."""
-    rng = np.random.default_rng(seed)
+    rng = np.random.default_rng(random_state)
     centres = rng.normal(size=(k, dim))
     X = np.repeat(centres, n_per, axis=0) + spread * rng.normal(size=(k * n_per, dim))
     y = np.repeat(np.arange(k), n_per)
@@ -34,12 +36,12 @@ def test_condensed_matches_scipy_pdist() -> None:
     np.testing.assert_allclose(condensed_cosine(Xn), pdist(X, "cosine"), atol=1e-6)
 
 
-@pytest.mark.parametrize("seed", [0, 1, 2])
+@pytest.mark.parametrize("random_state", [0, 1, 2])
 @pytest.mark.parametrize("threshold", [0.3, 0.6, 0.9, 1.0, 1.1])
-def test_exact_path_equals_scipy_average(seed: int, threshold: float) -> None:
+def test_exact_path_equals_scipy_average(random_state: int, threshold: float) -> None:
     # Reference: scipy.cluster.hierarchy.linkage(pdist(X, "cosine"), "average") cut by
     # fcluster(criterion="distance"); compared as partitions (ARI == 1).
-    rng = np.random.default_rng(seed)
+    rng = np.random.default_rng(random_state)
     X = rng.normal(size=(120, 16))
     expected = fcluster(linkage(pdist(X, "cosine"), "average"), t=threshold, criterion="distance")
     model = SenseClusterer(threshold=threshold, **NO_MERGE).fit(X)
@@ -59,7 +61,7 @@ def test_ward_path_equals_scipy_ward(threshold: float) -> None:
 
 
 def test_labels_numbered_by_first_appearance() -> None:
-    X, _ = _blobs(20, 4, 32, 0.1, seed=3)
+    X, _ = _blobs(20, 4, 32, 0.1, random_state=3)
     labels = SenseClusterer(threshold=0.5, **NO_MERGE).fit(X).labels_
     seen: list[int] = []
     for lab in labels:
@@ -69,7 +71,7 @@ def test_labels_numbered_by_first_appearance() -> None:
 
 
 def test_centroids_are_normalised_member_means() -> None:
-    X, _ = _blobs(15, 3, 24, 0.2, seed=4)
+    X, _ = _blobs(15, 3, 24, 0.2, random_state=4)
     model = SenseClusterer(threshold=0.5, **NO_MERGE).fit(X)
     Xn = X / np.linalg.norm(X, axis=1, keepdims=True)
     for k in range(model.n_clusters_):
@@ -79,7 +81,7 @@ def test_centroids_are_normalised_member_means() -> None:
 
 
 def test_two_stage_tracks_exact_on_separated_blobs() -> None:
-    X, y = _blobs(300, 6, 48, 0.15, seed=5)
+    X, y = _blobs(300, 6, 48, 0.15, random_state=5)
     exact = SenseClusterer(threshold=0.5, **NO_MERGE).fit(X)
     two = SenseClusterer(threshold=0.5, exact_max=500, n_micro=64, **NO_MERGE).fit(X)
     assert adjusted_rand_score(exact.labels_, two.labels_) >= 0.98
@@ -88,14 +90,14 @@ def test_two_stage_tracks_exact_on_separated_blobs() -> None:
 
 def test_two_stage_single_group_cut() -> None:
     # A threshold above every distance joins all micro-clusters.
-    X, _ = _blobs(100, 3, 16, 0.2, seed=6)
+    X, _ = _blobs(100, 3, 16, 0.2, random_state=6)
     model = SenseClusterer(threshold=2.0, exact_max=50, n_micro=20, **NO_MERGE).fit(X)
     assert model.n_clusters_ == 1
 
 
 @pytest.mark.parametrize("exact_max", [20000, 200])
 def test_deterministic_for_random_state(exact_max: int) -> None:
-    X, _ = _blobs(100, 4, 20, 0.3, seed=8)
+    X, _ = _blobs(100, 4, 20, 0.3, random_state=8)
     a = SenseClusterer(threshold=0.6, exact_max=exact_max, n_micro=30, random_state=11).fit(X)
     b = SenseClusterer(threshold=0.6, exact_max=exact_max, n_micro=30, random_state=11).fit(X)
     np.testing.assert_array_equal(a.labels_, b.labels_)

@@ -190,7 +190,7 @@ def test_cap_clusters_a_sample_and_assigns_the_rest(
     settings = InductionSettings(threshold=0.6, cap=cap)
     res = induce(occs, static, settings)
     X = encode_cached(static, occs)
-    sample = sample_indices(len(occs), cap, lemma, settings.seed)
+    sample = sample_indices(len(occs), cap, lemma, settings.random_state)
     assert len(sample) == cap and len(set(sample.tolist())) == cap
     clusterer = SenseClusterer(threshold=0.6).fit(X[sample])
     sense_of = [a.sense for a in res.assignments]

@@ -179,9 +179,9 @@ def brute_force_best(similarity: np.ndarray, minimum: float) -> float:
     return best
 
 
-@pytest.mark.parametrize("seed", range(20))
-def test_matching_is_optimal_against_brute_force(seed: int) -> None:
-    rng = np.random.default_rng(seed)
+@pytest.mark.parametrize("random_state", range(20))
+def test_matching_is_optimal_against_brute_force(random_state: int) -> None:
+    rng = np.random.default_rng(random_state)
     similarity = rng.random((rng.integers(1, 5), rng.integers(1, 5)))
     pairs = match_senses(similarity, 0.4)
     assert len({r for r, _ in pairs}) == len(pairs) == len({c for _, c in pairs})
@@ -411,11 +411,11 @@ def test_centroid_file_is_deterministic_and_numpy_readable(tmp_path: Path) -> No
 
 
 def _induce_synthetic(
-    folder: Path, run: str, corpus: dict[str, np.ndarray], order_seed: int
+    folder: Path, run: str, corpus: dict[str, np.ndarray], order_state: int
 ) -> Path:
     """Cluster synthetic vectors with the project's real clusterer, write an induction."""
     names = sorted(corpus)
-    rng = np.random.default_rng(order_seed)
+    rng = np.random.default_rng(order_state)
     rng.shuffle(names)  # a different occurrence order each run: induced numbering changes
     X = np.stack([corpus[name] for name in names])
     clusterer = SenseClusterer(threshold=0.5, min_cluster_size=2).fit(X)

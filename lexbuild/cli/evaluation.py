@@ -92,7 +92,7 @@ def run_calibrate(args: argparse.Namespace) -> int:
             min_count=args.min_count,
             per_verb=args.per_verb,
             mask=not args.no_mask,
-            seed=args.seed,
+            random_state=args.random_state,
             cache=cache,
             progress=lambda n: update_bar(bar, n),
         )
@@ -143,6 +143,6 @@ def register(subparsers: Any) -> None:
     calibrate.add_argument("--no-mask", action="store_true",
                            help="leave the verb form visible (tests the representation only)")
     calibrate.add_argument("--no-plot", action="store_true", help="skip calibration.png")
-    calibrate.add_argument("--seed", type=int, default=0)
+    calibrate.add_argument("--random-state", type=int, default=0)
     add_representation_options(calibrate)
     calibrate.set_defaults(handler=run_calibrate)

@@ -156,7 +156,7 @@ def run_induce(args: argparse.Namespace) -> int:
         examples=args.examples,
         min_occurrences=args.min_occurrences,
         linkage=args.linkage,
-        seed=args.seed,
+        random_state=args.random_state,
     )
     verbs = len({occ.lemma for occ in occurrences})
     with (
@@ -210,7 +210,7 @@ def register(subparsers: Any) -> None:
     parser.add_argument("--examples", type=int, default=3, help="examples per sense")
     parser.add_argument("--min-occurrences", type=int, default=1, help="skip rarer verbs")
     parser.add_argument("--linkage", choices=("average", "ward"), default="average")
-    parser.add_argument("--seed", type=int, default=0)
+    parser.add_argument("--random-state", type=int, default=0)
     parser.add_argument("--overwrite", action="store_true", help="replace an existing output")
     add_representation_options(parser)
     parser.set_defaults(handler=run_induce)
