@@ -25,6 +25,7 @@ from typing import Any
 from lexbuild.errors import SourceError, SourceLocation
 from lexbuild.model import NEEDS_MARKER, Entry, Lexicon, Sense, Status
 from lexbuild.sources import FieldPath, LoadedLexicon, format_path, id_paths
+from lexbuild.xmlsafe import forbidden_characters
 
 __all__ = [
     "RULES",
@@ -331,32 +332,6 @@ def _slot_count(sense: Sense, frame_id: str | None) -> int | None:
     return None if frame is None else len(frame.slots)
 
 
-# XML 1.0 section 2.2 'Char': tab, newline and carriage return are the only C0 controls allowed;
-# surrogates and U+FFFE/U+FFFF are excluded too. C1 controls (U+0080-U+009F) are "discouraged"
-# by the same section; we refuse them as well since no dictionary text needs them.
-_FORBIDDEN = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\ud800-\udfff\ufffe\uffff]")
-
-
-def forbidden_character(text: str) -> str | None:
-    """Describe the first character XML 1.0 forbids (or discourages) in ``text``, if any."""
-    match = _FORBIDDEN.search(text)
-    if match is None:
-        return None
-    char = match.group(0)
-    return f"U+{ord(char):04X} at character {match.start() + 1}"
-
-
-def _strings(value: Any, path: FieldPath) -> Iterator[tuple[FieldPath, str]]:
-    if isinstance(value, str):
-        yield path, value
-    elif isinstance(value, dict):
-        for key, item in value.items():
-            yield from _strings(item, (*path, key))
-    elif isinstance(value, list | tuple):
-        for index, item in enumerate(value):
-            yield from _strings(item, (*path, index))
-
-
 @_rule(
     "E202",
     "forbidden-character",
@@ -364,15 +339,13 @@ def _strings(value: Any, path: FieldPath) -> Iterator[tuple[FieldPath, str]]:
     "remove the control character (XML 1.0 allows only tab, line feed and carriage return)",
 )
 def _forbidden_character(lexicon: Lexicon) -> Iterator[Problem]:
-    for path, text in _strings(lexicon.meta.model_dump(mode="json"), ()):
-        found = forbidden_character(text)
-        if found:
-            yield Problem(None, path, f"forbidden character {found}")
+    # DEL and C1 controls are refused too: XML 1.0 discourages them, no dictionary needs them.
+    meta = lexicon.meta.model_dump(mode="json")
+    for path, found in forbidden_characters(meta, discouraged=True):
+        yield Problem(None, path, f"forbidden {found}")
     for entry in lexicon.entries:
-        for path, text in _strings(entry.model_dump(mode="json"), ()):
-            found = forbidden_character(text)
-            if found:
-                yield Problem(entry.id, path, f"forbidden character {found}")
+        for path, found in forbidden_characters(entry.model_dump(mode="json"), discouraged=True):
+            yield Problem(entry.id, path, f"forbidden {found}")
 
 
 # Forms sharing no prefix with their lemma (suppletion), from memory of the standard

@@ -27,13 +27,12 @@ constrain them); the others are this project's conventions. All ids are unique i
 
 from __future__ import annotations
 
-from collections.abc import Iterable
 from typing import Any
 
 from lexbuild.errors import ExportError, LexbuildError
 from lexbuild.ids import DocumentIds
 from lexbuild.model import Entry, Frame, Function, Lexicon, LexiconMeta, Realisation
-from lexbuild.xmlsafe import XmlWriter, forbidden_character
+from lexbuild.xmlsafe import XmlWriter, describe_forbidden, forbidden_character
 
 __all__ = ["DTD_FILE", "DTD_VERSION", "SUPPORTED_VERSIONS", "LMFError", "is_lmf", "to_lmf"]
 
@@ -195,26 +194,8 @@ def _entry(
     out.close("LexicalEntry")
 
 
-def _bad_text(value: Any, where: str) -> str | None:
-    if isinstance(value, str):
-        found = forbidden_character(value)
-        return f"{where}: {found}" if found else None
-    items: Iterable[tuple[Any, Any]]
-    if isinstance(value, dict):
-        items = value.items()
-    elif isinstance(value, list | tuple):
-        items = enumerate(value)
-    else:
-        return None
-    for key, item in items:
-        found = _bad_text(item, f"{where}[{key}]" if isinstance(key, int) else f"{where}.{key}")
-        if found:
-            return found
-    return None
-
-
 def _text_error(value: Any, where: str) -> LMFError:
-    detail = _bad_text(value.model_dump(mode="json"), where) or f"{where}: a forbidden character"
+    detail = describe_forbidden(value.model_dump(mode="json"), where)
     return LMFError(
         f"{detail}: XML 1.0 cannot hold this character; remove it from the sources "
         "(lexbuild check reports it as E202)"

@@ -34,7 +34,7 @@ from __future__ import annotations
 
 import datetime as dt
 import re
-from collections.abc import Iterable, Sequence
+from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -60,6 +60,7 @@ from lexbuild.model import (
 )
 from lexbuild.xmlsafe import (
     XmlWriter,
+    describe_forbidden,
     escape_text,
     forbidden_character,
     inline,
@@ -422,28 +423,9 @@ def _entry(
     out.close("entry")
 
 
-def _bad_text(value: Any, where: str) -> str | None:
-    """The first string under ``value`` with a character XML cannot hold, described."""
-    if isinstance(value, str):
-        found = forbidden_character(value)
-        return f"{where}: {found}" if found else None
-    items: Iterable[tuple[Any, Any]]
-    if isinstance(value, dict):
-        items = value.items()
-    elif isinstance(value, list | tuple):
-        items = enumerate(value)
-    else:
-        return None
-    for key, item in items:
-        found = _bad_text(item, f"{where}[{key}]" if isinstance(key, int) else f"{where}.{key}")
-        if found:
-            return found
-    return None
-
-
 def _text_error(value: Any, where: str) -> TEIError:
     dumped = value if isinstance(value, list) else value.model_dump(mode="json")
-    detail = _bad_text(dumped, where) or f"{where}: a character XML 1.0 forbids"
+    detail = describe_forbidden(dumped, where)
     return TEIError(
         f"{detail}: XML 1.0 cannot hold this character; remove it from the sources "
         "(lexbuild check reports it as E202)"

@@ -8,8 +8,9 @@ external-entity attacks live, and none of our formats needs one.
 from __future__ import annotations
 
 import re
-from collections.abc import Collection, Iterable
+from collections.abc import Collection, Iterable, Iterator
 from pathlib import Path
+from typing import Any
 
 from lxml import etree
 
@@ -18,9 +19,11 @@ from lexbuild.errors import UnsafeXMLError
 __all__ = [
     "DEFAULT_MAX_BYTES",
     "XmlWriter",
+    "describe_forbidden",
     "escape_attribute",
     "escape_text",
     "forbidden_character",
+    "forbidden_characters",
     "indent",
     "parse_untrusted",
     "safe_parser",
@@ -84,14 +87,49 @@ def parse_untrusted(
 # XML 1.0 section 2.2 'Char': of the C0 controls only tab, line feed and carriage return; no
 # surrogates; not U+FFFE or U+FFFF. (lxml refuses all of these with a bare ValueError.)
 _NOT_XML_CHAR = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\ud800-\udfff\ufffe\uffff]")
+# The same, plus DEL and the C1 controls, which the same section discourages: the consistency
+# check refuses them too, since no dictionary text needs them.
+_NOT_XML_OR_DISCOURAGED = re.compile(
+    "[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\ud800-\udfff\ufffe\uffff]"
+)
+
+ValuePath = tuple[str | int, ...]
 
 
-def forbidden_character(text: str) -> str | None:
-    """Describe the first character of ``text`` that XML 1.0 cannot hold, or None."""
-    match = _NOT_XML_CHAR.search(text)
+def forbidden_character(text: str, *, discouraged: bool = False) -> str | None:
+    """Describe the first character of ``text`` that XML 1.0 cannot hold, or None.
+
+    With ``discouraged``, DEL and the C1 controls (U+007F-U+009F) count as well.
+    """
+    pattern = _NOT_XML_OR_DISCOURAGED if discouraged else _NOT_XML_CHAR
+    match = pattern.search(text)
     if match is None:
         return None
     return f"character U+{ord(match.group(0)):04X} at position {match.start() + 1}"
+
+
+def forbidden_characters(
+    value: Any, path: ValuePath = (), *, discouraged: bool = False
+) -> Iterator[tuple[ValuePath, str]]:
+    """Every string under a JSON-like value holding a forbidden character: (path, description)."""
+    if isinstance(value, str):
+        found = forbidden_character(value, discouraged=discouraged)
+        if found:
+            yield path, found
+    elif isinstance(value, dict):
+        for key, item in value.items():
+            yield from forbidden_characters(item, (*path, key), discouraged=discouraged)
+    elif isinstance(value, list | tuple):
+        for index, item in enumerate(value):
+            yield from forbidden_characters(item, (*path, index), discouraged=discouraged)
+
+
+def describe_forbidden(value: Any, where: str) -> str:
+    """``where.field[0].path: character U+... at position n`` for the first bad string."""
+    for path, found in forbidden_characters(value):
+        suffix = "".join(f"[{part}]" if isinstance(part, int) else f".{part}" for part in path)
+        return f"{where}{suffix}: {found}"
+    return f"{where}: a character XML 1.0 forbids"
 
 
 def indent(
