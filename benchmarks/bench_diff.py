@@ -20,56 +20,44 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import TypeVar
 
+from bench_lexicon import synthetic_entry  # the same synthetic entries (run from benchmarks/)
 from lxml import etree
 
 from lexbuild import ids
-from lexbuild.model import (
-    Entry,
-    Example,
-    Frame,
-    Lexicon,
-    LexiconMeta,
-    Sense,
-    SourceRef,
-    Status,
-)
+from lexbuild.model import Entry, Frame, Lexicon, LexiconMeta, SourceRef, Status
 
 T = TypeVar("T")
-PATTERNS = ("subj:NP obj:NP", "subj:NP obl:PP[de]?", "subj:NP comp:CLAUSE[que]",
-            "subj:NP iobj:PP[à]", "subj:NP")
+ADDED_FRAME = "subj:NP"
 
 
 def entry(number: int, variant: int = 0) -> Entry:
-    lemma = f"verbe{number}er"
-    eid = ids.entry_id(lemma)
-    changed = variant and number % 20 == 0  # 5 % of entries carry changes of every kind
-    senses = []
-    for s in range(1, 4):
-        sid = ids.sense_id(eid, s)
-        frames = [
-            Frame(id=ids.frame_id(sid, f), pattern=PATTERNS[(number + s + f) % 4],
-                  frequency=10 * f + (3 if changed and f == 1 else 0))
-            for f in (1, 2)
-        ]
-        if changed and s == 2:
-            frames.append(Frame(id=ids.frame_id(sid, 3), pattern=PATTERNS[4], frequency=2))
-        stem = lemma.removesuffix("er")
-        text = f"Le patron du port {stem}e la cargaison numéro {number}."
-        start = text.index(stem)
-        xs = (1, 2, 4) if changed and s == 1 else (1, 2, 3)
-        examples = [
-            Example(id=ids.example_id(sid, x), text=text,
-                    source=SourceRef(corpus="synthetic", sentence=f"s{number}.{s}.{x}"),
-                    verb=(start, start + len(stem) + 1), frame=frames[0].id)
-            for x in xs
-        ]
-        senses.append(Sense(
-            id=sid,
-            gloss=f"sens {s}" + (" (revu)" if changed and s == 3 else ""),
-            status=Status.APPROVED if changed and s == 1 else Status.REVIEWED,
-            frames=frames, examples=examples,
-        ))
-    return Entry(id=eid, lemma=lemma, senses=senses)
+    """The first edition's entry (bench_lexicon's generator); in the second, 5 % of entries
+    carry changes of every kind: frequency, added frame, swapped example, approval, gloss."""
+    base = synthetic_entry(number)
+    if not (variant and number % 20 == 0):
+        return base
+    s1, s2, s3 = base.senses
+    f1 = s1.frames[0]
+    f1 = f1.model_copy(update={"frequency": (f1.frequency or 0) + 3})
+    s1 = s1.model_copy(
+        update={
+            "status": Status.APPROVED,
+            "frames": [f1, *s1.frames[1:]],
+            "examples": [
+                *s1.examples[:2],
+                s1.examples[2].model_copy(
+                    update={
+                        "id": ids.example_id(s1.id, 4),
+                        "source": SourceRef(corpus="synthetic", sentence=f"s{number}.1.4"),
+                    }
+                ),
+            ],
+        }
+    )
+    added = Frame(id=ids.frame_id(s2.id, 3), pattern=ADDED_FRAME, frequency=2)
+    s2 = s2.model_copy(update={"frames": [*s2.frames, added]})
+    s3 = s3.model_copy(update={"gloss": f"{s3.gloss} (revu)"})
+    return base.model_copy(update={"senses": [s1, s2, s3]})
 
 
 def lexicon(count: int, variant: int, edition: int) -> Lexicon:
