@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import argparse
 import importlib.util
+import sys
 import tempfile
 import time
 from collections import defaultdict
@@ -33,56 +34,10 @@ from lexbuild.vectors import (
     VectorCache,
 )
 
-UD = Path(__file__).resolve().parent.parent.parent / "shared" / "corpora" / "ud"
-
-
-def _tiny_bert(folder: Path) -> Path:
-    import torch
-    from transformers import BertConfig, BertModel, BertTokenizerFast
-
-    words = [
-        "le",
-        "la",
-        "les",
-        "un",
-        "une",
-        "de",
-        "du",
-        "à",
-        "et",
-        "il",
-        "elle",
-        "chat",
-        "chien",
-        "maison",
-        "eau",
-        "pain",
-        "ville",
-    ]
-    letters = list("abcdefghijklmnopqrstuvwxyzàâçéèêëîïôûùü'.,;:!?«»-0123456789")
-    vocab = ["[PAD]", "[UNK]", "[CLS]", "[SEP]", "[MASK]", *letters]
-    vocab += [f"##{c}" for c in letters] + words
-    folder.mkdir(parents=True, exist_ok=True)
-    (folder / "vocab.txt").write_text("\n".join(dict.fromkeys(vocab)) + "\n", encoding="utf-8")
-    tokenizer = BertTokenizerFast(vocab=str(folder / "vocab.txt"))
-    config = BertConfig(
-        vocab_size=tokenizer.vocab_size,
-        hidden_size=64,
-        num_hidden_layers=4,
-        num_attention_heads=4,
-        intermediate_size=128,
-        max_position_embeddings=512,
-    )
-    model = BertModel(config)
-    # Weights drawn like BERT's initialiser (normal, sd 0.02), reproducibly.
-    weights = np.random.default_rng(0)
-    with torch.no_grad():
-        for parameter in model.parameters():
-            values = weights.normal(0.0, 0.02, tuple(parameter.shape)).astype(np.float32)
-            parameter.copy_(torch.from_numpy(values))
-    model.save_pretrained(folder)
-    tokenizer.save_pretrained(folder)
-    return folder
+ROOT = Path(__file__).resolve().parent.parent
+UD = ROOT.parent / "shared" / "corpora" / "ud"
+sys.path.insert(0, str(ROOT))  # the tests' tiny model builder
+from tests.tiny_models import build_tiny_bert  # noqa: E402
 
 
 def _minilm(option: str) -> Path | None:
@@ -130,7 +85,8 @@ def main(argv: list[str] | None = None) -> None:
     static_rate, _ = _rate(StaticSyntacticVectors(), occs)
     print(f"static default     {static_rate:9.0f} occ/s   (reference)")
     with tempfile.TemporaryDirectory() as tmp:
-        tiny = TransformerEncoder(_tiny_bert(Path(tmp) / "tiny"), num_threads=args.threads)
+        model = build_tiny_bert(Path(tmp) / "tiny", hidden=64, heads=4, max_positions=512)
+        tiny = TransformerEncoder(model, num_threads=args.threads)
         rate, _ = _rate(tiny, occs)
         print(f"tiny BERT          {rate:9.0f} occ/s   ratio to static {rate / static_rate:.3f}")
     folder = _minilm(args.minilm)

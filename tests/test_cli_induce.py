@@ -300,9 +300,9 @@ def test_induce_with_a_transformer_folder(
     tmp_path: Path, corpus: Path, capsys: pytest.CaptureFixture[str]
 ) -> None:
     pytest.importorskip("torch")
-    from test_vectors import _tiny_bert
+    from tests.tiny_models import build_tiny_bert
 
-    model = _tiny_bert(tmp_path / "tiny")
+    model = build_tiny_bert(tmp_path / "tiny")
     assert (
         main(
             [

@@ -26,65 +26,14 @@ from lexbuild.vectors import (
     fingerprint,
     load_representation,
 )
+from tests.tiny_models import build_tiny_bert
 
 torch = pytest.importorskip("torch")
 transformers = pytest.importorskip("transformers")
 
-_VOCABULARY_TEXT = (
-    "le la les un une des de du à au et il elle ils on nous vous je tu se en y que qui "
-    "ne pas plus très dans sur pour par avec sans chat chien maison pomme livre lettre "
-    "train ville enfant mère père ami table porte eau pain école travail jardin journal "
-    "manger prendre donner porter voir aller venir faire dire lire écrire ouvrir fermer "
-    "boire partir arriver mange prend donne porte voit va vient fait dit lit écrit ouvre"
-)
-_WORDS = _VOCABULARY_TEXT.split()
-
-
-def _tiny_bert(folder: Path, layers: int = 4) -> Path:
-    """A random 4-layer BERT (hidden 32) with a WordPiece vocabulary of our own."""
-    from transformers import BertConfig, BertModel, BertTokenizerFast
-
-    folder.mkdir(parents=True, exist_ok=True)
-    letters = list("abcdefghijklmnopqrstuvwxyzàâçéèêëîïôûùü'.,;:!?«»-")
-    vocab = ["[PAD]", "[UNK]", "[CLS]", "[SEP]", "[MASK]", *letters]
-    vocab += [f"##{c}" for c in letters] + _WORDS
-    vocab_file = folder / "vocab.txt"
-    vocab_file.write_text("\n".join(dict.fromkeys(vocab)) + "\n", encoding="utf-8")
-    # transformers 5 names the vocabulary argument ``vocab``; 4.x named it ``vocab_file``.
-    import inspect
-
-    name = (
-        "vocab"
-        if "vocab" in inspect.signature(BertTokenizerFast.__init__).parameters
-        else ("vocab_file")
-    )
-    tokenizer = BertTokenizerFast(
-        **{name: str(vocab_file)}, do_lower_case=True, strip_accents=False
-    )
-    assert tokenizer.vocab_size > 100  # the vocabulary was really read
-    config = BertConfig(
-        vocab_size=tokenizer.vocab_size,
-        hidden_size=32,
-        num_hidden_layers=layers,
-        num_attention_heads=2,
-        intermediate_size=64,
-        max_position_embeddings=128,
-    )
-    model = BertModel(config)
-    # Weights drawn like BERT's initialiser (normal, sd 0.02), reproducibly.
-    weights = np.random.default_rng(0)
-    with torch.no_grad():
-        for parameter in model.parameters():
-            values = weights.normal(0.0, 0.02, tuple(parameter.shape)).astype(np.float32)
-            parameter.copy_(torch.from_numpy(values))
-    model.save_pretrained(folder)
-    tokenizer.save_pretrained(folder)
-    return folder
-
-
 @pytest.fixture(scope="module")
 def tiny_model(tmp_path_factory: pytest.TempPathFactory) -> Path:
-    return _tiny_bert(tmp_path_factory.mktemp("tiny-bert"))
+    return build_tiny_bert(tmp_path_factory.mktemp("tiny-bert"))
 
 
 @pytest.fixture(scope="module")
