@@ -292,6 +292,19 @@ def test_labels_missing_form_raises_or_skips(tmp_path: Path) -> None:
 # ----------------------------------------------------------------- against a real parser
 
 
+def _tagged_right(
+    sentences: list[Sentence], labels: dict[tuple[str, int], str], rows: list[GoldRow]
+) -> int:
+    """How many gold verbs the parser tagged VERB with the gold lemma."""
+    words = {(s.id, t.id): t for s in sentences for t in s.tokens}
+    lemma_of = {row.sense: row.lemma for row in rows}
+    return sum(
+        1
+        for key, sense in labels.items()
+        if words[key].upos == "VERB" and words[key].lemma == lemma_of[sense]
+    )
+
+
 def test_small_spacy_model_tags_the_gold_verbs(rows: list[GoldRow]) -> None:
     # External reference: spaCy's fr_core_news_sm 3.8 pipeline (explosion/spacy-models), one
     # line at a time. At least 98% of the gold forms must come out as VERB with the gold
@@ -315,12 +328,7 @@ def test_small_spacy_model_tags_the_gold_verbs(rows: list[GoldRow]) -> None:
                 sentences.append(Sentence(f"{path.stem}.{number}", span.text, tokens))
     labels = gold_labels_for(sentences, rows)
     assert len(labels) == len(rows)  # every gold row found its word
-    words = {(s.id, t.id): t for s in sentences for t in s.tokens}
-    lemma_of = {row.sense: row.lemma for row in rows}
-    right = sum(
-        1 for key, sense in labels.items()
-        if words[key].upos == "VERB" and words[key].lemma == lemma_of[sense]
-    )
+    right = _tagged_right(sentences, labels, rows)
     assert right / len(rows) >= 0.98, f"{right}/{len(rows)}"
 
 
@@ -358,12 +366,7 @@ def test_labels_through_the_raw_text_parser(tmp_path: Path, rows: list[GoldRow])
     ]
     labels = gold_labels_for(sentences, rows)
     assert {key[0] for key in labels} == {f"{row.stem}.{row.line}" for row in rows}
-    words = {(s.id, t.id): t for s in sentences for t in s.tokens}
-    lemma_of = {row.sense: row.lemma for row in rows}
-    right = sum(
-        1 for key, sense in labels.items()
-        if words[key].upos == "VERB" and words[key].lemma == lemma_of[sense]
-    )
+    right = _tagged_right(sentences, labels, rows)
     assert right / len(rows) >= 0.98, f"{right}/{len(rows)}"
 
 
