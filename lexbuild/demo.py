@@ -91,7 +91,8 @@ def run_demo(
         write_induction,
     )
     from lexbuild.merge import merge_induction
-    from lexbuild.occurrences import iter_occurrences
+    from lexbuild.model import Status
+    from lexbuild.occurrences import extract_occurrences, profile_for
     from lexbuild.release import release
     from lexbuild.sources import load_lexicon, write_meta
     from lexbuild.textparse import parse_texts
@@ -119,7 +120,13 @@ def run_demo(
     sentences = list(read_sentences(conllu))
     gold_rows = read_gold()
     lemmas = sorted({row.lemma for row in gold_rows})
-    occurrences = [occ for occ in iter_occurrences(conllu) if occ.lemma in lemmas]
+    french = profile_for("fr")
+    occurrences = [
+        occ
+        for sentence in sentences  # already read: no second pass over the file
+        for occ in extract_occurrences(sentence, french)
+        if occ.lemma in lemmas
+    ]
     settings = InductionSettings(threshold=DEFAULT_THRESHOLD if threshold is None else threshold)
     with VectorCache(root / "vector-cache.sqlite") as cache:
         result = induce(
@@ -140,21 +147,21 @@ def run_demo(
     merge = merge_induction(induced, sources)
 
     # 6. Edition 2, one day after edition 1.
-    meta = load_lexicon(sources).lexicon.meta
-    meta = meta.model_copy(
-        update={"edition": 2, "release_date": meta.release_date + dt.timedelta(days=1)}
+    merged = load_lexicon(sources).lexicon
+    meta = merged.meta.model_copy(
+        update={"edition": 2, "release_date": merged.meta.release_date + dt.timedelta(days=1)}
     )
     write_meta(sources, meta)
     second = release(
         sources, edition=2, output=editions, date=meta.release_date, schemas_dir=schemas_dir
     )
+    # The published files, read back from disk as any user would check them.
     problems = sum(
         len(validate_file(path, schemas_dir=schemas_dir))
         for path in sorted(second.folder.glob("*.xml"))
     )
-    merged = load_lexicon(sources).lexicon
     senses_per_verb = {
-        entry.lemma: sum(1 for s in entry.senses if s.status.value != "retired")
+        entry.lemma: sum(1 for s in entry.senses if s.status is not Status.RETIRED)
         for entry in merged.entries
         if entry.lemma in lemmas
     }
