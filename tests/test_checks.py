@@ -92,13 +92,18 @@ def test_sample_lexicon_is_clean(sample_lexicon_dir: Path) -> None:
     assert findings == [], [str(f) for f in findings]
 
 
-def test_json_report_round_trips() -> None:
-    root = FIXTURES
-    loaded = load_lexicon(root, problems=[])
-    document = json.loads(findings_json(check_lexicon(loaded)))
-    assert document["errors"] == sum(
-        1 for f in document["findings"] if f["severity"] == Severity.ERROR.value
-    )
+def test_codes_say_their_severity_and_json_keeps_every_field() -> None:
+    # Codes are grouped as documented in lexbuild.checks: E... errors, W... warnings.
+    for code, rule in RULES.items():
+        assert rule.severity is (Severity.ERROR if code.startswith("E") else Severity.WARNING)
+    problems: list[SourceError] = []
+    loaded = load_lexicon(FIXTURES, problems=problems)  # every fixture at once
+    findings = load_problem_findings(problems) + check_lexicon(loaded)
+    document = json.loads(findings_json(findings))
+    assert document["findings"] == [finding.as_dict() for finding in findings]
+    assert document["errors"] == sum(1 for f in findings if f.code.startswith("E"))
+    assert document["warnings"] == sum(1 for f in findings if f.code.startswith("W"))
+    assert {f["code"] for f in document["findings"]} == set(RULES) | {"E000"}
 
 
 def _lxml_accepts(char: str) -> bool:

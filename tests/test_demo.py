@@ -19,6 +19,7 @@ def test_demo_runs_offline_and_is_reproducible(
     assert main(["demo", "--output", str(output), "--schemas", str(schemas_dir)]) == 0
     summary = capsys.readouterr().out
     assert "validation problems in the released edition: 0" in summary
+    assert sorted(p.name for p in (output / "editions").iterdir()) == ["edition-1", "edition-2"]
     edition = output / "editions" / "edition-2"
     first = {path.name: path.read_bytes() for path in sorted(edition.iterdir())}
     assert set(first) == {"changelog.md", "lexicon.lmf.xml", "lexicon.tei.xml", "manifest.json"}

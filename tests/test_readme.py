@@ -35,3 +35,32 @@ def test_frame_examples_parse() -> None:
     for line in frames_block.strip().splitlines():
         pattern = re.split(r"\s{2,}", line.strip())[0]
         assert parse_frame(pattern)
+
+
+def test_step_by_step_commands_parse() -> None:
+    # Every command of the README's walk-through is accepted by the real argument parser.
+    parser = build_parser()
+    walkthrough = next(b for b in _blocks() if "lexbuild release" in b)
+    commands = [line.split("#")[0].split() for line in walkthrough.strip().splitlines()]
+    assert len(commands) >= 6
+    for words in commands:
+        assert words[0] == "lexbuild"
+        args = parser.parse_args(words[1:])
+        assert args.handler is not None
+
+
+def test_identifier_example_is_what_the_mapping_gives() -> None:
+    from lexbuild.ids import id_to_lemma, lemma_to_id
+
+    lemma, identifier = re.search(r"\(`([^`]+)` -> `([^`]+)`\)", README).groups()
+    assert lemma_to_id(lemma) == identifier
+    assert id_to_lemma(identifier) == lemma
+
+
+def test_demo_figures_are_those_of_the_shipped_corpus() -> None:
+    from lexbuild.demo_corpus import corpus_files, read_gold, read_lines
+
+    sentences = int(re.search(r"\((\d+) French sentences of our own", README).group(1))
+    verbs = int(re.search(r"induces the senses of (\d+) verbs", README).group(1))
+    assert sentences == sum(len(read_lines(path)) for path in corpus_files())
+    assert verbs == len({row.lemma for row in read_gold()})
