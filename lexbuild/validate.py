@@ -404,14 +404,6 @@ def _default_workers() -> int:
     return max(1, min(4, os.cpu_count() or 1))
 
 
-def _line_offsets(data: bytes, lines: Sequence[int]) -> list[int]:
-    """Byte offset of the start of each 1-based line number in ``lines``."""
-    import numpy as np
-
-    newlines = np.flatnonzero(np.frombuffer(data, dtype=np.uint8) == 0x0A)
-    return [0 if line <= 1 else int(newlines[line - 2]) + 1 for line in lines]
-
-
 def _tei_parts(
     data: bytes, tree: etree._ElementTree, parts: int
 ) -> list[tuple[bytes, int, int]] | None:
