@@ -327,6 +327,25 @@ def test_relaxng_in_parts_finds_the_same_problems(
     assert jouer.line == xml_line(broken, b'<entry xml:id="jouer"')
 
 
+def test_parts_are_cut_at_the_right_lines_past_line_65535(
+    loaded: LoadedLexicon, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # libxml2's sourceline drifts by one past line 65535; the split must not rely on it.
+    copies = []
+    for number in range(60):
+        for entry in loaded.lexicon.entries:
+            text = entry.model_dump_json().replace(f'"{entry.id}', f'"{entry.id}-{number}')
+            copies.append(type(entry).model_validate_json(text))
+    big = to_tei(loaded.lexicon.model_copy(update={"entries": copies}))
+    assert big.count(b"\n") > 70_000
+    monkeypatch.setattr(validate_module, "MIN_ENTRIES_PER_PART", 100)
+    parts = validate_module._tei_parts(big, parse_untrusted(big), 4)
+    assert parts is not None and len(parts) == 4
+    for document, shift, first_line in parts:
+        first_id = document[document.index(b"<entry xml:id=", len(b"<TEI")) :].split(b'"')[1]
+        assert shift + first_line == xml_line(big, b'<entry xml:id="' + first_id + b'"')
+
+
 def test_install_schemas_fills_the_user_cache_with_verified_copies(
     tmp_path: Path, schemas_dir: Path, monkeypatch: pytest.MonkeyPatch
 ) -> None:
