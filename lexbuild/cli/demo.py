@@ -7,7 +7,7 @@ import sys
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from lexbuild.cli.common import EXIT_FINDINGS, EXIT_OK
+from lexbuild.cli.common import EXIT_FINDINGS, EXIT_OK, add_schemas_option
 
 if TYPE_CHECKING:
     from lexbuild.demo import DemoSummary
@@ -23,7 +23,7 @@ def register(subparsers: Any) -> None:
         "gold sense labels. Nothing is downloaded.",
     )
     demo.add_argument("--output", type=Path, default=Path("demo-output"), help="work folder")
-    demo.add_argument("--schemas", type=Path, default=None, help="published schema folder")
+    add_schemas_option(demo)
     demo.add_argument("--threshold", type=float, default=None, help="clustering distance cut")
     demo.set_defaults(handler=run)
 

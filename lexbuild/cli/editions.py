@@ -8,7 +8,7 @@ import sys
 from pathlib import Path
 from typing import Any
 
-from lexbuild.cli.common import EXIT_FINDINGS, EXIT_OK
+from lexbuild.cli.common import EXIT_FINDINGS, EXIT_OK, add_schemas_option
 
 __all__ = ["register"]
 
@@ -81,8 +81,7 @@ def register(subparsers: Any) -> None:
                          help="folder holding the editions")
     release.add_argument("--date", type=_date, metavar="YYYY-MM-DD",
                          help="release date (default: release_date of lexicon.yaml)")
-    release.add_argument("--schemas", type=Path, metavar="DIR",
-                         help="folder of the published schemas")
+    add_schemas_option(release)
     release.set_defaults(handler=run_release)
 
     diff = subparsers.add_parser(

@@ -12,7 +12,7 @@ import sys
 from pathlib import Path
 from typing import Any
 
-from lexbuild.cli.common import EXIT_FINDINGS, EXIT_OK
+from lexbuild.cli.common import EXIT_FINDINGS, EXIT_OK, add_schemas_option
 
 
 def register(subparsers: Any) -> None:
@@ -27,13 +27,7 @@ def register(subparsers: Any) -> None:
     export.add_argument("sources", type=Path, help="folder holding lexicon.yaml and entries/")
     export.add_argument("--format", choices=("tei", "lmf"), required=True)
     export.add_argument("--output", type=Path, required=True, help="file to write")
-    export.add_argument(
-        "--schemas",
-        type=Path,
-        default=None,
-        help="folder with the published schema files (default: $LEXBUILD_SCHEMAS, else the "
-        "per-user cache)",
-    )
+    add_schemas_option(export)
     export.add_argument(
         "--change",
         action="append",
@@ -63,7 +57,7 @@ def register(subparsers: Any) -> None:
         "valid, 1 when a problem was found, 2 on a usage or I/O error.",
     )
     validate.add_argument("files", type=Path, nargs="+", metavar="FILE")
-    validate.add_argument("--schemas", type=Path, default=None, help="published schemas folder")
+    add_schemas_option(validate)
     validate.add_argument(
         "--sources", type=Path, default=None, help="the sources folder the files come from"
     )
