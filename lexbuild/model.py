@@ -18,6 +18,7 @@ separated by one space. ``parse_frame`` reads it back; ``format_frame`` writes i
 from __future__ import annotations
 
 import datetime as dt
+import functools
 import re
 from enum import StrEnum
 from typing import Annotated, Any
@@ -168,6 +169,9 @@ _SLOT_RE = re.compile(
 )
 
 
+# A dictionary repeats a few hundred patterns over thousands of frames; slots are frozen, so
+# the parsed tuples can be shared (errors are not cached: they are raised again).
+@functools.lru_cache(maxsize=4096)
 def parse_frame(text: str) -> tuple[Slot, ...]:
     """Read a canonical frame string back into slots; raises ``FrameSyntaxError``."""
     if text == EMPTY_FRAME:
