@@ -1,11 +1,11 @@
 """Corpus stage benchmarks, each ratio measured against its reference in the same run.
 
-1. Reader: MB/s of lexbuild.conllu.iter_sentences and of the ``conllu`` package's
+1. Reader: MB/s of lexbuild.corpus.conllu.iter_sentences and of the ``conllu`` package's
    ``parse_incr`` (github.com/EmilStenstrom/conllu) over the same UD files; ratio.
 2. Occurrences + frames (iter_occurrences -> count_frames) over all the UD files, then over
    them concatenated ``--repeat`` times (default 10): seconds, occurrences/s and peak resident
    memory of a fresh process each; streaming means the peak stays flat.
-3. spaCy parsing (lexbuild.textparse.parse_texts, default pipeline, ``nlp.pipe`` with the
+3. spaCy parsing (lexbuild.corpus.textparse.parse_texts, default pipeline, ``nlp.pipe`` with the
    components a parse does not need left out): sentences/s with 1 and 2 workers on the
    ``# text`` lines of a UD file. The 2-worker figure includes starting the worker processes.
 
@@ -26,8 +26,8 @@ DEFAULT_UD = Path(__file__).resolve().parents[2] / "shared/corpora/ud"
 
 _CHILD = r"""
 import json, resource, sys, time
-from lexbuild.occurrences import iter_occurrences
-from lexbuild.valency import count_frames
+from lexbuild.corpus.occurrences import iter_occurrences
+from lexbuild.corpus.valency import count_frames
 started = time.perf_counter()
 seen = 0
 def counted(stream):
@@ -46,7 +46,7 @@ print(json.dumps({"seconds": seconds, "occurrences": seen, "lemmas": len(table),
 def bench_reader(files: list[Path]) -> None:
     import conllu
 
-    from lexbuild.conllu import iter_sentences
+    from lexbuild.corpus.conllu import iter_sentences
 
     size_mb = sum(f.stat().st_size for f in files) / 1e6
     started = time.perf_counter()
@@ -60,7 +60,7 @@ def bench_reader(files: list[Path]) -> None:
     theirs_s = time.perf_counter() - started
     assert ours == theirs, (ours, theirs)
     print(f"reader: {len(files)} files, {size_mb:.1f} MB, {ours} sentences")
-    print(f"  lexbuild.conllu   {size_mb / ours_s:7.1f} MB/s  ({ours_s:.2f} s)")
+    print(f"  lexbuild.corpus.conllu   {size_mb / ours_s:7.1f} MB/s  ({ours_s:.2f} s)")
     print(f"  conllu.parse_incr {size_mb / theirs_s:7.1f} MB/s  ({theirs_s:.2f} s)")
     print(f"  ratio             {theirs_s / ours_s:7.2f}x faster")
 
@@ -97,8 +97,8 @@ def bench_frames(files: list[Path], repeat: int) -> None:
 
 
 def bench_parse(gold: Path) -> None:
-    from lexbuild.conllu import iter_sentences
-    from lexbuild.textparse import load_pipeline, parse_texts
+    from lexbuild.corpus.conllu import iter_sentences
+    from lexbuild.corpus.textparse import load_pipeline, parse_texts
 
     texts = [s.text for s in iter_sentences(gold)]
     with tempfile.TemporaryDirectory() as folder:

@@ -23,8 +23,8 @@ from typing import TypeVar
 from bench_lexicon import synthetic_entry  # the same synthetic entries (run from benchmarks/)
 from lxml import etree
 
-from lexbuild import ids
-from lexbuild.model import Entry, Frame, Lexicon, LexiconMeta, SourceRef, Status
+from lexbuild.lexicon import ids
+from lexbuild.lexicon.model import Entry, Frame, Lexicon, LexiconMeta, SourceRef, Status
 
 T = TypeVar("T")
 ADDED_FRAME = "subj:NP"
@@ -81,8 +81,8 @@ def timed(label: str, figures: dict[str, float], action: Callable[[], T]) -> T:
 
 
 def main() -> None:
-    from lexbuild.diff import diff_lexicons, diff_paths, to_html, to_json, to_markdown
-    from lexbuild.tei import read_tei, to_tei
+    from lexbuild.editions.diff import diff_lexicons, diff_paths, to_html, to_json, to_markdown
+    from lexbuild.formats.tei import read_tei, to_tei
 
     parser = argparse.ArgumentParser()
     parser.add_argument("--entries", type=int, default=10_000)

@@ -16,8 +16,17 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import TypeVar
 
-from lexbuild import ids
-from lexbuild.model import Corpus, Entry, Example, Frame, LexiconMeta, Sense, SourceRef, Status
+from lexbuild.lexicon import ids
+from lexbuild.lexicon.model import (
+    Corpus,
+    Entry,
+    Example,
+    Frame,
+    LexiconMeta,
+    Sense,
+    SourceRef,
+    Status,
+)
 
 T = TypeVar("T")
 PATTERNS = (
@@ -73,7 +82,8 @@ def timed(label: str, figures: dict[str, float], action: Callable[[], T]) -> T:
 
 
 def main() -> None:
-    from lexbuild import checks, lmf, sources, tei, validate
+    from lexbuild.formats import lmf, tei, validate
+    from lexbuild.lexicon import checks, sources
 
     parser = argparse.ArgumentParser()
     parser.add_argument("--entries", type=int, default=10_000)

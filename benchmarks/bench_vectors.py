@@ -24,10 +24,10 @@ from pathlib import Path
 import numpy as np
 from sklearn.metrics import adjusted_rand_score
 
-from lexbuild.clustering import SenseClusterer
-from lexbuild.induce import InductionSettings, induce
-from lexbuild.occurrences import Occurrence, iter_occurrences
-from lexbuild.vectors import (
+from lexbuild.corpus.occurrences import Occurrence, iter_occurrences
+from lexbuild.senses.clustering import SenseClusterer
+from lexbuild.senses.induce import InductionSettings, induce
+from lexbuild.senses.vectors import (
     Representation,
     StaticSyntacticVectors,
     TransformerEncoder,

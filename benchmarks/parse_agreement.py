@@ -1,13 +1,13 @@
 """How well raw-text parsing agrees with gold trees on verb argument structure.
 
 Parses the ``# text`` line of every sentence of a gold CoNLL-U file (default: UD French GSD
-``fr_gsd-ud-test.conllu``) with a spaCy pipeline through lexbuild.textparse (labels mapped to
+``fr_gsd-ud-test.conllu``) with a spaCy pipeline through lexbuild.corpus.textparse (labels mapped to
 UD), then compares, verb by verb, the verbs' dependents with the gold tree's:
 
 * **relations**: (verb position, relation, marker) for the dependents whose relation is an
   argument or oblique relation (nsubj*, csubj*, obj*, iobj*, obl*, ccomp, xcomp, expl*), the
   marker being the lemmas of the dependent's case/mark children (with their fixed parts);
-* **slots**: (verb position, slot) for the slots lexbuild.occurrences extracts (what frames
+* **slots**: (verb position, slot) for the slots lexbuild.corpus.occurrences extracts (what frames
   are counted from), unexpressed subjects left out.
 
 A verb's position is its first character in the sentence text, so a verb the parser misses
@@ -27,9 +27,9 @@ import time
 from collections import Counter
 from pathlib import Path
 
-from lexbuild.conllu import Sentence, iter_sentences
-from lexbuild.occurrences import extract_occurrences, profile_for
-from lexbuild.textparse import DEFAULT_PIPELINE, doc_to_conllu, load_pipeline
+from lexbuild.corpus.conllu import Sentence, iter_sentences
+from lexbuild.corpus.occurrences import extract_occurrences, profile_for
+from lexbuild.corpus.textparse import DEFAULT_PIPELINE, doc_to_conllu, load_pipeline
 
 DEFAULT_GOLD = Path(__file__).resolve().parents[2] / "shared/corpora/ud/fr_gsd-ud-test.conllu"
 ARGUMENT_BASES = {"nsubj", "csubj", "obj", "iobj", "obl", "ccomp", "xcomp", "expl"}

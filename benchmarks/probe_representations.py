@@ -20,9 +20,9 @@ from typing import Any
 
 import numpy as np
 
-from lexbuild.calibrate import calibrate
-from lexbuild.occurrences import iter_occurrences
-from lexbuild.vectors import Representation, StaticSyntacticVectors, TransformerEncoder
+from lexbuild.corpus.occurrences import iter_occurrences
+from lexbuild.senses.calibrate import calibrate
+from lexbuild.senses.vectors import Representation, StaticSyntacticVectors, TransformerEncoder
 
 UD = Path(__file__).resolve().parent.parent.parent / "shared" / "corpora" / "ud"
 

@@ -3,8 +3,8 @@
 from __future__ import annotations
 
 from lexbuild.errors import LexbuildError, SourceLocation
-from lexbuild.ids import entry_id, id_to_lemma, is_ncname, lemma_to_id
-from lexbuild.model import (
+from lexbuild.lexicon.ids import entry_id, id_to_lemma, is_ncname, lemma_to_id
+from lexbuild.lexicon.model import (
     Entry,
     Example,
     Frame,

@@ -25,9 +25,9 @@ from typing import TYPE_CHECKING
 from lexbuild.errors import LexbuildError
 
 if TYPE_CHECKING:
-    from lexbuild.evaluation import EvaluationReport
-    from lexbuild.merge import MergeReport
-    from lexbuild.release import ReleaseResult
+    from lexbuild.editions.merge import MergeReport
+    from lexbuild.editions.release import ReleaseResult
+    from lexbuild.senses.evaluation import EvaluationReport
 
 __all__ = ["CORPUS_ID", "DemoSummary", "run_demo", "sample_lexicon_dir"]
 
@@ -80,24 +80,24 @@ def run_demo(
     threshold: float | None = None,
 ) -> DemoSummary:
     """Run the main job on the demo corpus; returns what happened (prints nothing)."""
-    from lexbuild.conllu import read_sentences
+    from lexbuild.corpus.conllu import read_sentences
+    from lexbuild.corpus.occurrences import extract_occurrences, profile_for
+    from lexbuild.corpus.textparse import parse_texts
     from lexbuild.demo_corpus import corpus_files, gold_labels_for, read_gold
-    from lexbuild.evaluation import evaluate
-    from lexbuild.induce import (
+    from lexbuild.editions.merge import merge_induction
+    from lexbuild.editions.release import release
+    from lexbuild.formats.validate import validate_file
+    from lexbuild.lexicon.model import Status
+    from lexbuild.lexicon.sources import load_lexicon, write_meta
+    from lexbuild.senses.evaluation import evaluate
+    from lexbuild.senses.induce import (
         DEFAULT_THRESHOLD,
         InductionSettings,
         induce,
         read_assignments,
         write_induction,
     )
-    from lexbuild.merge import merge_induction
-    from lexbuild.model import Status
-    from lexbuild.occurrences import extract_occurrences, profile_for
-    from lexbuild.release import release
-    from lexbuild.sources import load_lexicon, write_meta
-    from lexbuild.textparse import parse_texts
-    from lexbuild.validate import validate_file
-    from lexbuild.vectors import StaticSyntacticVectors, VectorCache
+    from lexbuild.senses.vectors import StaticSyntacticVectors, VectorCache
 
     root = Path(output)
     root.mkdir(parents=True, exist_ok=True)

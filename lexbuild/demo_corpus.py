@@ -32,7 +32,7 @@ from importlib.resources import files
 from pathlib import Path
 from typing import Literal
 
-from lexbuild.conllu import Sentence, Token
+from lexbuild.corpus.conllu import Sentence, Token
 from lexbuild.errors import CorpusError, SourceLocation
 
 __all__ = [
@@ -203,7 +203,7 @@ def gold_labels_for(
     """Map (sent_id, word id) of parsed sentences to gold senses (see the module docstring).
 
     ``sentences`` come from parsing the corpus files of ``corpus`` (default: the shipped
-    demo) with ids ``<file stem>.<n>``; the keys are those of :mod:`lexbuild.evaluation`. A
+    demo) with ids ``<file stem>.<n>``; the keys are those of :mod:`lexbuild.senses.evaluation`. A
     row whose form is not found among the words raises :class:`CorpusError` (or is left out
     with ``on_missing="skip"``).
     """

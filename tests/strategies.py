@@ -3,7 +3,7 @@
 Text is deliberately hostile: accents, apostrophes (ASCII and typographic), right-to-left
 scripts and bidi controls, emoji beyond the Basic Multilingual Plane, ``<``, ``&``, ``>`` and
 quotes, tabs and newlines. Only characters XML 1.0 forbids (and the C1 controls the checks
-refuse) are left out. Ids follow ``lexbuild.ids``; every sense has frames and examples, verb
+refuse) are left out. Ids follow ``lexbuild.lexicon.ids``; every sense has frames and examples, verb
 spans cover the lemma, PP slots have a marker, approved senses have a gloss.
 
     from tests.strategies import lexicons
@@ -18,8 +18,8 @@ import unicodedata
 
 from hypothesis import strategies as st
 
-from lexbuild import ids
-from lexbuild.model import (
+from lexbuild.lexicon import ids
+from lexbuild.lexicon.model import (
     NEEDS_MARKER,
     ArgumentSpan,
     Corpus,

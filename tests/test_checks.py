@@ -10,7 +10,10 @@ from pathlib import Path
 import pytest
 from lxml import etree
 
-from lexbuild.checks import (
+from lexbuild.cli import main
+from lexbuild.errors import SourceError
+from lexbuild.formats.xmlsafe import forbidden_character
+from lexbuild.lexicon.checks import (
     RULES,
     Severity,
     check_lexicon,
@@ -18,10 +21,7 @@ from lexbuild.checks import (
     load_problem_findings,
     looks_like_form,
 )
-from lexbuild.cli import main
-from lexbuild.errors import SourceError
-from lexbuild.sources import load_lexicon
-from lexbuild.xmlsafe import forbidden_character
+from lexbuild.lexicon.sources import load_lexicon
 
 FIXTURES = Path(__file__).parent / "fixtures" / "checks"
 MARK = re.compile(r"#\s*<-\s*(?P<code>[EW]\d{3})")
@@ -93,7 +93,7 @@ def test_sample_lexicon_is_clean(sample_lexicon_dir: Path) -> None:
 
 
 def test_codes_say_their_severity_and_json_keeps_every_field() -> None:
-    # Codes are grouped as documented in lexbuild.checks: E... errors, W... warnings.
+    # Codes are grouped as documented in lexbuild.lexicon.checks: E... errors, W... warnings.
     for code, rule in RULES.items():
         assert rule.severity is (Severity.ERROR if code.startswith("E") else Severity.WARNING)
     problems: list[SourceError] = []

@@ -12,9 +12,9 @@ import conllu as reference
 import pytest
 
 from lexbuild.cli import main
-from lexbuild.model import format_frame, parse_frame
-from lexbuild.occurrences import iter_occurrences
-from lexbuild.valency import FrameThresholds, count_frames
+from lexbuild.corpus.occurrences import iter_occurrences
+from lexbuild.corpus.valency import FrameThresholds, count_frames
+from lexbuild.lexicon.model import format_frame, parse_frame
 
 FIXTURES = Path(__file__).parent / "fixtures" / "corpus"
 LEMMAS = ["donner", "agir", "permettre", "penser", "dire"]

@@ -9,9 +9,9 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from lexbuild import ids, sources
 from lexbuild.cli import main
-from lexbuild.model import Entry, Example, Frame, Induction, Sense, SourceRef
+from lexbuild.lexicon import ids, sources
+from lexbuild.lexicon.model import Entry, Example, Frame, Induction, Sense, SourceRef
 
 FIXTURES = Path(__file__).parent / "fixtures" / "editions"
 OLD, NEW = FIXTURES / "old", FIXTURES / "new"

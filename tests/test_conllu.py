@@ -13,7 +13,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from lexbuild.conllu import (
+from lexbuild.corpus.conllu import (
     Sentence,
     Token,
     format_sentence,

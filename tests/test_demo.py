@@ -7,8 +7,8 @@ from pathlib import Path
 import pytest
 
 from lexbuild.cli import main
-from lexbuild.sources import load_lexicon
-from lexbuild.validate import validate_file
+from lexbuild.formats.validate import validate_file
+from lexbuild.lexicon.sources import load_lexicon
 
 
 @pytest.mark.slow

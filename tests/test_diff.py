@@ -1,4 +1,4 @@
-"""Comparing editions (lexbuild.diff) on a hand-made pair covering every change kind.
+"""Comparing editions (lexbuild.editions.diff) on a hand-made pair covering every change kind.
 
 Fixtures in tests/fixtures/editions: ``old/`` and ``new/`` are two sources folders written by
 hand so that each change kind of ``diff.KINDS`` appears; ``expected_diff.json`` is the exact
@@ -15,7 +15,7 @@ from pathlib import Path
 
 import pytest
 
-from lexbuild.diff import (
+from lexbuild.editions.diff import (
     KINDS,
     diff_lexicons,
     diff_paths,
@@ -27,8 +27,8 @@ from lexbuild.diff import (
     to_markdown,
 )
 from lexbuild.errors import SourceError, UnsafeXMLError
-from lexbuild.sources import load_lexicon
-from lexbuild.tei import read_tei, to_tei
+from lexbuild.formats.tei import read_tei, to_tei
+from lexbuild.lexicon.sources import load_lexicon
 
 FIXTURES = Path(__file__).parent / "fixtures" / "editions"
 OLD, NEW = FIXTURES / "old", FIXTURES / "new"

@@ -13,7 +13,7 @@ from sklearn.metrics import adjusted_rand_score, v_measure_score
 from sklearn.metrics.cluster import pair_confusion_matrix
 
 from lexbuild.errors import CorpusError, InductionError
-from lexbuild.evaluation import (
+from lexbuild.senses.evaluation import (
     adjusted_rand,
     bcubed,
     evaluate,

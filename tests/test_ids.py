@@ -10,7 +10,14 @@ from hypothesis import strategies as st
 from lxml import etree
 
 from lexbuild.errors import IdentifierError
-from lexbuild.ids import entry_id, id_to_lemma, is_ncname, lemma_to_id, next_free_id, sense_id
+from lexbuild.lexicon.ids import (
+    entry_id,
+    id_to_lemma,
+    is_ncname,
+    lemma_to_id,
+    next_free_id,
+    sense_id,
+)
 
 
 @pytest.mark.parametrize(

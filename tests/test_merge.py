@@ -1,4 +1,4 @@
-"""Merging induction results into curated sources (lexbuild.merge).
+"""Merging induction results into curated sources (lexbuild.editions.merge).
 
 Induction folders are built here directly in the documented format (entries via
 ``sources.dump_entry``, ``numpy.savez`` centroids, ``assignments.tsv``), so these tests do not
@@ -26,10 +26,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from lexbuild import ids, sources
-from lexbuild.clustering import SenseClusterer
-from lexbuild.errors import SourceError
-from lexbuild.merge import (
+from lexbuild.editions.merge import (
     CENTROIDS_FILE,
     InducedFolder,
     MergeSettings,
@@ -40,7 +37,9 @@ from lexbuild.merge import (
     read_induction,
     write_centroids,
 )
-from lexbuild.model import (
+from lexbuild.errors import SourceError
+from lexbuild.lexicon import ids, sources
+from lexbuild.lexicon.model import (
     Entry,
     Example,
     Frame,
@@ -51,6 +50,7 @@ from lexbuild.model import (
     SourceRef,
     Status,
 )
+from lexbuild.senses.clustering import SenseClusterer
 
 PROJECT = Path(__file__).resolve().parent.parent
 CORPUS = "brevenn"
@@ -480,7 +480,7 @@ def _run_merge(induced: Path, src: Path, pause: str | None) -> subprocess.Popen[
     if pause is not None:
         env["LEXBUILD_MERGE_PAUSE"] = pause
     code = (
-        "import sys; from lexbuild.merge import merge_induction; "
+        "import sys; from lexbuild.editions.merge import merge_induction; "
         "merge_induction(sys.argv[1], sys.argv[2])"
     )
     return subprocess.Popen(
@@ -656,9 +656,9 @@ def test_edits_made_after_a_merge_survive_the_next(
 
 
 def test_reads_what_the_induction_stage_writes(tmp_path: Path) -> None:
-    """Format compatibility with the real writer, lexbuild.induce.write_induction."""
-    from lexbuild.induce import Assignment, InductionSettings, write_induction
-    from lexbuild.induce import InductionResult as Written
+    """Format compatibility with the real writer, lexbuild.senses.induce.write_induction."""
+    from lexbuild.senses.induce import Assignment, InductionSettings, write_induction
+    from lexbuild.senses.induce import InductionResult as Written
 
     sid = "hisser.s1"
     entry = Entry(id="hisser", lemma="hisser", senses=[Sense(
@@ -701,7 +701,7 @@ def test_fallback_swap_and_recovery(
     tmp_path: Path, monkeypatch: pytest.MonkeyPatch, sample_lexicon_dir: Path
 ) -> None:
     """Where renameat2 is missing: two renames, and a crash between them is undone."""
-    import lexbuild.merge as merge_module
+    import lexbuild.editions.merge as merge_module
 
     monkeypatch.setattr(merge_module, "_exchange", lambda a, b: False)
     induced = build_induction(tmp_path / "ind", "r", {"hisser": [InducedSense(["h.1"])]})

@@ -8,7 +8,7 @@ from hypothesis import strategies as st
 from pydantic import ValidationError
 
 from lexbuild.errors import FrameSyntaxError
-from lexbuild.model import (
+from lexbuild.lexicon.model import (
     Entry,
     Frame,
     Function,

@@ -13,15 +13,15 @@ from pathlib import Path
 import conllu as reference
 import pytest
 
-from lexbuild.conllu import iter_sentences
-from lexbuild.errors import CorpusError
-from lexbuild.model import Function, Realisation, parse_frame, slot_sort_key
-from lexbuild.occurrences import (
+from lexbuild.corpus.conllu import iter_sentences
+from lexbuild.corpus.occurrences import (
     Occurrence,
     extract_occurrences,
     iter_occurrences,
     profile_for,
 )
+from lexbuild.errors import CorpusError
+from lexbuild.lexicon.model import Function, Realisation, parse_frame, slot_sort_key
 
 FIXTURES = Path(__file__).parent / "fixtures" / "corpus"
 SLOTS_FR = FIXTURES / "slots_fr.conllu"

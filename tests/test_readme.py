@@ -7,7 +7,7 @@ import re
 from conftest import PROJECT_ROOT
 
 from lexbuild.cli import build_parser
-from lexbuild.model import parse_frame
+from lexbuild.lexicon.model import parse_frame
 
 README = (PROJECT_ROOT / "README.md").read_text(encoding="utf-8")
 
@@ -50,7 +50,7 @@ def test_step_by_step_commands_parse() -> None:
 
 
 def test_identifier_example_is_what_the_mapping_gives() -> None:
-    from lexbuild.ids import id_to_lemma, lemma_to_id
+    from lexbuild.lexicon.ids import id_to_lemma, lemma_to_id
 
     lemma, identifier = re.search(r"\(`([^`]+)` -> `([^`]+)`\)", README).groups()
     assert lemma_to_id(lemma) == identifier

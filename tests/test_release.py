@@ -1,8 +1,8 @@
-"""Releasing numbered editions (lexbuild.release).
+"""Releasing numbered editions (lexbuild.editions.release).
 
 The artefacts are validated here with lxml directly against the published schemas in
 ../shared/schemas (TEILex0.rng from DARIAH-ERIC/lexicalresources, the TEI Lex-0 RELAX NG schema;
-DTD_LMF_REV_16.dtd, the ISO 24613:2008 LMF DTD), independently of lexbuild.validate.
+DTD_LMF_REV_16.dtd, the ISO 24613:2008 LMF DTD), independently of lexbuild.formats.validate.
 """
 
 from __future__ import annotations
@@ -16,10 +16,7 @@ from pathlib import Path
 import pytest
 from lxml import etree
 
-from lexbuild import sources
-from lexbuild.errors import ReleaseError
-from lexbuild.model import Induction
-from lexbuild.release import (
+from lexbuild.editions.release import (
     CHANGELOG_FILE,
     LMF_FILE,
     MANIFEST_FILE,
@@ -28,6 +25,9 @@ from lexbuild.release import (
     list_editions,
     release,
 )
+from lexbuild.errors import ReleaseError
+from lexbuild.lexicon import sources
+from lexbuild.lexicon.model import Induction
 
 FIXTURES = Path(__file__).parent / "fixtures" / "editions"
 OLD, NEW = FIXTURES / "old", FIXTURES / "new"

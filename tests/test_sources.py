@@ -12,8 +12,8 @@ from ruamel.yaml import YAML
 
 from lexbuild.cli import main
 from lexbuild.errors import SourceError
-from lexbuild.model import Status
-from lexbuild.sources import (
+from lexbuild.lexicon.model import Status
+from lexbuild.lexicon.sources import (
     ENTRY_SCHEMA_FILE,
     LEXICON_SCHEMA_FILE,
     entry_json_schema,
@@ -185,7 +185,7 @@ def test_parallel_loading_gives_the_same_lexicon(
     sample_lexicon_dir: Path, monkeypatch: pytest.MonkeyPatch
 ) -> None:
     serial = load_lexicon(sample_lexicon_dir)
-    monkeypatch.setattr("lexbuild.sources.PARALLEL_FILES", 2)
+    monkeypatch.setattr("lexbuild.lexicon.sources.PARALLEL_FILES", 2)
     parallel = load_lexicon(sample_lexicon_dir)
     assert parallel.lexicon == serial.lexicon
     assert parallel.source_map.locate_id("tenir.s2.x1") == serial.source_map.locate_id(
@@ -206,7 +206,7 @@ TRICKY_SCALARS = [
 def test_fast_loader_reads_what_ruamel_reads(scalar: str) -> None:
     # Reference: ruamel.yaml's round-trip loader (YAML 1.2). The fast libyaml path must give
     # the same Python values, or the same entries would load differently by path.
-    from lexbuild.sources import _fast_load, _plain, _yaml
+    from lexbuild.lexicon.sources import _fast_load, _plain, _yaml
 
     text = f"value: {scalar}\n"
     expected = _plain(_yaml().load(text))
@@ -219,7 +219,7 @@ def test_fast_loader_reads_what_ruamel_reads(scalar: str) -> None:
 
 
 def test_fast_loader_agrees_on_every_shipped_yaml_file(sample_lexicon_dir: Path) -> None:
-    from lexbuild.sources import _fast_load, _plain, _yaml
+    from lexbuild.lexicon.sources import _fast_load, _plain, _yaml
 
     files = [
         *sorted(sample_lexicon_dir.rglob("*.yaml")),

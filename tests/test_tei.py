@@ -1,7 +1,7 @@
 """TEI Lex-0 export and read-back.
 
 Every schema check compiles the published files itself, as the encoding study
-(../shared/encoding/NOTES.md) prescribes, so that a bug in lexbuild.validate cannot hide an
+(../shared/encoding/NOTES.md) prescribes, so that a bug in lexbuild.formats.validate cannot hide an
 invalid export.
 """
 
@@ -16,7 +16,8 @@ from hypothesis import HealthCheck, given, settings
 from lxml import etree, isoschematron
 
 from lexbuild.errors import SourceError, UnsafeXMLError
-from lexbuild.model import (
+from lexbuild.formats.tei import TEI_NS, TEIError, read_tei, to_tei
+from lexbuild.lexicon.model import (
     ArgumentSpan,
     Entry,
     Example,
@@ -27,8 +28,7 @@ from lexbuild.model import (
     SourceRef,
     Status,
 )
-from lexbuild.sources import load_lexicon
-from lexbuild.tei import TEI_NS, TEIError, read_tei, to_tei
+from lexbuild.lexicon.sources import load_lexicon
 from tests.strategies import lexicons
 
 NS = {"t": TEI_NS}

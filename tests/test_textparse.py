@@ -10,10 +10,10 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from lexbuild.conllu import read_sentences
+from lexbuild.corpus.conllu import read_sentences
+from lexbuild.corpus.occurrences import iter_occurrences
+from lexbuild.corpus.textparse import load_pipeline, parse_texts, ud_relations
 from lexbuild.errors import CorpusError, ModelLoadError
-from lexbuild.occurrences import iter_occurrences
-from lexbuild.textparse import load_pipeline, parse_texts, ud_relations
 
 if TYPE_CHECKING:
     from spacy.language import Language

@@ -8,9 +8,15 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from lexbuild.model import Frame, parse_frame
-from lexbuild.occurrences import Argument, Occurrence, iter_occurrences
-from lexbuild.valency import FrameCount, FrameThresholds, count_frames, frames_for, match_frame
+from lexbuild.corpus.occurrences import Argument, Occurrence, iter_occurrences
+from lexbuild.corpus.valency import (
+    FrameCount,
+    FrameThresholds,
+    count_frames,
+    frames_for,
+    match_frame,
+)
+from lexbuild.lexicon.model import Frame, parse_frame
 
 
 def _occurrence(lemma: str, pattern: str, number: int) -> Occurrence:

@@ -11,21 +11,21 @@ from pathlib import Path
 import pytest
 from lxml import etree
 
-from lexbuild import schemastore
-from lexbuild import validate as validate_module
 from lexbuild.errors import SchemaError, ValidationFailed
-from lexbuild.lmf import is_lmf, to_lmf
-from lexbuild.model import ExtraSchema
-from lexbuild.sources import LoadedLexicon, load_lexicon
-from lexbuild.tei import is_tei, to_tei
-from lexbuild.validate import (
+from lexbuild.formats import schemastore
+from lexbuild.formats import validate as validate_module
+from lexbuild.formats.lmf import is_lmf, to_lmf
+from lexbuild.formats.tei import is_tei, to_tei
+from lexbuild.formats.validate import (
     XmlFinding,
     detect_format,
     findings_json,
     validate_bytes,
     validate_file,
 )
-from lexbuild.xmlsafe import parse_untrusted
+from lexbuild.formats.xmlsafe import parse_untrusted
+from lexbuild.lexicon.model import ExtraSchema
+from lexbuild.lexicon.sources import LoadedLexicon, load_lexicon
 
 FIXTURES = Path(__file__).parent / "fixtures" / "xml"
 

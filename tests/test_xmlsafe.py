@@ -10,7 +10,7 @@ from hypothesis import strategies as st
 from lxml import etree
 
 from lexbuild.errors import UnsafeXMLError
-from lexbuild.xmlsafe import (
+from lexbuild.formats.xmlsafe import (
     XmlWriter,
     escape_attribute,
     escape_text,

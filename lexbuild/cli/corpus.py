@@ -9,8 +9,8 @@ from collections.abc import Iterable, Iterator, Sequence
 from typing import TYPE_CHECKING, TextIO
 
 if TYPE_CHECKING:
-    from lexbuild.occurrences import Occurrence
-    from lexbuild.valency import FrameCount, FrameThresholds
+    from lexbuild.corpus.occurrences import Occurrence
+    from lexbuild.corpus.valency import FrameCount, FrameThresholds
 
 __all__ = ["register"]
 
@@ -97,9 +97,9 @@ def _with_progress(
 
 def run_frames(args: argparse.Namespace) -> int:
     from lexbuild._atomic import atomic_write_text
+    from lexbuild.corpus.occurrences import iter_occurrences
+    from lexbuild.corpus.valency import FrameThresholds, count_frames
     from lexbuild.errors import CorpusError
-    from lexbuild.occurrences import iter_occurrences
-    from lexbuild.valency import FrameThresholds, count_frames
 
     if args.min_count < 1 or not 0.0 <= args.min_share <= 1.0:
         raise CorpusError(

@@ -104,7 +104,7 @@ def register(subparsers: Any) -> None:
 
 def run_merge(args: argparse.Namespace) -> int:
     from lexbuild._atomic import atomic_write_text
-    from lexbuild.merge import MergeSettings, merge_induction
+    from lexbuild.editions.merge import MergeSettings, merge_induction
 
     report = merge_induction(
         args.induced,
@@ -121,7 +121,7 @@ def run_merge(args: argparse.Namespace) -> int:
 
 
 def run_release(args: argparse.Namespace) -> int:
-    from lexbuild.release import ReleaseRefused, release
+    from lexbuild.editions.release import ReleaseRefused, release
 
     try:
         result = release(
@@ -146,7 +146,7 @@ def run_release(args: argparse.Namespace) -> int:
 
 def run_diff(args: argparse.Namespace) -> int:
     from lexbuild._atomic import atomic_write_text
-    from lexbuild.diff import diff_paths, render
+    from lexbuild.editions.diff import diff_paths, render
 
     result = diff_paths(args.old, args.new, tolerance=args.tolerance)
     text = render(result, args.format)

@@ -18,8 +18,8 @@ __all__ = ["register"]
 
 
 def _read_gold(path: str) -> dict[tuple[str, int], str]:
-    from lexbuild.conllu import resolve_paths
-    from lexbuild.evaluation import read_gold_conllu, read_gold_tsv
+    from lexbuild.corpus.conllu import resolve_paths
+    from lexbuild.senses.evaluation import read_gold_conllu, read_gold_tsv
 
     gold = Path(path)
     if gold.is_file() and gold.suffix.lower() in (".tsv", ".txt", ".csv"):
@@ -33,8 +33,8 @@ def _read_gold(path: str) -> dict[tuple[str, int], str]:
 def run_evaluate(args: argparse.Namespace) -> int:
     from lexbuild._atomic import atomic_write_text
     from lexbuild.errors import InductionError
-    from lexbuild.evaluation import evaluate, report_json, report_markdown
-    from lexbuild.induce import read_assignments
+    from lexbuild.senses.evaluation import evaluate, report_json, report_markdown
+    from lexbuild.senses.induce import read_assignments
 
     assignments = read_assignments(args.induced)
     gold = _read_gold(args.gold)
@@ -60,10 +60,10 @@ def run_evaluate(args: argparse.Namespace) -> int:
 def run_calibrate(args: argparse.Namespace) -> int:
     from tqdm import tqdm
 
-    from lexbuild.calibrate import DEFAULT_THRESHOLDS, calibrate, write_calibration
-    from lexbuild.conllu import resolve_paths
+    from lexbuild.corpus.conllu import resolve_paths
+    from lexbuild.corpus.occurrences import iter_occurrences
     from lexbuild.errors import InductionError
-    from lexbuild.occurrences import iter_occurrences
+    from lexbuild.senses.calibrate import DEFAULT_THRESHOLDS, calibrate, write_calibration
 
     files = resolve_paths(args.corpus)
     if not files:

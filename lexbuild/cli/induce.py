@@ -57,7 +57,7 @@ def add_representation_options(parser: argparse.ArgumentParser) -> None:
 
 def representation_from_args(args: argparse.Namespace) -> Any:
     from lexbuild.errors import InductionError
-    from lexbuild.vectors import load_representation
+    from lexbuild.senses.vectors import load_representation
 
     if args.representation == "transformer":
         try:
@@ -79,7 +79,7 @@ def representation_from_args(args: argparse.Namespace) -> Any:
 
 
 def open_cache(args: argparse.Namespace) -> Any:
-    from lexbuild.vectors import VectorCache
+    from lexbuild.senses.vectors import VectorCache
 
     if args.no_cache:
         return None
@@ -92,9 +92,9 @@ def open_cache(args: argparse.Namespace) -> Any:
 
 def _threshold(args: argparse.Namespace, representation: Any, occurrences: list[Any]) -> float:
     """--threshold, else a calibration's recommendation, else a calibration run on the corpus."""
-    from lexbuild.calibrate import calibrate, read_calibration
     from lexbuild.errors import InductionError
-    from lexbuild.induce import DEFAULT_THRESHOLD
+    from lexbuild.senses.calibrate import calibrate, read_calibration
+    from lexbuild.senses.induce import DEFAULT_THRESHOLD
 
     if args.threshold is not None:
         return float(args.threshold)
@@ -133,10 +133,10 @@ def update_bar(bar: Any, n: int) -> None:
 def run_induce(args: argparse.Namespace) -> int:
     from tqdm import tqdm
 
-    from lexbuild.conllu import resolve_paths
+    from lexbuild.corpus.conllu import resolve_paths
+    from lexbuild.corpus.occurrences import iter_occurrences
     from lexbuild.errors import InductionError
-    from lexbuild.induce import InductionSettings, induce, write_induction
-    from lexbuild.occurrences import iter_occurrences
+    from lexbuild.senses.induce import InductionSettings, induce, write_induction
 
     files = resolve_paths(args.corpus)
     if not files:

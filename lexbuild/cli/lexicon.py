@@ -48,7 +48,8 @@ def register(subparsers: Any) -> None:
 
 
 def run_check(args: argparse.Namespace) -> int:
-    from lexbuild.checks import (
+    from lexbuild.errors import SourceError
+    from lexbuild.lexicon.checks import (
         RULES,
         Severity,
         check_lexicon,
@@ -56,8 +57,7 @@ def run_check(args: argparse.Namespace) -> int:
         findings_text,
         load_problem_findings,
     )
-    from lexbuild.errors import SourceError
-    from lexbuild.sources import load_lexicon
+    from lexbuild.lexicon.sources import load_lexicon
 
     if args.list_rules:
         for rule in RULES.values():
@@ -77,7 +77,7 @@ def run_check(args: argparse.Namespace) -> int:
 
 
 def run_schema(args: argparse.Namespace) -> int:
-    from lexbuild.sources import write_schemas
+    from lexbuild.lexicon.sources import write_schemas
 
     for path in write_schemas(args.output):
         print(path)

@@ -40,8 +40,8 @@ def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) ->
 
 
 def run_parse(args: argparse.Namespace) -> int:
+    from lexbuild.corpus.textparse import DEFAULT_PIPELINE, parse_texts
     from lexbuild.errors import CorpusError
-    from lexbuild.textparse import DEFAULT_PIPELINE, parse_texts
 
     if args.workers < 1:
         raise CorpusError(f"--workers must be at least 1, got {args.workers}")

@@ -67,11 +67,16 @@ def register(subparsers: Any) -> None:
 
 def run_export(args: argparse.Namespace) -> int:
     from lexbuild._atomic import atomic_write_bytes
-    from lexbuild.checks import check_lexicon, findings_text, has_errors, load_problem_findings
     from lexbuild.errors import SourceError
-    from lexbuild.sources import load_lexicon
-    from lexbuild.validate import findings_text as xml_findings_text
-    from lexbuild.validate import validate_bytes
+    from lexbuild.formats.validate import findings_text as xml_findings_text
+    from lexbuild.formats.validate import validate_bytes
+    from lexbuild.lexicon.checks import (
+        check_lexicon,
+        findings_text,
+        has_errors,
+        load_problem_findings,
+    )
+    from lexbuild.lexicon.sources import load_lexicon
 
     problems: list[SourceError] = []
     loaded = load_lexicon(args.sources, problems=problems)
@@ -83,11 +88,11 @@ def run_export(args: argparse.Namespace) -> int:
         return EXIT_FINDINGS
     lexicon = loaded.lexicon
     if args.format == "tei":
-        from lexbuild.tei import to_tei
+        from lexbuild.formats.tei import to_tei
 
         data = to_tei(lexicon, changes=args.change)
     else:
-        from lexbuild.lmf import to_lmf
+        from lexbuild.formats.lmf import to_lmf
 
         data = to_lmf(lexicon)
     problems_found = validate_bytes(
@@ -108,13 +113,13 @@ def run_export(args: argparse.Namespace) -> int:
 
 
 def run_validate(args: argparse.Namespace) -> int:
-    from lexbuild.validate import XmlFinding, findings_json, findings_text, validate_file
+    from lexbuild.formats.validate import XmlFinding, findings_json, findings_text, validate_file
 
     source_map = None
     extra_schemas: list[Any] = []
     base_dir = None
     if args.sources is not None:
-        from lexbuild.sources import load_lexicon
+        from lexbuild.lexicon.sources import load_lexicon
 
         loaded = load_lexicon(args.sources)
         source_map = loaded.source_map
@@ -137,7 +142,7 @@ def run_validate(args: argparse.Namespace) -> int:
 
 
 def run_install_schemas(args: argparse.Namespace) -> int:
-    from lexbuild.schemastore import install_schemas
+    from lexbuild.formats.schemastore import install_schemas
 
     print(install_schemas(args.folder, args.target))
     return EXIT_OK

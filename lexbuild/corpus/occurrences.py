@@ -26,9 +26,9 @@ from dataclasses import dataclass, field
 from functools import lru_cache
 from pathlib import Path
 
-from lexbuild.conllu import OnError, Sentence, Token, iter_sentences
+from lexbuild.corpus.conllu import OnError, Sentence, Token, iter_sentences
 from lexbuild.errors import CorpusError
-from lexbuild.model import Function, Realisation, Slot, format_frame, slot_sort_key
+from lexbuild.lexicon.model import Function, Realisation, Slot, format_frame, slot_sort_key
 
 __all__ = [
     "Argument",

@@ -2,7 +2,7 @@
 
 Each rule is a pure function from the typed lexicon to problems (entry id, field path, message);
 ``check_lexicon`` turns them into findings located at ``file:line:column`` through the
-``SourceMap`` kept by :mod:`lexbuild.sources`. Codes are grouped by hundreds:
+``SourceMap`` kept by :mod:`lexbuild.lexicon.sources`. Codes are grouped by hundreds:
 
 * ``E1xx`` structure (frames, examples, identifiers), ``E2xx`` text, ``E3xx`` editorial;
 * ``W4xx`` warnings: likely mistakes that do not block an export.
@@ -23,9 +23,9 @@ from enum import StrEnum
 from typing import Any
 
 from lexbuild.errors import SourceError, SourceLocation
-from lexbuild.model import NEEDS_MARKER, Entry, Lexicon, Sense, Status
-from lexbuild.sources import FieldPath, LoadedLexicon, format_path, id_paths
-from lexbuild.xmlsafe import forbidden_characters
+from lexbuild.formats.xmlsafe import forbidden_characters
+from lexbuild.lexicon.model import NEEDS_MARKER, Entry, Lexicon, Sense, Status
+from lexbuild.lexicon.sources import FieldPath, LoadedLexicon, format_path, id_paths
 
 __all__ = [
     "RULES",
@@ -156,7 +156,8 @@ def _sense_without_example(lexicon: Lexicon) -> Iterator[Problem]:
     "E104",
     "duplicate-id",
     Severity.ERROR,
-    "give each entry, sense, frame and example its own id (lexbuild.ids.next_free_id finds one)",
+    "give each entry, sense, frame and example its own id"
+    " (lexbuild.lexicon.ids.next_free_id finds one)",
 )
 def _duplicate_id(lexicon: Lexicon) -> Iterator[Problem]:
     first_seen: dict[str, str] = {}

@@ -42,8 +42,16 @@ from typing import Any
 from lxml import etree
 
 from lexbuild.errors import ExportError, LexbuildError, SourceError
-from lexbuild.ids import DocumentIds
-from lexbuild.model import (
+from lexbuild.formats.xmlsafe import (
+    XmlWriter,
+    describe_forbidden,
+    escape_text,
+    forbidden_character,
+    inline,
+    parse_untrusted,
+)
+from lexbuild.lexicon.ids import DocumentIds
+from lexbuild.lexicon.model import (
     ArgumentSpan,
     Corpus,
     Editor,
@@ -57,14 +65,6 @@ from lexbuild.model import (
     Sense,
     SourceRef,
     Status,
-)
-from lexbuild.xmlsafe import (
-    XmlWriter,
-    describe_forbidden,
-    escape_text,
-    forbidden_character,
-    inline,
-    parse_untrusted,
 )
 
 __all__ = ["SUPPORTED_VERSIONS", "TEI_NS", "TEIError", "is_tei", "read_tei", "to_tei"]
@@ -119,7 +119,7 @@ class TEIError(ExportError):
 
 def is_tei(data: bytes) -> bool:
     """True when the root element of ``data`` is a TEI element."""
-    from lexbuild.validate import detect_format
+    from lexbuild.formats.validate import detect_format
 
     try:
         return detect_format(data) == "tei"

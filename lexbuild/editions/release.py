@@ -6,8 +6,8 @@
 2. export TEI Lex-0 and LMF and validate both against the published schemas (plus the project's
    ``extra_schemas``): any problem stops the release;
 3. compare with the previous edition in ``DIR`` (the highest number below N, read back from its
-   TEI file) with ``lexbuild.diff``: the change log goes to ``changelog.md`` and, as summary and
-   change lines, into the TEI header's ``revisionDesc``;
+   TEI file) with ``lexbuild.editions.diff``: the change log goes to ``changelog.md`` and, as
+   summary and change lines, into the TEI header's ``revisionDesc``;
 4. write ``manifest.json``: sha256 and size of every artefact, counts, tool version, checksums of
    the published schemas, and the induction settings and model identifiers recorded in the
    sources' senses.
@@ -30,7 +30,7 @@ from pathlib import Path
 from typing import Any
 
 from lexbuild._atomic import replace_dir_atomically, staging_dir
-from lexbuild.diff import (
+from lexbuild.editions.diff import (
     LexiconDiff,
     change_lines,
     count_items,
@@ -38,9 +38,9 @@ from lexbuild.diff import (
     summary_lines,
     tei_snapshot,
 )
-from lexbuild.diff import to_markdown as diff_markdown
+from lexbuild.editions.diff import to_markdown as diff_markdown
 from lexbuild.errors import ReleaseError
-from lexbuild.model import Lexicon
+from lexbuild.lexicon.model import Lexicon
 
 __all__ = [
     "CHANGELOG_FILE",
@@ -157,13 +157,13 @@ def release(
 ) -> ReleaseResult:
     """Check, export, validate and publish ``output/edition-<edition>``; see the module doc."""
     from lexbuild import __version__
-    from lexbuild.checks import Severity, check_lexicon, has_errors
-    from lexbuild.lmf import to_lmf
-    from lexbuild.schemastore import checksums
-    from lexbuild.sources import load_lexicon
-    from lexbuild.tei import SUPPORTED_VERSIONS as TEI_VERSIONS
-    from lexbuild.tei import to_tei
-    from lexbuild.validate import validate_bytes
+    from lexbuild.formats.lmf import to_lmf
+    from lexbuild.formats.schemastore import checksums
+    from lexbuild.formats.tei import SUPPORTED_VERSIONS as TEI_VERSIONS
+    from lexbuild.formats.tei import to_tei
+    from lexbuild.formats.validate import validate_bytes
+    from lexbuild.lexicon.checks import Severity, check_lexicon, has_errors
+    from lexbuild.lexicon.sources import load_lexicon
 
     if edition < 1:
         raise ReleaseError(f"edition numbers start at 1, got {edition}")

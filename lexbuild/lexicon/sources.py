@@ -29,7 +29,7 @@ from ruamel.yaml.error import MarkedYAMLError, YAMLError
 
 from lexbuild._atomic import atomic_write_text
 from lexbuild.errors import SourceError, SourceLocation
-from lexbuild.model import Entry, Lexicon, LexiconMeta
+from lexbuild.lexicon.model import Entry, Lexicon, LexiconMeta
 
 __all__ = [
     "ENTRIES_DIR",

@@ -27,11 +27,11 @@ from typing import Any
 import numpy as np
 
 from lexbuild._atomic import atomic_write_bytes, atomic_write_text
-from lexbuild.clustering import SenseClusterer
+from lexbuild.corpus.occurrences import Argument, Occurrence
 from lexbuild.errors import InductionError
-from lexbuild.evaluation import evaluate_verb
-from lexbuild.occurrences import Argument, Occurrence
-from lexbuild.vectors import CacheStats, Representation, VectorCache, encode_cached
+from lexbuild.senses.clustering import SenseClusterer
+from lexbuild.senses.evaluation import evaluate_verb
+from lexbuild.senses.vectors import CacheStats, Representation, VectorCache, encode_cached
 
 __all__ = [
     "DEFAULT_THRESHOLDS",

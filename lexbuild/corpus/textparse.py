@@ -64,7 +64,8 @@ Agreement with gold trees (``benchmarks/parse_agreement.py``, measured once, 202
     .398/.500/.443, obl:mod .474/.371/.416, xcomp .658/.670/.664, ccomp .622/.479/.541,
     iobj .487/.594/.535, expl:pv (mapped) .558/.828/.667, expl:subj .556/.517/.536. The
     argument/adjunct split of prepositional phrases (obl:arg vs obl:mod) is the weak point:
-    frames from raw text need the thresholds of lexbuild.valency more than treebank frames do.
+    frames from raw text need the thresholds of lexbuild.corpus.valency more than treebank
+    frames do.
 """
 
 from __future__ import annotations
@@ -79,7 +80,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import IO, TYPE_CHECKING, Any
 
-from lexbuild.conllu import resolve_paths
+from lexbuild.corpus.conllu import resolve_paths
 from lexbuild.errors import CorpusError, ModelLoadError, SourceLocation
 
 if TYPE_CHECKING:

@@ -34,7 +34,7 @@ from pydantic import (
 )
 
 from lexbuild.errors import FrameSyntaxError
-from lexbuild.ids import is_ncname
+from lexbuild.lexicon.ids import is_ncname
 
 __all__ = [
     "ArgumentSpan",
@@ -98,7 +98,8 @@ def _check_ncname(value: str) -> str:
     if not is_ncname(value):
         raise ValueError(
             f"{value!r} is not an XML NCName: use letters, digits, '-', '_' or '.', and do not "
-            "start with a digit, '-' or '.' (lexbuild.ids.lemma_to_id makes one from a lemma)"
+            "start with a digit, '-' or '.' (lexbuild.lexicon.ids.lemma_to_id makes one from a"
+            " lemma)"
         )
     return value
 

@@ -1,7 +1,7 @@
 """Bring an induction result into the curated YAML sources without losing an editor's work.
 
 Inputs: an induction folder (``induction.json``, ``entries/*.yaml``, ``centroids.npz``,
-``assignments.tsv``; see ``lexbuild.induce``) and a sources folder.
+``assignments.tsv``; see ``lexbuild.senses.induce``) and a sources folder.
 
 Matching. For each induced verb, the induced senses are matched one-to-one to the existing
 senses of the entries with the same lemma and part of speech, by the Hungarian method
@@ -70,11 +70,20 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
-from lexbuild import ids
 from lexbuild._atomic import atomic_write_bytes, staging_dir
 from lexbuild.errors import MergeError, SourceError, SourceLocation
-from lexbuild.model import Corpus, Entry, Example, Frame, Lexicon, LexiconMeta, Sense, Status
-from lexbuild.sources import load_entry
+from lexbuild.lexicon import ids
+from lexbuild.lexicon.model import (
+    Corpus,
+    Entry,
+    Example,
+    Frame,
+    Lexicon,
+    LexiconMeta,
+    Sense,
+    Status,
+)
+from lexbuild.lexicon.sources import load_entry
 
 __all__ = [
     "CENTROIDS_FILE",
@@ -838,7 +847,7 @@ def _merge_lock(root: Path) -> Iterator[None]:
 def _merge_locked(
     induced: str | Path, root: Path, settings: MergeSettings, dry_run: bool
 ) -> MergeReport:
-    from lexbuild.sources import META_FILE, load_lexicon, write_entry, write_meta
+    from lexbuild.lexicon.sources import META_FILE, load_lexicon, write_entry, write_meta
 
     loaded = load_lexicon(root)
     result = read_induction(induced)

@@ -6,11 +6,11 @@
   frames and slots), and the extra schemas a lexicon's metadata lists (XSD through
   ``xmlschema``, RelaxNG, Schematron).
 
-The published files come from :mod:`lexbuild.schemastore` (checksums verified). Documents are
-parsed from bytes with :func:`lexbuild.xmlsafe.parse_untrusted`, so duplicate ids are caught
-(lxml only sees them when parsing, never on a tree built in memory). Every finding names the
-line in the XML, the nearest ancestor carrying an id, and, given the ``SourceMap`` of the YAML
-sources, the file and line of that id in the sources.
+The published files come from :mod:`lexbuild.formats.schemastore` (checksums verified).
+Documents are parsed from bytes with :func:`lexbuild.formats.xmlsafe.parse_untrusted`, so
+duplicate ids are caught (lxml only sees them when parsing, never on a tree built in memory).
+Every finding names the line in the XML, the nearest ancestor carrying an id, and, given the
+``SourceMap`` of the YAML sources, the file and line of that id in the sources.
 """
 
 from __future__ import annotations
@@ -29,9 +29,9 @@ from typing import Any, Literal, Protocol
 from lxml import etree, isoschematron
 
 from lexbuild.errors import SchemaError, SourceLocation, UnsafeXMLError, ValidationFailed
-from lexbuild.model import ExtraSchema
-from lexbuild.schemastore import LMF_DTD, TEI_RNG, TEI_SCH, SchemaSet, load_schemas
-from lexbuild.xmlsafe import DEFAULT_MAX_BYTES, parse_untrusted, safe_parser
+from lexbuild.formats.schemastore import LMF_DTD, TEI_RNG, TEI_SCH, SchemaSet, load_schemas
+from lexbuild.formats.xmlsafe import DEFAULT_MAX_BYTES, parse_untrusted, safe_parser
+from lexbuild.lexicon.model import ExtraSchema
 
 __all__ = [
     "XmlFinding",
@@ -52,7 +52,7 @@ _DUPLICATE_ID = re.compile(r"ID (\S+) already defined")
 _LOCAL_NAME = re.compile(r"\*\[local-name\(\)='([^']+)' and namespace-uri\(\)='[^']*'\]")
 
 
-class _Locator(Protocol):  # what a SourceMap offers (lexbuild.sources.SourceMap)
+class _Locator(Protocol):  # what a SourceMap offers (lexbuild.lexicon.sources.SourceMap)
     def locate_id(self, identifier: str) -> SourceLocation | None: ...
 
     def meta_location(self, path: tuple[str | int, ...] = ()) -> SourceLocation: ...

@@ -35,9 +35,9 @@ from typing import Any, Protocol, runtime_checkable
 import numpy as np
 import numpy.typing as npt
 
+from lexbuild.corpus.occurrences import Occurrence
 from lexbuild.errors import InductionError, ModelLoadError
-from lexbuild.model import Function
-from lexbuild.occurrences import Occurrence
+from lexbuild.lexicon.model import Function
 
 __all__ = [
     "CacheStats",

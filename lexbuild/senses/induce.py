@@ -37,10 +37,11 @@ import numpy.typing as npt
 
 from lexbuild import __version__
 from lexbuild._atomic import atomic_write_bytes, atomic_write_text, staging_dir
-from lexbuild.clustering import SenseClusterer, assign_to_centroids
+from lexbuild.corpus.occurrences import Occurrence
+from lexbuild.corpus.valency import FrameThresholds, frames_for, match_frame
 from lexbuild.errors import InductionError, SourceLocation
-from lexbuild.ids import entry_id, example_id, sense_id
-from lexbuild.model import (
+from lexbuild.lexicon.ids import entry_id, example_id, sense_id
+from lexbuild.lexicon.model import (
     ArgumentSpan,
     Entry,
     Example,
@@ -50,10 +51,15 @@ from lexbuild.model import (
     SourceRef,
     Status,
 )
-from lexbuild.occurrences import Occurrence
-from lexbuild.sources import ENTRIES_DIR, dump_entry
-from lexbuild.valency import FrameThresholds, frames_for, match_frame
-from lexbuild.vectors import CacheStats, Representation, VectorCache, encode_cached, fingerprint
+from lexbuild.lexicon.sources import ENTRIES_DIR, dump_entry
+from lexbuild.senses.clustering import SenseClusterer, assign_to_centroids
+from lexbuild.senses.vectors import (
+    CacheStats,
+    Representation,
+    VectorCache,
+    encode_cached,
+    fingerprint,
+)
 
 __all__ = [
     "ASSIGNMENTS_HEADER",

@@ -7,9 +7,9 @@ list of ``Change`` records plus summary counts. Both sides are first reduced to 
 ``diff_paths(old, new)`` takes a sources folder (``lexicon.yaml`` + ``entries/``), a released
 edition folder (the one ``*.tei.xml`` file in it) or a TEI file. TEI is parsed safely by
 ``xmlsafe.parse_untrusted`` (no entity expansion, no DTD, no network, size limit) and read by
-``tei_snapshot``, which takes the same values as ``lexbuild.tei.read_tei`` without building the
-typed model (several times faster on large editions, see benchmarks/bench_diff.py; the tests
-check that both agree);
+``tei_snapshot``, which takes the same values as ``lexbuild.formats.tei.read_tei`` without
+building the typed model (several times faster on large editions, see benchmarks/bench_diff.py;
+the tests check that both agree);
 ``load_for_diff`` gives the full typed model through ``read_tei``. When one side is TEI and the
 other a sources folder, the sources go through the same export first, so that only what TEI keeps
 is compared and the loss of, say, editors' notes does not show up as a change.
@@ -40,7 +40,7 @@ from pathlib import Path
 from typing import Any
 
 from lexbuild.errors import SourceError, SourceLocation
-from lexbuild.model import Example, Lexicon, Sense, Status
+from lexbuild.lexicon.model import Example, Lexicon, Sense, Status
 
 __all__ = [
     "FORMATS",
@@ -349,11 +349,11 @@ def tei_snapshot(source: str | Path | bytes) -> Snapshot:
     """The compared view of one of our TEI Lex-0 exports, read straight from the XML.
 
     Parsed with ``xmlsafe.parse_untrusted`` (no entities, no DTD, no network, size limit). It
-    reads the same values as ``lexbuild.tei.read_tei`` without building the typed model, in one
-    pass over the elements it needs, which is what makes a diff of two large editions fast;
+    reads the same values as ``lexbuild.formats.tei.read_tei`` without building the typed model,
+    in one pass over the elements it needs, which is what makes a diff of two large editions fast;
     ``tests/test_diff.py`` checks that both readings agree.
     """
-    from lexbuild.xmlsafe import parse_untrusted
+    from lexbuild.formats.xmlsafe import parse_untrusted
 
     name = "<bytes>" if isinstance(source, bytes) else str(source)
     root = parse_untrusted(source).getroot()
@@ -386,7 +386,7 @@ class _TeiWalk:
     """One document-order pass over entries, senses, frames and examples (see tei_snapshot)."""
 
     def __init__(self, name: str) -> None:
-        from lexbuild.tei import STATUS_PREFIX
+        from lexbuild.formats.tei import STATUS_PREFIX
 
         self.name = name
         self.status_prefix = STATUS_PREFIX
@@ -510,7 +510,7 @@ def _edition_tei(folder: Path) -> Path | None:
 
 def _resolve(path: str | Path) -> tuple[Path, bool]:
     """(path to read, is TEI) for a sources folder, an edition folder or a TEI file."""
-    from lexbuild.sources import META_FILE
+    from lexbuild.lexicon.sources import META_FILE
 
     where = Path(path)
     if where.is_dir():
@@ -531,13 +531,13 @@ def _resolve(path: str | Path) -> tuple[Path, bool]:
 
 def load_for_diff(path: str | Path) -> tuple[Lexicon, bool]:
     """Read a sources folder, an edition folder or a TEI file into the typed model; returns
-    (lexicon, from_tei). TEI goes through ``lexbuild.tei.read_tei`` (safe parsing)."""
+    (lexicon, from_tei). TEI goes through ``lexbuild.formats.tei.read_tei`` (safe parsing)."""
     where, is_tei = _resolve(path)
     if not is_tei:
-        from lexbuild.sources import load_lexicon
+        from lexbuild.lexicon.sources import load_lexicon
 
         return load_lexicon(where).lexicon, False
-    from lexbuild.tei import read_tei
+    from lexbuild.formats.tei import read_tei
 
     return read_tei(where), True
 
@@ -555,7 +555,7 @@ def diff_paths(
     When one side is TEI and the other sources, the sources go through the TEI export first, so
     that only what TEI keeps is compared (an editor's note missing from TEI is no change).
     """
-    from lexbuild.sources import load_lexicon
+    from lexbuild.lexicon.sources import load_lexicon
 
     old_path, old_tei = _resolve(old)
     new_path, new_tei = _resolve(new)
@@ -564,7 +564,7 @@ def diff_paths(
             return tei_snapshot(where)
         lexicon = load_lexicon(where).lexicon
         if other_tei:
-            from lexbuild.tei import to_tei
+            from lexbuild.formats.tei import to_tei
 
             return tei_snapshot(to_tei(lexicon))
         return snapshot(lexicon)

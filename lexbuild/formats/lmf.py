@@ -30,9 +30,9 @@ from __future__ import annotations
 from typing import Any
 
 from lexbuild.errors import ExportError, LexbuildError
-from lexbuild.ids import DocumentIds
-from lexbuild.model import Entry, Frame, Function, Lexicon, LexiconMeta, Realisation
-from lexbuild.xmlsafe import XmlWriter, describe_forbidden, forbidden_character
+from lexbuild.formats.xmlsafe import XmlWriter, describe_forbidden, forbidden_character
+from lexbuild.lexicon.ids import DocumentIds
+from lexbuild.lexicon.model import Entry, Frame, Function, Lexicon, LexiconMeta, Realisation
 
 __all__ = ["DTD_FILE", "DTD_VERSION", "SUPPORTED_VERSIONS", "LMFError", "is_lmf", "to_lmf"]
 
@@ -66,7 +66,7 @@ class LMFError(ExportError):
 
 def is_lmf(data: bytes) -> bool:
     """True when the root element of ``data`` is an LMF ``LexicalResource``."""
-    from lexbuild.validate import detect_format
+    from lexbuild.formats.validate import detect_format
 
     try:
         return detect_format(data) == "lmf"

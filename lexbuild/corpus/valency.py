@@ -28,9 +28,9 @@ from collections import Counter
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
 
-from lexbuild.ids import frame_id
-from lexbuild.model import Frame, Slot, format_frame, slot_sort_key
-from lexbuild.occurrences import Occurrence
+from lexbuild.corpus.occurrences import Occurrence
+from lexbuild.lexicon.ids import frame_id
+from lexbuild.lexicon.model import Frame, Slot, format_frame, slot_sort_key
 
 __all__ = [
     "FrameCount",
@@ -51,7 +51,7 @@ class FrameThresholds:
     occurrences, 5 % of the verb's occurrences) are ours: on the UD French treebanks they keep
     the frames tests/test_valency.py expects and drop one-off parser noise. Lower them for
     small corpora, raise ``min_share`` for parsed raw text (its argument/adjunct split is
-    noisier, see lexbuild.textparse). ``Occurrence.adjuncts`` counts what was left out as
+    noisier, see lexbuild.corpus.textparse). ``Occurrence.adjuncts`` counts what was left out as
     adjuncts, to judge the split.
     """
 

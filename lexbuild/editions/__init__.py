@@ -1,0 +1,1 @@
+"""Editions: merging induced senses into the sources, numbered releases, diffs between editions."""

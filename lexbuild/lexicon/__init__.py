@@ -1,0 +1,1 @@
+"""The dictionary itself: typed model, identifiers, YAML sources and consistency checks."""

@@ -1,0 +1,1 @@
+"""Sense induction: occurrence vectors, clustering, senses per verb, evaluation, calibration."""
