@@ -28,11 +28,11 @@ SAMPLE_SIZE = 50
 RANDOM_STATE = 10
 
 
-def verb_tokens(lemma: str) -> list[tuple[str, str, int, str, str]]:
+def verb_tokens(lemma: str, ud_dir: Path = UD) -> list[tuple[str, str, int, str, str]]:
     """Every VERB token of ``lemma`` that is not attached as an auxiliary, in treebank order."""
     found = []
     for name in FILES:
-        with open(UD / name, encoding="utf-8") as fh:
+        with open(ud_dir / name, encoding="utf-8") as fh:
             for sentence in conllu.parse_incr(fh):
                 for tok in sentence:
                     if not isinstance(tok["id"], int):
@@ -52,8 +52,8 @@ def verb_tokens(lemma: str) -> list[tuple[str, str, int, str, str]]:
     return found
 
 
-def select(lemma: str) -> list[tuple[str, str, int, str, str]]:
-    tokens = verb_tokens(lemma)
+def select(lemma: str, ud_dir: Path = UD) -> list[tuple[str, str, int, str, str]]:
+    tokens = verb_tokens(lemma, ud_dir)
     if len(tokens) <= ALL_UP_TO:
         return tokens
     keep = set(random.Random(RANDOM_STATE).sample(range(len(tokens)), SAMPLE_SIZE))
