@@ -233,8 +233,10 @@ def _download(source: str | Path, out: BinaryIO, timeout: float) -> str:
             raise FetchError(f"{source} does not exist in the mirror folder") from error
     request = urllib.request.Request(source, headers={"User-Agent": "lexbuild"})
     try:
-        # urlopen's default opener reads https_proxy / http_proxy / no_proxy from the environment.
-        with urllib.request.urlopen(request, timeout=timeout) as response:
+        # A new opener per download reads https_proxy / http_proxy / no_proxy as they are now
+        # (urlopen's shared opener keeps the variables of its first use).
+        opener = urllib.request.build_opener()
+        with opener.open(request, timeout=timeout) as response:
             length = response.headers.get("Content-Length")
             return _copy_stream(response, out, int(length) if length else None)
     except urllib.error.HTTPError as error:
