@@ -1,4 +1,4 @@
-"""Validation against the published schemas (/work/shared/schemas), extra project schemas, and
+"""Validation against the published schemas (../shared/schemas), extra project schemas, and
 tracing of every problem back to the XML line, the nearest id and the YAML source line."""
 
 from __future__ import annotations
@@ -74,7 +74,7 @@ def test_formats_are_recognised(tei_bytes: bytes, lmf_bytes: bytes) -> None:
 def test_sample_exports_are_valid(
     tei_bytes: bytes, lmf_bytes: bytes, schemas_dir: Path, tmp_path: Path
 ) -> None:
-    # TEI Lex-0 RelaxNG + Schematron and LMF DTD rev. 16, /work/shared/schemas
+    # TEI Lex-0 RelaxNG + Schematron and LMF DTD rev. 16, ../shared/schemas
     assert validate_bytes(tei_bytes, schemas_dir=schemas_dir) == []
     assert validate_bytes(lmf_bytes, schemas_dir=schemas_dir) == []
     path = tmp_path / "sample.tei.xml"
@@ -300,7 +300,7 @@ def test_relaxng_in_parts_finds_the_same_problems(
     tree = parse_untrusted(tei_bytes)
     parts = validate_module._tei_parts(tei_bytes, tree, 3)
     assert parts is not None and len(parts) == 3
-    # Each part is a TEI Lex-0 document of its own (TEILex0.rng, /work/shared/schemas).
+    # Each part is a TEI Lex-0 document of its own (TEILex0.rng, ../shared/schemas).
     rng = etree.RelaxNG(etree.parse(str(schemas_dir / "TEILex0.rng")))
     assert all(rng.validate(etree.fromstring(document)) for document, _, _ in parts)
     broken = tei_bytes
