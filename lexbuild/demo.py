@@ -62,14 +62,16 @@ class DemoSummary:
 
 
 def sample_lexicon_dir() -> Path:
-    """The shipped sample dictionary: next to the package in a checkout."""
-    folder = Path(__file__).resolve().parent.parent / "sample_lexicon"
-    if not (folder / "lexicon.yaml").is_file():
-        raise LexbuildError(
-            f"the sample dictionary is not at {folder}: run the demo from a lexbuild checkout "
-            "or give --sources"
-        )
-    return folder
+    """The shipped sample dictionary: the wheel's copy, else the one beside the package in a
+    checkout (setup.py copies ``sample_lexicon/`` into ``lexbuild/data/`` when building)."""
+    package = Path(__file__).resolve().parent
+    for folder in (package / "data" / "sample_lexicon", package.parent / "sample_lexicon"):
+        if (folder / "lexicon.yaml").is_file():
+            return folder
+    raise LexbuildError(
+        f"the sample dictionary is neither in {package / 'data'} nor beside the package: "
+        "reinstall lexbuild or run the demo from a checkout"
+    )
 
 
 def run_demo(

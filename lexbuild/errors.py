@@ -85,3 +85,7 @@ class ReleaseError(LexbuildError, RuntimeError):
 
 class UnsafeXMLError(LexbuildError, ValueError):
     """An XML file uses entities, DTD tricks or sizes that lexbuild refuses to read."""
+
+
+class FetchError(LexbuildError, OSError):
+    """A pinned external file cannot be fetched, or what arrived is not the published file."""

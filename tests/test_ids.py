@@ -47,8 +47,15 @@ def test_ids_parse_as_xml_ids() -> None:
 
 
 def test_not_ncnames() -> None:
+    # Cross-checked with libxml2 (through lxml), which refuses a non-NCName xml:id while
+    # parsing ("attribute value ... is not an NCName"); the positives are accepted by both.
     for value in ["", "1abc", "a b", "fr:aller", "-x", ".x", "s'en"]:
         assert not is_ncname(value)
+        with pytest.raises(etree.XMLSyntaxError, match="not an NCName"):
+            etree.fromstring(f'<a xml:id="{value}"/>'.encode())
+    for value in ["ok", "a.b", "_x", "s.0027en_aller"]:
+        assert is_ncname(value)
+        etree.fromstring(f'<a xml:id="{value}"/>'.encode())
 
 
 def test_empty_lemma_is_an_error() -> None:

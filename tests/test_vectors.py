@@ -28,8 +28,8 @@ from lexbuild.senses.vectors import (
 )
 from tests.tiny_models import build_tiny_bert
 
-torch = pytest.importorskip("torch")
-transformers = pytest.importorskip("transformers")
+# torch and transformers are imported inside the transformer tests only: the static-vector and
+# cache tests need neither (a missing package fails those tests, it never hides the others).
 
 @pytest.fixture(scope="module")
 def tiny_model(tmp_path_factory: pytest.TempPathFactory) -> Path:
@@ -47,6 +47,7 @@ def fr_occurrences(ud_dir: Path) -> list[Occurrence]:
 
 def _reference_vector(folder: Path, words: list[str], verb: int, layers: list[int]) -> np.ndarray:
     """The verb's vector computed directly with transformers, one sentence, no padding."""
+    import torch
     from transformers import AutoModel, AutoTokenizer
 
     tok = AutoTokenizer.from_pretrained(folder, local_files_only=True)
@@ -161,6 +162,8 @@ def test_placeholder_and_settings(tiny_model: Path) -> None:
 
 
 def test_threads_are_honoured(tiny_model: Path) -> None:
+    import torch
+
     before = torch.get_num_threads()
     try:
         encoder = TransformerEncoder(tiny_model, num_threads=1)

@@ -20,5 +20,5 @@ def add_schemas_option(parser: argparse.ArgumentParser) -> None:
         default=None,
         metavar="DIR",
         help="folder with the published schema files (default: $LEXBUILD_SCHEMAS, else the "
-        "per-user cache filled by install-schemas)",
+        "per-user cache filled by `lexbuild schemas fetch`)",
     )

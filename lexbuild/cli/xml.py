@@ -37,17 +37,6 @@ def register(subparsers: Any) -> None:
     )
     export.set_defaults(handler=run_export)
 
-    install = subparsers.add_parser(
-        "install-schemas",
-        help="copy the published schema files into the per-user cache, checksums verified",
-        description="Copy TEILex0.rng, TEILex0.sch and DTD_LMF_REV_16.dtd from FOLDER into the "
-        "per-user cache that validate and export read when no --schemas or $LEXBUILD_SCHEMAS is "
-        "given. Each file must match the published checksum.",
-    )
-    install.add_argument("folder", type=Path, help="folder holding the official schema files")
-    install.add_argument("--target", type=Path, default=None, help="another folder to fill")
-    install.set_defaults(handler=run_install_schemas)
-
     validate = subparsers.add_parser(
         "validate",
         help="validate TEI Lex-0 or LMF files against the published schemas",
@@ -140,9 +129,3 @@ def run_validate(args: argparse.Namespace) -> int:
         sys.stdout.write(findings_text(findings))
     return EXIT_FINDINGS if findings else EXIT_OK
 
-
-def run_install_schemas(args: argparse.Namespace) -> int:
-    from lexbuild.formats.schemastore import install_schemas
-
-    print(install_schemas(args.folder, args.target))
-    return EXIT_OK

@@ -1,13 +1,13 @@
 """Locating, checking and compiling the published schemas (never vendored in the package).
 
 Search order: an explicit folder (``--schemas DIR``), then ``$LEXBUILD_SCHEMAS``, then the
-per-user cache ``$XDG_CACHE_HOME/lexbuild/schemas`` (``~/.cache`` when unset). Each file is
+per-user cache ``$XDG_CACHE_HOME/lexbuild/schemas`` (``~/.cache`` when unset), which
+``lexbuild schemas fetch`` fills from the pinned URLs of :mod:`lexbuild.external`. Each file is
 pinned by sha256: a copy that differs is not the published schema and is refused.
 """
 
 from __future__ import annotations
 
-import hashlib
 import os
 from dataclasses import dataclass
 from pathlib import Path
@@ -15,38 +15,34 @@ from pathlib import Path
 from lxml import etree, isoschematron
 
 from lexbuild.errors import SchemaError
+from lexbuild.external import FileState, file_state, pinned, sha256_of, user_cache
 
 __all__ = [
+    "FETCH_HINT",
     "PINNED",
     "SOURCES",
     "SchemaSet",
     "checksums",
-    "install_schemas",
     "load_schemas",
+    "schema_states",
     "schemas_dir",
+    "schemas_origin",
 ]
 
 TEI_RNG = "TEILex0.rng"
 TEI_SCH = "TEILex0.sch"
 LMF_DTD = "DTD_LMF_REV_16.dtd"
 
-#: sha256 of the published files (see the project's shared schemas README).
-PINNED: dict[str, str] = {
-    TEI_RNG: "f5270a718c377d18d3137d4fbbd883e3d39a01dca890fa62f5f580d43d1aa30a",
-    TEI_SCH: "8d3c7d06c141a2e023273ea4772fbb19374e1e91ad1c29f5d9dcbfffbce943fd",
-    LMF_DTD: "160db6625789c57eb75a16456232792f0931c99efd147bc3ac0a19cbfd66a482",
-}
+#: sha256 of the published files (the table lives in lexbuild.external).
+PINNED: dict[str, str] = {file.name: file.sha256 for file in pinned("schemas")}
 
 #: Where the official copies come from, quoted in error messages.
-SOURCES: dict[str, str] = {
-    TEI_RNG: "DARIAH-ERIC/lexicalresources on GitHub, Schemas/TEILex0/out/TEILex0.rng "
-    "(commit d2f3ce22, 2025-05-14; BSD-2-Clause)",
-    TEI_SCH: "DARIAH-ERIC/lexicalresources on GitHub, Schemas/TEILex0/TEILex0.sch (same commit)",
-    LMF_DTD: "the public copy in stardust85/lmf-merger on GitHub, DTD_LMF_REV_16.dtd "
-    "(ISO 24613:2008 informative annex)",
-}
+SOURCES: dict[str, str] = {file.name: file.source for file in pinned("schemas")}
 
 ENV_VAR = "LEXBUILD_SCHEMAS"
+
+#: The one line every command that needs a schema and finds none prints.
+FETCH_HINT = "run `lexbuild schemas fetch` (offline: add --mirror DIR|URL)"
 
 
 @dataclass(frozen=True)
@@ -60,8 +56,7 @@ class SchemaSet:
 
 
 def _user_cache() -> Path:
-    base = os.environ.get("XDG_CACHE_HOME") or str(Path.home() / ".cache")
-    return Path(base) / "lexbuild" / "schemas"
+    return user_cache("schemas")
 
 
 def schemas_dir(folder: str | Path | None = None) -> Path:
@@ -74,22 +69,35 @@ def schemas_dir(folder: str | Path | None = None) -> Path:
     return _user_cache()
 
 
+def schemas_origin(folder: str | Path | None = None) -> str:
+    """Which step of the search order gives the folder (for ``lexbuild schemas status``)."""
+    if folder is not None:
+        return "--schemas"
+    if os.environ.get(ENV_VAR):
+        return f"${ENV_VAR}"
+    return "per-user cache"
+
+
+def schema_states(folder: str | Path | None = None) -> list[FileState]:
+    """Each published schema in the folder the search order gives: ok, altered or missing."""
+    where = schemas_dir(folder)
+    return [file_state(file, where) for file in pinned("schemas")]
+
+
 def _sha256(path: Path) -> str:
-    return hashlib.sha256(path.read_bytes()).hexdigest()
+    return sha256_of(path)
 
 
 def _checked(folder: Path, name: str) -> Path:
     path = folder / name
     if not path.is_file():
-        raise SchemaError(
-            f"published schema {name} not found in {folder}; get the official file from "
-            f"{SOURCES[name]} and put it there (or pass --schemas DIR / set ${ENV_VAR})"
-        )
+        raise SchemaError(f"published schema {name} not found in {folder}: {FETCH_HINT}")
     digest = _sha256(path)
     if digest != PINNED[name]:
         raise SchemaError(
             f"{path} has sha256 {digest}, not the published {PINNED[name]}: it was altered; "
-            f"replace it with the official file from {SOURCES[name]}"
+            f"replace it with the file from {SOURCES[name]} (for the per-user cache: run "
+            "`lexbuild schemas fetch --force`)"
         )
     return path
 
@@ -136,18 +144,3 @@ def load_schemas(folder: str | Path | None = None) -> SchemaSet:
     if where not in _CACHE:
         _CACHE[where] = _compile(where)
     return _CACHE[where]
-
-
-def install_schemas(source: str | Path, target: str | Path | None = None) -> Path:
-    """Copy the published schemas from ``source`` into the per-user cache (or ``target``).
-
-    Every file is verified against its pinned checksum first, so a bad copy never lands.
-    """
-    from lexbuild._atomic import atomic_write_bytes
-
-    origin = Path(source)
-    files = {name: _checked(origin, name).read_bytes() for name in sorted(PINNED)}
-    destination = Path(target) if target is not None else _user_cache()
-    for name, data in files.items():
-        atomic_write_bytes(destination / name, data)
-    return destination
