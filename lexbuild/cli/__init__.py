@@ -26,6 +26,7 @@ COMMAND_MODULES = (
     "lexbuild.cli.evaluation",  # evaluate, calibrate
     "lexbuild.cli.editions",  # merge, release, diff
     "lexbuild.cli.demo",  # demo
+    "lexbuild.cli.preview",  # preview
 )
 
 

@@ -23,6 +23,7 @@ from lexbuild.review.site import (
     edition_site,
     preview_inputs,
     site_manifest,
+    write_files,
     write_site,
 )
 
@@ -39,5 +40,6 @@ __all__ = [
     "read_calibration_view",
     "read_induction_view",
     "site_manifest",
+    "write_files",
     "write_site",
 ]

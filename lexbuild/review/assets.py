@@ -70,7 +70,8 @@ ul.frames{list-style:none;margin:0;padding:0}
 ul.frames li{display:grid;grid-template-columns:minmax(9em,auto) 1fr 3.5em;gap:.5em;
 align-items:center;margin:.15em 0}
 code{font-family:"DejaVu Sans Mono",Menlo,Consolas,monospace;font-size:.85em}
-.meter{height:.55em;background:var(--rule);position:relative}
+.meter{display:block;height:.55em;min-width:4em;background:var(--rule);position:relative}
+td code{white-space:nowrap}
 .meter span{position:absolute;left:0;top:0;bottom:0;background:var(--bar)}
 ol.examples{margin:0;padding-left:1.3em}ol.examples li{margin:.35em 0}
 .src{font-family:system-ui,"DejaVu Sans",sans-serif;font-size:.75em;color:var(--muted)}

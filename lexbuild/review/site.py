@@ -52,6 +52,7 @@ __all__ = [
     "edition_site",
     "preview_inputs",
     "site_manifest",
+    "write_files",
     "write_site",
 ]
 
@@ -212,7 +213,7 @@ def _sibling_links(editions: Mapping[int, Path], edition: int) -> tuple[EditionL
             continue
         entries = frozenset(tei_snapshot(folder / TEI_FILE)) if (folder / TEI_FILE).is_file() \
             else frozenset()
-        links.append(EditionLink(number, f"../{folder.name}/{SITE_DIR}/", entries))
+        links.append(EditionLink(number, f"../../{folder.name}/{SITE_DIR}/", entries))
     return tuple(links)
 
 
