@@ -89,6 +89,20 @@ _EN: dict[str, str] = {
     "function.obl": "oblique",
     "function.comp": "clausal complement",
     "function.pred": "predicative complement",
+    "kind.entry-added": "Entries added",
+    "kind.entry-removed": "Entries removed",
+    "kind.sense-added": "Senses added",
+    "kind.sense-removed": "Senses removed",
+    "kind.sense-retired": "Senses retired",
+    "kind.gloss-changed": "Glosses changed",
+    "kind.status-changed": "Statuses changed",
+    "kind.frame-added": "Frames added",
+    "kind.frame-removed": "Frames removed",
+    "kind.frequency-changed": "Frequencies changed",
+    "kind.example-added": "Examples added",
+    "kind.example-removed": "Examples removed",
+    "kind.sense-split": "Senses split",
+    "kind.sense-merged": "Senses merged",
 }
 
 _FR: dict[str, str] = {
@@ -169,6 +183,20 @@ _FR: dict[str, str] = {
     "function.obl": "complément oblique",
     "function.comp": "complément phrastique",
     "function.pred": "attribut",
+    "kind.entry-added": "Entrées ajoutées",
+    "kind.entry-removed": "Entrées supprimées",
+    "kind.sense-added": "Sens ajoutés",
+    "kind.sense-removed": "Sens supprimés",
+    "kind.sense-retired": "Sens retirés",
+    "kind.gloss-changed": "Gloses modifiées",
+    "kind.status-changed": "Statuts modifiés",
+    "kind.frame-added": "Cadres ajoutés",
+    "kind.frame-removed": "Cadres supprimés",
+    "kind.frequency-changed": "Fréquences modifiées",
+    "kind.example-added": "Exemples ajoutés",
+    "kind.example-removed": "Exemples supprimés",
+    "kind.sense-split": "Sens scindés",
+    "kind.sense-merged": "Sens fusionnés",
 }
 
 #: Primary language subtag -> labels; every table has the same keys (a test checks).

@@ -343,12 +343,15 @@ def changes_page(changes: LexiconDiff | None, lexicon: Lexicon, page: Page) -> s
                     el("p", None, labels["first_edition"]))
         return _shell(page, heading=labels["changes"], body=body)
     summary = el("table", None, el("caption", {"class": "meta"}, labels["summary"]),
-                 el("tbody", None, [el("tr", None, el("th", {"scope": "row"}, kind),
+                 el("tbody", None, [el("tr", None, el("th", {"scope": "row"}, labels["kind." + kind]),
                                        el("td", {"class": "n"}, count))
                                     for kind, count in changes.summary.items() if count]))
     by_entry: dict[str, list[str]] = {}
     for change, line in zip(changes.changes, change_lines(changes), strict=True):
-        by_entry.setdefault(change.entry, []).append(line)
+        # change_lines starts each line with the kind's English title: put the site's own
+        description = line.split(": ", 1)[1] if ": " in line else line
+        by_entry.setdefault(change.entry, []).append(
+            f"{labels['kind.' + change.kind]}{labels['colon']}{description}")
     sections = [
         el("section", {"id": f"e-{entry_id}", "aria-labelledby": f"c-{entry_id}"},
            el("h2", {"id": f"c-{entry_id}"},
