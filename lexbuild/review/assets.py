@@ -147,7 +147,8 @@ SCRIPT = """\
       var numeric = th.classList.contains("n");
       rows.sort(function (a, b) {
         var x = a.cells[column].dataset.value, y = b.cells[column].dataset.value;
-        var order = numeric ? Number(x) - Number(y) : x.localeCompare(y, document.documentElement.lang);
+        var order = numeric ? Number(x) - Number(y) :
+          x.localeCompare(y, document.documentElement.lang);
         if (order === 0) { order = a.dataset.position - b.dataset.position; }
         return ascending ? order : -order;
       });

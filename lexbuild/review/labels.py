@@ -6,8 +6,8 @@
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from types import MappingProxyType
-from typing import Mapping
 
 __all__ = ["LANGUAGES", "labels_for"]
 

@@ -343,9 +343,10 @@ def changes_page(changes: LexiconDiff | None, lexicon: Lexicon, page: Page) -> s
                     el("p", None, labels["first_edition"]))
         return _shell(page, heading=labels["changes"], body=body)
     summary = el("table", None, el("caption", {"class": "meta"}, labels["summary"]),
-                 el("tbody", None, [el("tr", None, el("th", {"scope": "row"}, labels["kind." + kind]),
-                                       el("td", {"class": "n"}, count))
-                                    for kind, count in changes.summary.items() if count]))
+                 el("tbody", None, [
+                     el("tr", None, el("th", {"scope": "row"}, labels["kind." + kind]),
+                        el("td", {"class": "n"}, count))
+                     for kind, count in changes.summary.items() if count]))
     by_entry: dict[str, list[str]] = {}
     for change, line in zip(changes.changes, change_lines(changes), strict=True):
         # change_lines starts each line with the kind's English title: put the site's own
