@@ -11,6 +11,7 @@ Skipped when Chromium, its driver or Selenium is missing, unless ``LEXBUILD_REQU
 
 from __future__ import annotations
 
+import dataclasses
 import json
 import os
 import shutil
@@ -74,7 +75,7 @@ def site(lexicon: Lexicon, sample_lexicon_dir: Path,
         induction=write_test_induction(lexicon, root / "induced"),
         calibration=write_test_calibration(root / "calibration"),
     )
-    inputs = type(inputs)(**{**inputs.__dict__, "lexicon": lexicon})
+    inputs = dataclasses.replace(inputs, lexicon=lexicon)
     return write_site(build_site(inputs), root / "site")
 
 
@@ -240,3 +241,35 @@ def test_landmarks_labels_and_keyboard(browser: Any, site: Path, lexicon: Lexico
     assert browser.switch_to.active_element.get_attribute("id") == "q"
     browser.switch_to.active_element.send_keys("donn")
     assert _visible_lemmas(browser) == _matching(lexicon, "donn")
+
+
+def test_print_style_hides_the_controls(browser: Any, site: Path) -> None:
+    _open(browser, site / "index.html")
+    browser.execute_cdp_cmd("Emulation.setEmulatedMedia", {"media": "print"})
+    try:
+        assert not browser.find_element("id", "filters").is_displayed()
+        assert browser.find_element("id", "entries").is_displayed()
+    finally:
+        browser.execute_cdp_cmd("Emulation.setEmulatedMedia", {"media": ""})
+    assert browser.find_element("id", "filters").is_displayed()
+
+
+@pytest.mark.slow
+def test_demo_release_site_renders_every_entry(browser: Any, schemas_dir: Path,
+                                               tmp_path: Path) -> None:
+    from lexbuild.demo import run_demo
+
+    summary = run_demo(tmp_path / "demo", schemas_dir=schemas_dir)
+    merged = load_lexicon(summary.sources).lexicon
+    for edition in summary.editions:
+        site = edition.folder / "site"
+        _open(browser, site / "index.html")
+        assert len(_visible_lemmas(browser)) == len(merged.entries)
+        for entry in merged.entries:
+            _open(browser, site / "entries" / f"{entry.id}.html")
+            assert browser.find_element("tag name", "h1").text.startswith(entry.lemma)
+            assert _errors(browser) == [], (edition.folder.name, entry.id)
+    last = summary.editions[-1].folder / "site" / "entries" / f"{merged.entries[0].id}.html"
+    _open(browser, last)
+    articles = browser.find_elements("css selector", "article.sense")
+    assert [a.get_attribute("id") for a in articles] == [s.id for s in merged.entries[0].senses]

@@ -10,7 +10,7 @@ from __future__ import annotations
 import html
 from collections.abc import Iterable, Mapping
 
-__all__ = ["Child", "Markup", "document", "el", "join", "text"]
+__all__ = ["Markup", "document", "el", "join", "text"]
 
 #: Elements without a closing tag.
 _VOID = frozenset({"br", "hr", "img", "input", "link", "meta", "col"})
@@ -20,9 +20,6 @@ class Markup(str):
     """A string already safe to put in HTML."""
 
     __slots__ = ()
-
-
-Child = "Markup | str | int | float | None | Iterable[Child]"
 
 
 def text(value: object) -> Markup:
