@@ -78,6 +78,12 @@ def test_label_tables_have_the_same_words() -> None:
     assert labels_for("de")[0] == "en"  # no German words yet: English
 
 
+def test_labels_follow_the_dictionary_language(sample: Lexicon) -> None:
+    english = sample.model_copy(update={"meta": sample.meta.model_copy(update={"language": "en"})})
+    index = build_site(SiteInputs(english))["index.html"].decode()
+    assert '<html lang="en">' in index and ">Entries<" in index and "Entrées" not in index
+
+
 def test_markup_escapes_text_and_attributes() -> None:
     page = el("p", {"title": '"><script>'}, "<b>&", el("i", None, "x"))
     assert page == '<p title="&quot;&gt;&lt;script&gt;">&lt;b&gt;&amp;<i>x</i></p>'
@@ -265,3 +271,21 @@ def test_release_without_site(sample_lexicon_dir: Path, schemas_dir: Path,
                      site=False)
     assert not (result.folder / "site").exists()
     assert "site" not in json.loads((result.folder / "manifest.json").read_text())
+
+
+def test_preview_of_an_edition_links_its_change_log_and_other_editions(
+    sample_lexicon_dir: Path, schemas_dir: Path, tmp_path: Path
+) -> None:
+    editions = tmp_path / "editions"
+    release(sample_lexicon_dir, edition=1, output=editions, schemas_dir=schemas_dir)
+    release(sample_lexicon_dir, edition=2, output=editions, schemas_dir=schemas_dir)
+    output = tmp_path / "elsewhere" / "review"
+    assert main(["preview", str(editions / "edition-2"), "--output", str(output)]) == 0
+    entry_id = load_lexicon(sample_lexicon_dir).lexicon.entries[0].id
+    page = _parse((output / "entries" / f"{entry_id}.html").read_bytes())
+    hrefs = [str(attrs["href"]) for tag, attrs in page.tags if tag == "a"]
+    other = [href for href in hrefs if "edition-1" in href]
+    assert other and (output / "entries" / other[0]).resolve() == (
+        editions / "edition-1" / "site" / "entries" / f"{entry_id}.html").resolve()
+    assert "../changes.html" in hrefs
+    assert "edition 1" in (output / "changes.html").read_text()

@@ -17,7 +17,7 @@ import hashlib
 import os
 import shutil
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
@@ -70,7 +70,6 @@ class SiteInputs:
     induction: InductionView | None = None
     calibration: Mapping[str, Any] | None = None
     random_state: int = 0
-    labels_language: str | None = field(default=None)
 
 
 def build_site(inputs: SiteInputs) -> dict[str, bytes]:
@@ -78,7 +77,7 @@ def build_site(inputs: SiteInputs) -> dict[str, bytes]:
     from lexbuild.review.plots import calibration_svg, projection_svg
 
     lexicon = inputs.lexicon
-    language, labels = labels_for(inputs.labels_language or lexicon.meta.language)
+    language, labels = labels_for(lexicon.meta.language)
     page = Page(
         labels=labels,
         language=language,
