@@ -54,6 +54,32 @@ def write_test_induction(lexicon: Lexicon, folder: Path, *, vectors: bool = True
     return folder
 
 
+def write_occurrence_vectors_from_cache(induced: Path, corpus: Path, cache: Path) -> int:
+    """Recompute the demo's occurrence vectors (all hits in its vector cache) and store them
+    per induced sense, as the 2-D projection expects; returns how many occurrences."""
+    from collections import defaultdict
+
+    from lexbuild.corpus.conllu import read_sentences
+    from lexbuild.corpus.occurrences import extract_occurrences, profile_for
+    from lexbuild.senses.induce import read_assignments
+    from lexbuild.senses.vectors import StaticSyntacticVectors, VectorCache, encode_cached
+
+    assigned = read_assignments(induced)  # (sentence id, 1-based word id) -> (lemma, sense)
+    occurrences = [
+        occ for sentence in read_sentences(corpus)
+        for occ in extract_occurrences(sentence, profile_for("fr"))
+        if assigned.get((occ.sentence_id, occ.token + 1), ("",))[0] == occ.lemma
+    ]
+    with VectorCache(cache) as vectors:
+        matrix = encode_cached(StaticSyntacticVectors(), occurrences, vectors)
+    groups: dict[str, list[np.ndarray]] = defaultdict(list)
+    for occ, row in zip(occurrences, matrix, strict=True):
+        groups[assigned[(occ.sentence_id, occ.token + 1)][1]].append(row)
+    (induced / OCCURRENCE_VECTORS_FILE).write_bytes(occurrence_vectors_bytes(
+        {sense: np.array(rows) for sense, rows in groups.items()}))
+    return len(occurrences)
+
+
 def write_test_calibration(folder: Path) -> Path:
     rows = [
         ThresholdScores(threshold=t, ari=ari, bcubed_f1=0.5 + ari / 2, paired_f1=0.4 + ari / 2,

@@ -25,7 +25,12 @@ import pytest
 from lexbuild.lexicon.model import Lexicon
 from lexbuild.lexicon.sources import load_lexicon
 from lexbuild.review import build_site, preview_inputs, write_site
-from tests.review_data import INDUCED_LEMMAS, write_test_calibration, write_test_induction
+from tests.review_data import (
+    INDUCED_LEMMAS,
+    write_occurrence_vectors_from_cache,
+    write_test_calibration,
+    write_test_induction,
+)
 
 CHROMIUM = os.environ.get("LEXBUILD_CHROMIUM", "/usr/bin/chromium")
 CHROMEDRIVER = os.environ.get("LEXBUILD_CHROMEDRIVER", "/usr/bin/chromedriver")
@@ -273,3 +278,21 @@ def test_demo_release_site_renders_every_entry(browser: Any, schemas_dir: Path,
     _open(browser, last)
     articles = browser.find_elements("css selector", "article.sense")
     assert [a.get_attribute("id") for a in articles] == [s.id for s in merged.entries[0].senses]
+
+    # The merged sources with the real induction: a projection per induced verb.
+    from lexbuild.cli import main
+
+    count = write_occurrence_vectors_from_cache(
+        summary.induced, summary.conllu, tmp_path / "demo" / "vector-cache.sqlite")
+    assert count == summary.occurrences
+    review = tmp_path / "review"
+    assert main(["preview", str(summary.sources), "--induction", str(summary.induced),
+                 "--output", str(review)]) == 0
+    for lemma in summary.senses_per_verb:
+        entry = next(e for e in merged.entries if e.lemma == lemma)
+        _open(browser, review / "entries" / f"{entry.id}.html")
+        plots = browser.find_elements("css selector", "figure img")
+        assert len(plots) == 1 and lemma in plots[0].get_attribute("alt")
+        assert browser.execute_script(
+            "return arguments[0].complete && arguments[0].naturalWidth > 0", plots[0])
+        assert _errors(browser) == [], lemma

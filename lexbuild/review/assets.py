@@ -72,6 +72,9 @@ align-items:center;margin:.15em 0}
 code{font-family:"DejaVu Sans Mono",Menlo,Consolas,monospace;font-size:.85em}
 .meter{display:block;height:.55em;min-width:4em;background:var(--rule);position:relative}
 td code{white-space:nowrap}
+table.bars td.bar{width:40%}
+.diag-grid{display:grid;grid-template-columns:repeat(auto-fill,minmax(27em,1fr));gap:1em}
+.diag-grid>div{overflow-x:auto}
 .meter span{position:absolute;left:0;top:0;bottom:0;background:var(--bar)}
 ol.examples{margin:0;padding-left:1.3em}ol.examples li{margin:.35em 0}
 .src{font-family:system-ui,"DejaVu Sans",sans-serif;font-size:.75em;color:var(--muted)}
@@ -96,7 +99,7 @@ body{background:#fff;color:#000;font-size:11pt}
 .skip,form.filters,header.site nav,th button::after{display:none}
 a{color:#000;text-decoration:none}
 main{padding:0;max-width:none}
-.senses{display:block}
+.senses,.diag-grid{display:block}
 article.sense{break-inside:avoid;border:1px solid #000;border-top-width:3px;margin:0 0 .8em;
 background:#fff}
 .status.approved{background:#fff;color:#000;border-color:#000}

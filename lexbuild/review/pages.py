@@ -263,14 +263,14 @@ def _sense(sense: Sense, labels: Labels) -> Markup:
 
 def _bars_table(caption: str, rows: Sequence[tuple[str, int]], head: tuple[str, str]) -> Markup:
     top = max((count for _, count in rows), default=0) or 1
-    return el("table", None, el("caption", {"class": "meta"}, caption),
+    return el("table", {"class": "bars"}, el("caption", {"class": "meta"}, caption),
               el("thead", None, el("tr", None, el("th", {"scope": "col"}, head[0]),
                                    el("th", {"scope": "col", "class": "n"}, head[1]),
                                    el("th", {"scope": "col"}, ""))),
               el("tbody", None, [
                   el("tr", None, el("td", None, el("code", None, name)),
                      el("td", {"class": "n"}, count),
-                     el("td", {"style": "width:50%"},
+                     el("td", {"class": "bar"},
                         el("span", {"class": "meter", "role": "presentation"},
                            el("span", {"style": f"width:{round(100 * count / top)}%"}))))
                   for name, count in rows]))
@@ -287,8 +287,9 @@ def induced_section(induced: InducedEntry | None, plot: str | None, missing: str
         el("h2", {"id": "diag"}, labels["diagnostics"]),
         _bars_table(labels["cluster_sizes"], sizes, (labels["cluster"], labels["occurrences"])),
         el("h3", None, labels["frame_distribution"]),
-        el("div", {"class": "senses"}, [
-            _bars_table(s.id, list(s.frames), (labels["frames"], labels["frequency"]))
+        el("div", {"class": "diag-grid"}, [
+            el("div", None, _bars_table(s.id, list(s.frames),
+                                        (labels["frames"], labels["frequency"])))
             for s in induced.senses]),
         el("h3", None, labels["projection"]),
     ]
