@@ -104,7 +104,8 @@ article.sense{break-inside:avoid;border:1px solid #000;border-top-width:3px;marg
 background:#fff}
 .status.approved{background:#fff;color:#000;border-color:#000}
 .meter{border:1px solid #000;background:#fff}.meter span{background:#000}
-mark{border-bottom-color:#000}.verb{color:#000}
+mark[class]{border-bottom-color:#000}.verb{color:#000}
+.meter span{background:#555}
 table{background:#fff}
 }
 """
