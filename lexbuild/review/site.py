@@ -178,19 +178,19 @@ def write_site(files: Mapping[str, bytes], output: str | Path) -> Path:
 def edition_links(editions: Mapping[int, Path], *, exclude: int | None,
                   site_root: Path) -> tuple[EditionLink, ...]:
     """Links to the sites of other editions (those that have one), relative to ``site_root``."""
-    from lexbuild.editions.diff import tei_snapshot
-    from lexbuild.editions.release import TEI_FILE
-
     links = []
     for number, folder in sorted(editions.items()):
         site = folder / SITE_DIR
         if number == exclude or not (site / "index.html").is_file():
             continue
         href = Path(os.path.relpath(site.absolute(), site_root)).as_posix() + "/"
-        entries = frozenset(tei_snapshot(folder / TEI_FILE)) if (folder / TEI_FILE).is_file() \
-            else frozenset()
-        links.append(EditionLink(number, href, entries))
+        links.append(EditionLink(number, href, _entry_pages(site)))
     return tuple(links)
+
+
+def _entry_pages(site: Path) -> frozenset[str]:
+    """Ids of the entries an existing site has a page for (a link never leads nowhere)."""
+    return frozenset(path.stem for path in (site / "entries").glob("*.html"))
 
 
 def edition_site(lexicon: Lexicon, *, changes: LexiconDiff | None,
@@ -203,16 +203,12 @@ def edition_site(lexicon: Lexicon, *, changes: LexiconDiff | None,
 
 
 def _sibling_links(editions: Mapping[int, Path], edition: int) -> tuple[EditionLink, ...]:
-    from lexbuild.editions.diff import tei_snapshot
-    from lexbuild.editions.release import TEI_FILE
-
     links = []
     for number, folder in sorted(editions.items()):
-        if number == edition or not (folder / SITE_DIR / "index.html").is_file():
+        site = folder / SITE_DIR
+        if number == edition or not (site / "index.html").is_file():
             continue
-        entries = frozenset(tei_snapshot(folder / TEI_FILE)) if (folder / TEI_FILE).is_file() \
-            else frozenset()
-        links.append(EditionLink(number, f"../../{folder.name}/{SITE_DIR}/", entries))
+        links.append(EditionLink(number, f"../../{folder.name}/{SITE_DIR}/", _entry_pages(site)))
     return tuple(links)
 
 
