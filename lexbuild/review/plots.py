@@ -14,6 +14,8 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
+from lexbuild.errors import LexbuildError
+
 __all__ = ["MAX_POINTS", "calibration_svg", "project_2d", "projection_svg"]
 
 #: Points drawn per verb at most (a fixed-state sample beyond): a page stays light.
@@ -36,7 +38,11 @@ def _svg(figure: Any) -> bytes:
 
 
 def _figure(width: float, height: float) -> Any:
-    import matplotlib
+    try:
+        import matplotlib
+    except ImportError:
+        raise LexbuildError("the induction diagnostics plots need matplotlib: "
+                            "pip install 'lexbuild[plot]'") from None
 
     matplotlib.use("Agg")
     from matplotlib.figure import Figure
