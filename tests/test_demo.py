@@ -21,8 +21,11 @@ def test_demo_runs_offline_and_is_reproducible(
     assert "validation problems in the released edition: 0" in summary
     assert sorted(p.name for p in (output / "editions").iterdir()) == ["edition-1", "edition-2"]
     edition = output / "editions" / "edition-2"
-    first = {path.name: path.read_bytes() for path in sorted(edition.iterdir())}
-    assert set(first) == {"changelog.md", "lexicon.lmf.xml", "lexicon.tei.xml", "manifest.json"}
+    first = {path.relative_to(edition).as_posix(): path.read_bytes()
+             for path in sorted(edition.rglob("*")) if path.is_file()}
+    assert {name for name in first if not name.startswith("site/")} == {
+        "changelog.md", "lexicon.lmf.xml", "lexicon.tei.xml", "manifest.json"}
+    assert "site/index.html" in first  # the review site (tests/test_review_browser.py)
     # Published TEI Lex-0 RelaxNG + Schematron and LMF DTD rev. 16 (../shared/schemas).
     for name in ("lexicon.tei.xml", "lexicon.lmf.xml"):
         assert validate_file(edition / name, schemas_dir=schemas_dir) == []
@@ -45,5 +48,6 @@ def test_demo_runs_offline_and_is_reproducible(
 
     # A second run on the same inputs gives byte-identical artefacts.
     assert main(["demo", "--output", str(output), "--schemas", str(schemas_dir)]) == 0
-    second = {path.name: path.read_bytes() for path in sorted(edition.iterdir())}
+    second = {path.relative_to(edition).as_posix(): path.read_bytes()
+              for path in sorted(edition.rglob("*")) if path.is_file()}
     assert second == first

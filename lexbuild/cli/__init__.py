@@ -27,6 +27,7 @@ COMMAND_MODULES = (
     "lexbuild.cli.editions",  # merge, release, diff
     "lexbuild.cli.demo",  # demo
     "lexbuild.cli.schemas",  # schemas fetch, schemas status
+    "lexbuild.cli.preview",  # preview
 )
 
 

@@ -81,6 +81,8 @@ def register(subparsers: Any) -> None:
                          help="folder holding the editions")
     release.add_argument("--date", type=_date, metavar="YYYY-MM-DD",
                          help="release date (default: release_date of lexicon.yaml)")
+    release.add_argument("--no-site", action="store_true",
+                         help="do not write the review site (edition-N/site)")
     add_schemas_option(release)
     release.set_defaults(handler=run_release)
 
@@ -126,7 +128,7 @@ def run_release(args: argparse.Namespace) -> int:
     try:
         result = release(
             args.sources, edition=args.edition, output=args.output, date=args.date,
-            schemas_dir=args.schemas,
+            schemas_dir=args.schemas, site=not args.no_site,
         )
     except ReleaseRefused as refused:
         print(f"lexbuild release: {refused.message}", file=sys.stderr)

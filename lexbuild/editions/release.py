@@ -12,7 +12,8 @@
    the published schemas, and the induction settings and model identifiers recorded in the
    sources' senses.
 
-Layout: ``DIR/edition-N/{lexicon.tei.xml, lexicon.lmf.xml, changelog.md, manifest.json}``. The
+Layout: ``DIR/edition-N/{lexicon.tei.xml, lexicon.lmf.xml, changelog.md, manifest.json}``, and
+``site/`` (the review site, ``lexbuild.review``; ``site=False`` leaves it out). The
 edition folder is written in a staging sibling and renamed into place at the end: it appears
 whole or not at all, and a failed release leaves earlier editions as they were. Nothing depends
 on the clock: the date is ``--date`` or the sources' ``release_date``, so the same sources give
@@ -154,6 +155,7 @@ def release(
     output: str | Path,
     date: dt.date | None = None,
     schemas_dir: str | Path | None = None,
+    site: bool = True,
 ) -> ReleaseResult:
     """Check, export, validate and publish ``output/edition-<edition>``; see the module doc."""
     from lexbuild import __version__
@@ -236,6 +238,12 @@ def release(
         LMF_FILE: (lmf, "LMF (ISO 24613:2008, DTD rev. 16)"),
         CHANGELOG_FILE: (changelog.encode("utf-8"), "change log (Markdown)"),
     }
+    # The review site (lexbuild.review), written in edition-N/site and listed in the manifest.
+    site_files: dict[str, bytes] = {}
+    if site:
+        from lexbuild.review import edition_site
+
+        site_files = edition_site(lexicon, changes=changes, editions=earlier, edition=edition)
     manifest: dict[str, Any] = {
         "manifest": MANIFEST_FORMAT,
         "title": meta.title,
@@ -253,10 +261,18 @@ def release(
         "induction": _induction_records(lexicon),
         "changes": changes.summary if changes is not None else None,
     }
+    if site:
+        from lexbuild.review import site_manifest
+
+        manifest["site"] = site_manifest(site_files)
     with staging_dir(target) as stage:
         stage.chmod(0o755)  # mkdtemp makes it private; a published edition is readable
         for name, (data, _) in artefacts.items():
             (stage / name).write_bytes(data)
+        if site:
+            from lexbuild.review import SITE_DIR, write_files
+
+            write_files(site_files, stage / SITE_DIR)
         (stage / MANIFEST_FILE).write_text(
             json.dumps(manifest, indent=2, sort_keys=True, ensure_ascii=False) + "\n",
             encoding="utf-8",
