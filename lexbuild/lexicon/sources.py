@@ -423,8 +423,8 @@ def _event_parser(text: str) -> Iterator[Any]:
     if loader is not None:
         import yaml
 
-        return yaml.parse(text, Loader=loader)  # type: ignore[no-any-return]
-    return YAML(typ="safe", pure=True).parse(text)  # type: ignore[no-any-return]
+        return yaml.parse(text, Loader=loader)
+    return YAML(typ="safe", pure=True).parse(text)
 
 
 def _guard_yaml(text: str, shown: str) -> None:
