@@ -85,3 +85,7 @@ class ReleaseError(LexbuildError, RuntimeError):
 
 class UnsafeXMLError(LexbuildError, ValueError):
     """An XML file uses entities, DTD tricks or sizes that lexbuild refuses to read."""
+
+
+class MalformedXMLError(LexbuildError, ValueError):
+    """An XML file read back is not well-formed (syntax, encoding, depth or text size limits)."""

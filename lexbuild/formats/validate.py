@@ -28,7 +28,13 @@ from typing import Any, Literal, Protocol
 
 from lxml import etree, isoschematron
 
-from lexbuild.errors import SchemaError, SourceLocation, UnsafeXMLError, ValidationFailed
+from lexbuild.errors import (
+    MalformedXMLError,
+    SchemaError,
+    SourceLocation,
+    UnsafeXMLError,
+    ValidationFailed,
+)
 from lexbuild.formats.schemastore import LMF_DTD, TEI_RNG, TEI_SCH, SchemaSet, load_schemas
 from lexbuild.formats.xmlsafe import DEFAULT_MAX_BYTES, parse_untrusted, safe_parser
 from lexbuild.lexicon.model import ExtraSchema
@@ -501,7 +507,7 @@ def _parse(data: bytes, where: _Where, max_bytes: int) -> etree._ElementTree | l
         return parse_untrusted(data, max_bytes=max_bytes)
     except UnsafeXMLError as error:
         return [where.finding(error.message.replace("<bytes>: ", ""), SAFETY)]
-    except etree.XMLSyntaxError as error:
+    except MalformedXMLError as error:
         # The exception's log may hold older messages: parse again with a parser of our own
         # and read its log; then once more in recovery mode to name the element near each error.
         parser = safe_parser()
@@ -531,7 +537,7 @@ def _parse(data: bytes, where: _Where, max_bytes: int) -> etree._ElementTree | l
                     xml_id=duplicate.group(1) if duplicate else None,
                 )
             )
-        return findings or [where.finding(f"not well-formed: {error}", "XML 1.0")]
+        return findings or [where.finding(f"not well-formed: {error.message}", "XML 1.0")]
 
 
 def validate_bytes(
