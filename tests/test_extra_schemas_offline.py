@@ -7,6 +7,7 @@ import http.server
 import threading
 from collections.abc import Iterator
 from pathlib import Path
+from typing import ClassVar
 
 import pytest
 
@@ -18,9 +19,9 @@ DOCUMENT = b'<LexicalResource dtdVersion="16"/>'
 
 
 class _Counting(http.server.BaseHTTPRequestHandler):
-    requests: list[str] = []
+    requests: ClassVar[list[str]] = []
 
-    def do_GET(self) -> None:  # noqa: N802 (the standard library's name)
+    def do_GET(self) -> None:
         _Counting.requests.append(self.path)
         body = b'<xs:schema xmlns:xs="http://www.w3.org/2001/XMLSchema"/>'
         self.send_response(200)

@@ -424,8 +424,8 @@ def _compiled_extra(extra: ExtraSchema, path: Path, root: Path | None = None) ->
 
             import xmlschema
 
-            # "local": files only, never a remote one (our check above keeps them in the folder); the
-            # warnings xmlschema gives for a blocked import become errors.
+            # "local": files only, never a remote one (the check above keeps them in the
+            # folder); the warnings xmlschema gives for a blocked import become errors.
             with warnings.catch_warnings():
                 warnings.simplefilter("error")
                 compiled: Any = xmlschema.XMLSchema(
