@@ -44,8 +44,8 @@ it touches; other flags are left alone.
 Atomicity: the whole sources folder is copied to a staging sibling, updated there, and swapped in
 with one ``renameat2(RENAME_EXCHANGE)`` where the system has it (Linux); elsewhere two renames
 with a backup folder that ``recover_interrupted`` puts back. An interrupted merge leaves the
-sources untouched or fully merged; a staging folder ``.<name>.*.partial`` may be left behind and
-can be deleted. One merge at a time: an advisory lock (``flock``) on the sources folder refuses
+sources untouched or fully merged; a staging folder ``.<name>.*.partial`` left behind is removed
+by the next run (``_atomic.remove_stale_staging``). One merge at a time: an advisory lock (``flock``) on the sources folder refuses
 a second concurrent merge and dies with its process. ``LEXBUILD_MERGE_PAUSE`` (seconds) sleeps
 after each staged file: a test hook to interrupt a merge half-way.
 """
@@ -70,7 +70,7 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
-from lexbuild._atomic import atomic_write_bytes, staging_dir
+from lexbuild._atomic import atomic_write_bytes, staging_dir, symlinks_inside
 from lexbuild.errors import MergeError, SourceError, SourceLocation
 from lexbuild.lexicon import ids
 from lexbuild.lexicon.model import (
@@ -868,6 +868,12 @@ def _merge_locked(
         report.files_written.append(CENTROIDS_FILE)
     if dry_run or not report.files_written:
         return report
+    links = symlinks_inside(root)
+    if links:  # the staging copy would keep them, and writes would go through them
+        raise MergeError(
+            f"{links[0]} is a symbolic link: merge refuses to write through links in a sources "
+            "folder; replace it with the files it points to"
+        )
     root = root.resolve()
     with staging_dir(root) as stage:
         shutil.copytree(root, stage, symlinks=True, dirs_exist_ok=True)
