@@ -182,19 +182,22 @@ def _duplicate_id(lexicon: Lexicon) -> Iterator[Problem]:
     "xml:id, which must be unique)",
 )
 def _duplicate_header_id(lexicon: Lexicon) -> Iterator[Problem]:
-    for field_name, items in (("editors", lexicon.meta.editors), ("corpora", lexicon.meta.corpora)):
+    for field_name, identifiers in (
+        ("editors", [editor.id for editor in lexicon.meta.editors]),
+        ("corpora", [corpus.id for corpus in lexicon.meta.corpora]),
+    ):
         first_index: dict[str, int] = {}
-        for index, item in enumerate(items):
-            if item.id in first_index:
-                earlier = first_index[item.id]
+        for index, identifier in enumerate(identifiers):
+            if identifier in first_index:
+                earlier = first_index[identifier]
                 yield Problem(
                     None,
                     (field_name, index, "id"),
-                    f"{field_name} id {item.id!r} is already used by {field_name}[{earlier}]",
+                    f"{field_name} id {identifier!r} is already used by {field_name}[{earlier}]",
                     first=(field_name, earlier, "id"),
                 )
             else:
-                first_index[item.id] = index
+                first_index[identifier] = index
 
 
 @_rule(
