@@ -233,12 +233,8 @@ def _check_tree(tokens: list[Token]) -> None:
 
 def _parse_word(cols: list[str], lineno: int, expected: int) -> Token:
     ident = cols[0]
-    if not (ident.isascii() and ident.isdigit()) or ident != str(int(ident)):
-        raise _Bad(
-            f"field ID: word id {ident!r} is not an integer (ASCII digits, no leading zero)",
-            lineno,
-            1,
-        )
+    if _HEAD.match(ident) is None or ident == "0":
+        raise _Bad(f"field ID: word id {ident!r} is not an integer {_DIGITS}", lineno, 1)
     if int(ident) != expected:
         raise _Bad(f"field ID: word id {ident} out of sequence (expected {expected})", lineno, 1)
     head = cols[6]
@@ -295,6 +291,7 @@ def _build(block: list[tuple[int, str]], stem: str, number: int, source: str) ->
         expected = len(tokens) + 1
         if (
             ident == str(expected)
+            and len(head) < 10
             and head.isdecimal()
             and head.isascii()
             and (head[0] != "0" or head == "0")
