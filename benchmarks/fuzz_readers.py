@@ -125,6 +125,30 @@ INDUCTION = {
 }
 
 
+def xml_deep(depth: int) -> bytes:
+    return b"<a>" * depth + b"</a>" * depth
+
+
+def yaml_deep(depth: int) -> bytes:
+    return b"x: " + b"[" * depth + b"]" * depth + b"\n"
+
+
+def json_deep(depth: int) -> bytes:
+    return b"[" * depth + b"]" * depth
+
+
+def tsv_deep(depth: int) -> bytes:
+    return b"\t" * depth + b"\n"
+
+
+def conllu_deep(depth: int) -> bytes:
+    """One sentence of ``depth`` words, each the head of the one before (a long chain)."""
+    return b"".join(
+        f"{i}\tw\tw\tVERB\t_\t_\t{i + 1 if i < depth else 0}\tconj\t_\t_\n".encode()
+        for i in range(1, depth + 1)
+    ) + b"\n"
+
+
 def build_readers(ud: Path, schemas: Path | None) -> dict[str, Reader]:
     """Every reader, with its seed read from the shared data and the sample lexicon."""
     from lexbuild.editions.diff import tei_snapshot
@@ -170,14 +194,6 @@ def build_readers(ud: Path, schemas: Path | None) -> dict[str, Reader]:
     )
     json_tokens = (b"{", b"[", b"1e999", b'"', b"NaN", b",", b":", b"null", b"-", b"\\u0000")
     tsv_tokens = (b"\t", b'"', b"\r", b"\n", b"\x00", b"-1", b"\xc2\xb2")
-    xml_deep = lambda depth: b"<a>" * depth + b"</a>" * depth  # noqa: E731
-    yaml_deep = lambda depth: b"x: " + b"[" * depth + b"]" * depth + b"\n"  # noqa: E731
-    json_deep = lambda depth: b"[" * depth + b"]" * depth  # noqa: E731
-    tsv_deep = lambda depth: b"\t" * depth + b"\n"  # noqa: E731
-    conllu_deep = lambda depth: b"".join(  # a long chain of heads: 1 <- 2 <- 3 ...
-        f"{i}\tw\tw\tVERB\t_\t_\t{i + 1 if i < depth else 0}\tconj\t_\t_\n".encode()
-        for i in range(1, depth + 1)
-    ) + b"\n"
 
     readers = [
         Reader("conllu", conllu, "c.conllu", read_conllu("c.conllu"), conllu_tokens, conllu_deep),
@@ -373,7 +389,7 @@ def outcome(reader: Reader, folder: Path, limit: float) -> tuple[str, str]:
         if target.name not in str(error) and str(folder) not in str(error):
             return "crash", f"{type(error).__name__} without the file: {error}"
         return "clean", ""
-    except BaseException as error:  # noqa: BLE001 - counting them is the point
+    except BaseException as error:  # counting them is the point
         signal.setitimer(signal.ITIMER_REAL, 0)
         last = traceback.extract_tb(error.__traceback__)[-1]
         where = f"{Path(last.filename).name}:{last.lineno}"
