@@ -154,3 +154,28 @@ def test_mutated_entry_loads_or_fails_cleanly(
         load_entry(path)
     except SourceError as error:
         assert error.location is not None and error.location.file == str(path)
+
+
+@pytest.mark.parametrize(
+    ("text", "words"),
+    [
+        ("a: 1\na: 2\n", "duplicate key 'a'"),
+        ("a: !!str 1\n", "YAML tag"),
+        ("a: &x 1\nb: *x\n", "anchors and aliases"),
+        ("a:\n  <<: {b: 1}\n", "merge keys"),
+        ("a: " + "[" * 100 + "]" * 100 + "\n", "deeper than"),
+        ("a: [\n", "invalid YAML"),
+    ],
+)
+def test_guard_without_libyaml(
+    monkeypatch: pytest.MonkeyPatch, tmp_path: Path, text: str, words: str
+) -> None:
+    # Where PyYAML has no libyaml, the guard reads ruamel's pure-Python event stream instead.
+    from lexbuild.lexicon import sources as module
+
+    monkeypatch.setattr(module, "_libyaml_loader", lambda: None)
+    path = tmp_path / "x.yaml"
+    path.write_text(text, encoding="utf-8")
+    with pytest.raises(SourceError, match=words) as caught:
+        module._guard_yaml(text, str(path))
+    assert caught.value.location is not None and caught.value.location.line >= 1
