@@ -3,13 +3,39 @@
 from __future__ import annotations
 
 import contextlib
+import logging
 import os
 import shutil
 import tempfile
 from collections.abc import Iterator
 from pathlib import Path
 
-__all__ = ["atomic_write_bytes", "atomic_write_text", "replace_dir_atomically", "staging_dir"]
+__all__ = [
+    "atomic_write_bytes",
+    "atomic_write_text",
+    "remove_stale_staging",
+    "replace_dir_atomically",
+    "staging_dir",
+    "symlinks_inside",
+]
+
+_LOG = logging.getLogger("lexbuild")
+
+
+def _umask() -> int:
+    # Read without changing it where the system says it (Linux); else the set-and-restore idiom.
+    with contextlib.suppress(OSError, ValueError):
+        for line in Path("/proc/self/status").read_text().splitlines():
+            if line.startswith("Umask:"):
+                return int(line.split()[1], 8)
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
+
+
+def _published_mode(directory: bool = False) -> int:
+    """The mode a plain ``open``/``mkdir`` would give: mkstemp and mkdtemp make files private."""
+    return (0o777 if directory else 0o666) & ~_umask()
 
 
 def atomic_write_bytes(path: str | Path, data: bytes) -> None:
@@ -18,6 +44,7 @@ def atomic_write_bytes(path: str | Path, data: bytes) -> None:
     target.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp_name = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
     try:
+        os.fchmod(fd, _published_mode())  # readable by others as the umask allows, like open()
         with os.fdopen(fd, "wb") as handle:
             handle.write(data)
             handle.flush()
@@ -35,10 +62,20 @@ def atomic_write_text(path: str | Path, text: str) -> None:
 
 @contextlib.contextmanager
 def staging_dir(final: str | Path) -> Iterator[Path]:
-    """A temporary sibling folder of ``final``; removed if the block raises."""
+    """A temporary sibling folder of ``final``; removed if the block raises.
+
+    Its name holds the process id (``.NAME.PID-XXXX.partial``), so that the next run can tell
+    the leftovers of a killed run from a live one; they are removed first, with a message.
+    """
     target = Path(final)
     target.parent.mkdir(parents=True, exist_ok=True)
-    stage = Path(tempfile.mkdtemp(prefix=f".{target.name}.", suffix=".partial", dir=target.parent))
+    remove_stale_staging(target)
+    stage = Path(
+        tempfile.mkdtemp(
+            prefix=f".{target.name}.{os.getpid()}-", suffix=".partial", dir=target.parent
+        )
+    )
+    stage.chmod(_published_mode(directory=True))
     try:
         yield stage
     except BaseException:
@@ -52,3 +89,59 @@ def replace_dir_atomically(stage: Path, final: str | Path) -> None:
     if target.exists():
         raise FileExistsError(f"{target} already exists")
     os.rename(stage, target)
+
+
+def _alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True  # someone else's live process
+    return True
+
+
+def remove_stale_staging(final: str | Path) -> list[Path]:
+    """Remove the ``.NAME.*.partial`` staging folders that killed runs left beside ``final``.
+
+    A folder whose process is still alive is kept (a concurrent run); one without a process id
+    in its name (older versions) is removed. Each removal is logged (``lexbuild`` logger, shown on
+    stderr by default); returns the folders removed.
+    """
+    target = Path(final)
+    removed: list[Path] = []
+    if not target.parent.is_dir():
+        return removed
+    prefix = f".{target.name}."
+    for leftover in sorted(target.parent.glob(f"{glob_escape(prefix)}*.partial")):
+        if leftover.is_symlink() or not leftover.is_dir():
+            continue
+        middle = leftover.name[len(prefix) : -len(".partial")]
+        pid_text = middle.split("-", 1)[0]
+        if pid_text.isdigit() and "-" in middle and _alive(int(pid_text)):
+            continue
+        shutil.rmtree(leftover, ignore_errors=True)
+        if not leftover.exists():
+            removed.append(leftover)
+            _LOG.warning("removed %s, left by an interrupted run", leftover)
+    return removed
+
+
+def glob_escape(text: str) -> str:
+    """``text`` with glob's special characters taken literally."""
+    import glob
+
+    return glob.escape(text)
+
+
+def symlinks_inside(folder: str | Path) -> list[Path]:
+    """Symbolic links at or under ``folder`` (not followed): writing through one would change
+    files outside the folder before an atomic swap could protect them."""
+    root = Path(folder)
+    found = [root] if root.is_symlink() else []
+    for directory, dirnames, filenames in os.walk(root):
+        for name in [*dirnames, *filenames]:
+            path = Path(directory) / name
+            if path.is_symlink():
+                found.append(path)
+    return sorted(found)

@@ -89,3 +89,7 @@ class UnsafeXMLError(LexbuildError, ValueError):
 
 class FetchError(LexbuildError, OSError):
     """A pinned external file cannot be fetched, or what arrived is not the published file."""
+
+
+class MalformedXMLError(LexbuildError, ValueError):
+    """An XML file read back is not well-formed (syntax, encoding, depth or text size limits)."""

@@ -48,7 +48,8 @@ FIXTURE_FILES = sorted((FIXTURES / "entries").glob("*.yaml"))
 
 def test_every_rule_has_a_fixture() -> None:
     covered = {_expected(path)[0] for path in FIXTURE_FILES}
-    assert set(RULES) | {"E000"} == covered
+    # E110 checks lexicon.yaml, not an entry: test_duplicate_editor_and_corpus_ids_... covers it.
+    assert set(RULES) | {"E000"} == covered | {"E110"}
 
 
 @pytest.mark.parametrize("fixture", FIXTURE_FILES, ids=lambda path: path.stem)
@@ -103,7 +104,8 @@ def test_codes_say_their_severity_and_json_keeps_every_field() -> None:
     assert document["findings"] == [finding.as_dict() for finding in findings]
     assert document["errors"] == sum(1 for f in findings if f.code.startswith("E"))
     assert document["warnings"] == sum(1 for f in findings if f.code.startswith("W"))
-    assert {f["code"] for f in document["findings"]} == set(RULES) | {"E000"}
+    # E110 (lexicon.yaml) is covered by its own test below.
+    assert {f["code"] for f in document["findings"]} == (set(RULES) - {"E110"}) | {"E000"}
 
 
 def _lxml_accepts(char: str) -> bool:
@@ -149,3 +151,37 @@ def test_forms_of_the_lemma_are_recognised(form: str, lemma: str) -> None:
 @pytest.mark.parametrize(("form", "lemma"), [("facteur", "porter"), ("sont", "tenir")])
 def test_other_words_are_not_forms(form: str, lemma: str) -> None:
     assert not looks_like_form(form, lemma)
+
+
+def test_duplicate_editor_and_corpus_ids_are_reported_with_both_lines(
+    tmp_path: Path, sample_lexicon_dir: Path
+) -> None:
+    # Found by a hostile-input run: these passed check and then failed export without a
+    # location (TEI xml:id values must be unique, XML 1.0 + xml:id 1.0).
+    import shutil
+
+    from lexbuild.lexicon.checks import check_lexicon as run_checks
+    from lexbuild.lexicon.sources import load_lexicon as load
+
+    folder = tmp_path / "sources"
+    shutil.copytree(sample_lexicon_dir, folder)
+    meta = folder / "lexicon.yaml"
+    text = meta.read_text(encoding="utf-8")
+    text = text.replace(
+        "  - {id: ed.le-gall, name: Tristan Le Gall}\n",
+        "  - {id: ed.le-gall, name: Tristan Le Gall}\n  - {id: ed.morvan, name: A. Morvan}\n",
+    ).replace(
+        "  - {id: brevenn, title: Gazette de Brévenn (corpus de démonstration)}\n",
+        "  - {id: brevenn, title: Gazette de Brévenn (corpus de démonstration)}\n"
+        "  - {id: brevenn, title: Autre}\n",
+    )
+    meta.write_text(text, encoding="utf-8")
+    lines = text.splitlines()
+    editor_lines = [n for n, line in enumerate(lines, 1) if "id: ed.morvan" in line]
+    corpus_lines = [n for n, line in enumerate(lines, 1) if "{id: brevenn" in line]
+    findings = [f for f in run_checks(load(folder)) if f.code == "E110"]
+    assert sorted((f.field, f.location.line) for f in findings) == sorted(
+        [("editors[2].id", editor_lines[1]), ("corpora[1].id", corpus_lines[1])]
+    )
+    assert f"(line {editor_lines[0]})" in next(f.message for f in findings if "editors" in f.field)
+    assert f"(line {corpus_lines[0]})" in next(f.message for f in findings if "corpora" in f.field)

@@ -241,9 +241,13 @@ def test_extra_schematron_maps_back_to_the_yaml_line(
 def test_extra_xsd_reports_element_paths_and_sources(
     lmf_bytes: bytes, loaded: LoadedLexicon, schemas_dir: Path, sample_lexicon_dir: Path
 ) -> None:
-    extra = ExtraSchema(path=str(FIXTURES / "lmf_example_feats.xsd"), kind="xsd", format="lmf")
+    extra = ExtraSchema(path="lmf_example_feats.xsd", kind="xsd", format="lmf")
     findings = validate_bytes(
-        lmf_bytes, schemas_dir=schemas_dir, extra_schemas=[extra], source_map=loaded.source_map
+        lmf_bytes,
+        schemas_dir=schemas_dir,
+        extra_schemas=[extra],
+        base_dir=FIXTURES,
+        source_map=loaded.source_map,
     )
     # SenseExample holds 5 feats + one argumentPosition per argument: > 7 feats when 3 arguments.
     crowded = {

@@ -8,6 +8,8 @@ from __future__ import annotations
 import glob as _glob
 import gzip
 import lzma
+import re
+import zlib
 from collections.abc import Iterable, Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -79,6 +81,9 @@ def resolve_paths(
         paths = [paths]
     files: list[Path] = []
     for item in paths:
+        if not str(item).strip():
+            # Path("") is the current folder: an empty argument must not read it silently.
+            raise CorpusError("empty corpus path given")
         path = Path(item)
         if path.is_dir():
             # Sorted so that ids and outputs do not depend on the file system's order.
@@ -116,10 +121,54 @@ def _stem(path: Path) -> str:
 class _Bad(Exception):
     """A defect found while building one sentence (turned into a CorpusError with location)."""
 
-    def __init__(self, message: str, line: int) -> None:
+    def __init__(self, message: str, line: int, column: int = 0) -> None:
         super().__init__(message)
         self.message = message
         self.line = line
+        self.column = column
+
+
+#: Names of the ten columns, for messages (CoNLL-U specification, universaldependencies.org).
+FIELDS = ("ID", "FORM", "LEMMA", "UPOS", "XPOS", "FEATS", "HEAD", "DEPREL", "DEPS", "MISC")
+# Only FORM, LEMMA and MISC may contain spaces (the CoNLL-U specification).
+_NO_SPACE = (0, 3, 4, 5, 6, 7, 8)
+# Ids and heads: ASCII digits without leading zeros; 9 digits at most (a billion words).
+_NUMBER = r"[1-9][0-9]{0,8}"
+_RANGE_ID = re.compile(rf"({_NUMBER})-({_NUMBER})\Z")
+_EMPTY_ID = re.compile(rf"(0|{_NUMBER})\.({_NUMBER})\Z")
+_DIGITS = "(ASCII digits, no leading zero, 9 at most)"
+_HEAD = re.compile(rf"(?:0|{_NUMBER})\Z")
+# Control characters have no place in a field; a carriage return would break TSV output.
+_CONTROL = re.compile(r"[\x00-\x08\x0a-\x1f\x7f]")
+
+
+def _column(cols: list[str], index: int) -> int:
+    """1-based column where field ``index`` starts on its line."""
+    return sum(len(col) + 1 for col in cols[:index]) + 1
+
+
+def _field_defect(cols: list[str], line: str, lineno: int) -> _Bad | None:
+    """Empty fields, control characters, spaces where the format forbids them (or None)."""
+    for index, col in enumerate(cols):
+        if not col:
+            return _Bad(f"field {FIELDS[index]} is empty (write '_')", lineno, _column(cols, index))
+    control = _CONTROL.search(line)
+    if control is not None:
+        index = line.count("\t", 0, control.start())
+        return _Bad(
+            f"field {FIELDS[index]} contains the control character {control.group()!r}",
+            lineno,
+            control.start() + 1,
+        )
+    if " " in line:
+        for index in _NO_SPACE:
+            if " " in cols[index]:
+                return _Bad(
+                    f"field {FIELDS[index]} contains a space (only FORM, LEMMA and MISC may)",
+                    lineno,
+                    _column(cols, index),
+                )
+    return None
 
 
 def _join_text(tokens: tuple[Token, ...], multiword: tuple[tuple[int, int, str, str], ...]) -> str:
@@ -142,18 +191,27 @@ def _join_text(tokens: tuple[Token, ...], multiword: tuple[tuple[int, int, str, 
 
 
 def _check_tree(tokens: list[Token]) -> None:
-    """Raise _Bad on a head out of range, no root, or a cycle (each in O(n))."""
+    """Raise _Bad on a head out of range, no root or two, or a cycle (each in O(n))."""
     n = len(tokens)
-    has_root = False
+    root: Token | None = None
     for token in tokens:
-        if token.head < 0 or token.head > n:
-            raise _Bad(f"head {token.head} of word {token.id} is out of range 0..{n}", token.line)
+        if token.head > n:
+            raise _Bad(
+                f"field HEAD: head {token.head} of word {token.id} is out of range 0..{n}",
+                token.line,
+            )
         if token.head == token.id:
-            raise _Bad(f"word {token.id} is its own head (cycle)", token.line)
+            raise _Bad(f"field HEAD: word {token.id} is its own head (cycle)", token.line)
         if token.head == 0:
-            has_root = True
-    if not has_root:
-        raise _Bad("no word has head 0 (no root)", tokens[0].line)
+            if root is not None:
+                raise _Bad(
+                    f"field HEAD: a second root (words {root.id} and {token.id} have head 0; "
+                    "a tree has exactly one)",
+                    token.line,
+                )
+            root = token
+    if root is None:
+        raise _Bad("field HEAD: no word has head 0 (no root)", tokens[0].line)
     # state: 0 unseen, 1 on the current path, 2 known to reach the root.
     state = [0] * (n + 1)
     state[0] = 2
@@ -166,33 +224,56 @@ def _check_tree(tokens: list[Token]) -> None:
             node = tokens[node - 1].head
         if state[node] == 1:  # back on the current path: the cycle is its tail from node
             cycle = sorted(path[path.index(node) :])
-            raise _Bad(f"words {cycle} form a cycle of heads", tokens[cycle[0] - 1].line)
+            raise _Bad(
+                f"field HEAD: words {cycle} form a cycle of heads", tokens[cycle[0] - 1].line
+            )
         for visited in path:
             state[visited] = 2
 
 
 def _parse_word(cols: list[str], lineno: int, expected: int) -> Token:
-    try:
-        ident = int(cols[0])
-    except ValueError:
-        raise _Bad(f"word id {cols[0]!r} is not an integer", lineno) from None
-    if ident != expected:
-        raise _Bad(f"word id {ident} out of sequence (expected {expected})", lineno)
-    try:
-        head = int(cols[6])
-    except ValueError:
-        raise _Bad(f"head {cols[6]!r} of word {ident} is not an integer", lineno) from None
+    ident = cols[0]
+    if _HEAD.match(ident) is None or ident == "0":
+        raise _Bad(f"field ID: word id {ident!r} is not an integer {_DIGITS}", lineno, 1)
+    if int(ident) != expected:
+        raise _Bad(f"field ID: word id {ident} out of sequence (expected {expected})", lineno, 1)
+    head = cols[6]
+    if _HEAD.match(head) is None:
+        raise _Bad(
+            f"field HEAD: head {head!r} of word {ident} is not an integer {_DIGITS}",
+            lineno,
+            _column(cols, 6),
+        )
     return Token(
-        ident, cols[1], cols[2], cols[3], cols[4], cols[5], head, cols[7], cols[8], cols[9], lineno
+        expected,
+        cols[1],
+        cols[2],
+        cols[3],
+        cols[4],
+        cols[5],
+        int(head),
+        cols[7],
+        cols[8],
+        cols[9],
+        lineno,
     )
 
 
 def _build(block: list[tuple[int, str]], stem: str, number: int, source: str) -> Sentence:
-    """One sentence from its (line number, text) lines; raises _Bad on a defect."""
+    """One sentence from its (line number, text) lines; raises _Bad on a defect.
+
+    Checked against the CoNLL-U specification (universaldependencies.org/format.html): ten
+    non-empty fields, word ids 1, 2, 3 ... in ASCII digits, multiword ranges of two words or
+    more placed just before their first word, empty nodes ``i.j`` just after word ``i`` with
+    ``j`` counting from 1 and no HEAD or DEPREL, exactly one root, no cycle.
+    """
     metadata: list[tuple[str, str]] = []
     tokens: list[Token] = []
     multiword: list[tuple[int, int, str, str]] = []
     empty: list[str] = []
+    covered = 0  # last word id covered by a multiword range so far
+    range_line = 0
+    last_empty = (0, 0)
     for lineno, line in block:
         if line[0] == "#":
             key, sep, value = line[1:].partition("=")
@@ -201,17 +282,23 @@ def _build(block: list[tuple[int, str]], stem: str, number: int, source: str) ->
         cols = line.split("\t")
         if len(cols) != _NCOLS:
             raise _Bad(f"expected {_NCOLS} tab-separated columns, found {len(cols)}", lineno)
+        if "" in cols or _CONTROL.search(line) is not None or " " in line:
+            defect = _field_defect(cols, line, lineno)
+            if defect is not None:
+                raise defect
         ident = cols[0]
         head = cols[6]
-        if ident.isdecimal() and head.isdecimal():  # the common case, inlined: a word
-            word_id = int(ident)
-            if word_id != len(tokens) + 1:
-                raise _Bad(
-                    f"word id {word_id} out of sequence (expected {len(tokens) + 1})", lineno
-                )
+        expected = len(tokens) + 1
+        if (
+            ident == str(expected)
+            and len(head) < 10
+            and head.isdecimal()
+            and head.isascii()
+            and (head[0] != "0" or head == "0")
+        ):  # the common case, inlined: a word
             tokens.append(
                 Token(
-                    word_id,
+                    expected,
                     cols[1],
                     cols[2],
                     cols[3],
@@ -224,22 +311,55 @@ def _build(block: list[tuple[int, str]], stem: str, number: int, source: str) ->
                     lineno,
                 )
             )
-        elif ident.isdigit():  # a head that is no plain number: checked with its message
-            tokens.append(_parse_word(cols, lineno, len(tokens) + 1))
         elif "-" in ident:
-            first, _, last = ident.partition("-")
-            if not (first.isdigit() and last.isdigit()) or int(first) > int(last):
-                raise _Bad(f"multiword range {ident!r} is malformed", lineno)
-            multiword.append((int(first), int(last), cols[1], cols[9]))
+            found = _RANGE_ID.match(ident)
+            if found is None:
+                raise _Bad(f"field ID: multiword range {ident!r} is malformed", lineno, 1)
+            first, last = int(found.group(1)), int(found.group(2))
+            if last <= first:
+                raise _Bad(
+                    f"field ID: multiword range {ident!r} must span two words or more", lineno, 1
+                )
+            if first != expected or first <= covered:
+                raise _Bad(
+                    f"field ID: multiword range {ident!r} must come just before word {first} "
+                    "and not overlap another range",
+                    lineno,
+                    1,
+                )
+            covered, range_line = last, lineno
+            multiword.append((first, last, cols[1], cols[9]))
         elif "." in ident:
-            whole, _, part = ident.partition(".")
-            if not (whole.isdigit() and part.isdigit()):
-                raise _Bad(f"empty node id {ident!r} is malformed", lineno)
+            found = _EMPTY_ID.match(ident)
+            if found is None:
+                raise _Bad(f"field ID: empty node id {ident!r} is malformed", lineno, 1)
+            whole, part = int(found.group(1)), int(found.group(2))
+            previous = last_empty[1] if last_empty[0] == whole else 0
+            if whole != len(tokens) or part != previous + 1:
+                raise _Bad(
+                    f"field ID: empty node {ident!r} must follow word {whole} "
+                    f"(numbered {whole}.1, {whole}.2 ...)",
+                    lineno,
+                    1,
+                )
+            if head != "_" or cols[7] != "_":
+                raise _Bad(
+                    f"field HEAD: empty node {ident!r} must have '_' in HEAD and DEPREL",
+                    lineno,
+                    _column(cols, 6),
+                )
+            last_empty = (whole, part)
             empty.append(line)
         else:
-            raise _Bad(f"word id {ident!r} is not an integer", lineno)
+            tokens.append(_parse_word(cols, lineno, expected))
     if not tokens:
         raise _Bad("sentence has no words", block[0][0])
+    if covered > len(tokens):
+        raise _Bad(
+            f"field ID: a multiword range ends at word {covered}, past the last word {len(tokens)}",
+            range_line,
+            1,
+        )
     _check_tree(tokens)
     meta = dict(metadata)
     words = tuple(tokens)
@@ -280,6 +400,27 @@ def _iter_blocks(path: Path) -> Iterator[tuple[list[tuple[int, str]], _Bad | Non
             yield block, defect
 
 
+_UNREADABLE = (EOFError, zlib.error, lzma.LZMAError, OSError)
+
+
+def _read_blocks(path: Path) -> Iterator[tuple[list[tuple[int, str]], _Bad | None]]:
+    """``_iter_blocks`` with damaged files (truncated or corrupt .gz/.xz, unreadable) turned
+    into one ``CorpusError`` naming the file and the last line read: the rest cannot be read,
+    so even ``on_error="skip"`` stops here."""
+    last_line = 0
+    try:
+        for block, defect in _iter_blocks(path):
+            last_line = block[-1][0]
+            yield block, defect
+    except _UNREADABLE as error:
+        kind = {".gz": "gzip", ".xz": "xz"}.get(path.suffix, "")
+        what = f"damaged or not a {kind} file" if kind else "cannot be read"
+        detail = getattr(error, "strerror", None) or str(error) or type(error).__name__
+        raise CorpusError(
+            f"{what} after line {last_line} ({detail})", SourceLocation.of(path, last_line + 1)
+        ) from None
+
+
 def iter_sentences(
     paths: PathLike | Iterable[PathLike],
     *,
@@ -295,13 +436,13 @@ def iter_sentences(
         raise ValueError(f"on_error must be 'raise' or 'skip', not {on_error!r}")
     for path in resolve_paths(paths):
         stem, source = _stem(path), str(path)
-        for number, (block, defect) in enumerate(_iter_blocks(path), 1):
+        for number, (block, defect) in enumerate(_read_blocks(path), 1):
             try:
                 if defect is not None:
                     raise defect
                 sentence = _build(block, stem, number, source)
             except _Bad as bad:
-                error = CorpusError(bad.message, SourceLocation.of(path, bad.line))
+                error = CorpusError(bad.message, SourceLocation.of(path, bad.line, bad.column))
                 if on_error == "raise":
                     raise error from None
                 if errors is not None:

@@ -361,8 +361,15 @@ def tei_snapshot(source: str | Path | bytes) -> Snapshot:
         raise SourceError(f"the root element is {root.tag}, not a TEI element",
                           SourceLocation(name))
     reader = _TeiWalk(name)
-    for body in root.iterfind(f"{_T}text/{_T}body"):
-        reader.walk(body)
+    try:
+        for body in root.iterfind(f"{_T}text/{_T}body"):
+            reader.walk(body)
+    except (ValueError, KeyError, TypeError, AttributeError, IndexError) as error:
+        if isinstance(error, SourceError) and name in str(error):
+            raise
+        raise SourceError(
+            f"not a TEI Lex-0 export lexbuild can read back: {error}", SourceLocation(name)
+        ) from None
     return reader.entries
 
 

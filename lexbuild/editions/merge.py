@@ -44,10 +44,11 @@ it touches; other flags are left alone.
 Atomicity: the whole sources folder is copied to a staging sibling, updated there, and swapped in
 with one ``renameat2(RENAME_EXCHANGE)`` where the system has it (Linux); elsewhere two renames
 with a backup folder that ``recover_interrupted`` puts back. An interrupted merge leaves the
-sources untouched or fully merged; a staging folder ``.<name>.*.partial`` may be left behind and
-can be deleted. One merge at a time: an advisory lock (``flock``) on the sources folder refuses
-a second concurrent merge and dies with its process. ``LEXBUILD_MERGE_PAUSE`` (seconds) sleeps
-after each staged file: a test hook to interrupt a merge half-way.
+sources untouched or fully merged; a staging folder ``.<name>.*.partial`` left behind is removed
+by the next run (``_atomic.remove_stale_staging``). One merge at a time: an advisory lock
+(``flock``) on the sources folder refuses a second concurrent merge and dies with its process.
+``LEXBUILD_MERGE_PAUSE`` (seconds) sleeps after each staged file: a test hook to interrupt a
+merge half-way.
 """
 
 from __future__ import annotations
@@ -70,7 +71,7 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
-from lexbuild._atomic import atomic_write_bytes, staging_dir
+from lexbuild._atomic import atomic_write_bytes, staging_dir, symlinks_inside
 from lexbuild.errors import MergeError, SourceError, SourceLocation
 from lexbuild.lexicon import ids
 from lexbuild.lexicon.model import (
@@ -151,7 +152,7 @@ def read_centroids(path: str | Path) -> dict[str, Vector]:
     try:
         with np.load(where, allow_pickle=False) as data:
             return {key: np.asarray(data[key], dtype=np.float32) for key in data.files}
-    except (OSError, ValueError, zipfile.BadZipFile) as error:
+    except (OSError, ValueError, EOFError, KeyError, zipfile.BadZipFile) as error:
         raise SourceError(f"cannot read centroids: {error}", SourceLocation(str(where))) from None
 
 
@@ -175,31 +176,33 @@ def _read_assignments(path: Path) -> dict[str, set[Sentence]]:
     found: dict[str, set[Sentence]] = {}
     if not path.is_file():
         return found
-    with path.open(encoding="utf-8", newline="") as handle:
-        reader = csv.reader(handle, delimiter="\t")
-        try:
-            for cells in reader:
-                number = reader.line_num
-                if number == 1:
-                    if tuple(cells) != _ASSIGNMENT_HEADER:
-                        raise SourceError(
-                            f"header must be {' '.join(_ASSIGNMENT_HEADER)} (tab-separated), "
-                            f"got {' '.join(cells)!r}",
-                            SourceLocation(str(path), 1),
-                        )
-                    continue
-                if not cells:
-                    continue
-                if len(cells) != len(_ASSIGNMENT_HEADER):
+    from lexbuild._readers import text_lines
+
+    reader = csv.reader(text_lines(path, SourceError), delimiter="\t")
+    try:
+        for cells in reader:
+            number = reader.line_num
+            if number == 1:
+                if tuple(cells) != _ASSIGNMENT_HEADER:
                     raise SourceError(
-                        f"expected {len(_ASSIGNMENT_HEADER)} tab-separated fields "
-                        f"({', '.join(_ASSIGNMENT_HEADER)}), got {len(cells)}",
-                        SourceLocation(str(path), number),
+                        f"header must be {' '.join(_ASSIGNMENT_HEADER)} (tab-separated), "
+                        f"got {' '.join(cells)!r}",
+                        SourceLocation(str(path), 1),
                     )
-                found.setdefault(cells[1], set()).add((cells[2], cells[3]))
-        except csv.Error as error:
-            raise SourceError(f"bad TSV: {error}",
-                              SourceLocation(str(path), reader.line_num)) from None
+                continue
+            if not cells:
+                continue
+            if len(cells) != len(_ASSIGNMENT_HEADER):
+                raise SourceError(
+                    f"expected {len(_ASSIGNMENT_HEADER)} tab-separated fields "
+                    f"({', '.join(_ASSIGNMENT_HEADER)}), got {len(cells)}",
+                    SourceLocation(str(path), number),
+                )
+            found.setdefault(cells[1], set()).add((cells[2], cells[3]))
+    except csv.Error as error:
+        raise SourceError(
+            f"bad TSV: {error}", SourceLocation(str(path), reader.line_num)
+        ) from None
     return found
 
 
@@ -213,10 +216,9 @@ def read_induction(folder: str | Path) -> InducedFolder:
             "`lexbuild induce` to make one)",
             SourceLocation(str(settings_path)),
         )
-    try:
-        settings = json.loads(settings_path.read_text(encoding="utf-8"))
-    except (ValueError, UnicodeDecodeError) as error:
-        raise MergeError(f"invalid JSON: {error}", SourceLocation(str(settings_path))) from None
+    from lexbuild._readers import load_json
+
+    settings = load_json(settings_path, MergeError)
     if not isinstance(settings, dict):
         raise MergeError("expected a JSON object", SourceLocation(str(settings_path)))
     entries = [load_entry(path) for path in sorted((root / "entries").glob("*.yaml"))]
@@ -868,6 +870,12 @@ def _merge_locked(
         report.files_written.append(CENTROIDS_FILE)
     if dry_run or not report.files_written:
         return report
+    links = symlinks_inside(root)
+    if links:  # the staging copy would keep them, and writes would go through them
+        raise MergeError(
+            f"{links[0]} is a symbolic link: merge refuses to write through links in a sources "
+            "folder; replace it with the files it points to"
+        )
     root = root.resolve()
     with staging_dir(root) as stage:
         shutil.copytree(root, stage, symlinks=True, dirs_exist_ok=True)

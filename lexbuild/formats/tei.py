@@ -642,8 +642,8 @@ def read_tei(source: str | Path | bytes) -> Lexicon:
         meta = _read_meta(header)
         entries = [_read_entry(entry) for entry in root.iterfind("t:text/t:body/t:entry", ns)]
         return Lexicon(meta=meta, entries=entries)
-    except (ValueError, KeyError) as error:
-        if isinstance(error, SourceError):
+    except (ValueError, KeyError, TypeError, AttributeError, IndexError) as error:
+        if isinstance(error, SourceError) and name in str(error):
             raise
         raise SourceError(
             f"{name}: not a TEI Lex-0 export lexbuild can read back: {error}"

@@ -28,7 +28,13 @@ from typing import Any, Literal, Protocol
 
 from lxml import etree, isoschematron
 
-from lexbuild.errors import SchemaError, SourceLocation, UnsafeXMLError, ValidationFailed
+from lexbuild.errors import (
+    MalformedXMLError,
+    SchemaError,
+    SourceLocation,
+    UnsafeXMLError,
+    ValidationFailed,
+)
 from lexbuild.formats.schemastore import LMF_DTD, TEI_RNG, TEI_SCH, SchemaSet, load_schemas
 from lexbuild.formats.xmlsafe import DEFAULT_MAX_BYTES, parse_untrusted, safe_parser
 from lexbuild.lexicon.model import ExtraSchema
@@ -334,9 +340,24 @@ _EXTRA_CACHE: dict[tuple[str, str, float], Any] = {}
 
 
 def _extra_path(extra: ExtraSchema, base_dir: Path | None) -> Path:
-    path = Path(extra.path)
-    if not path.is_absolute() and base_dir is not None:
-        path = base_dir / path
+    """The schema file of an ``extra_schemas`` item, which must lie inside the sources folder.
+
+    Absolute paths, ``..`` and symbolic links leading out are refused: a lexicon's metadata
+    must not make ``export`` read files elsewhere on the machine.
+    """
+    root = (base_dir if base_dir is not None else Path.cwd()).resolve()
+    given = Path(extra.path)
+    if given.is_absolute() or ".." in given.parts or "://" in extra.path:
+        raise SchemaError(
+            f"extra {extra.kind} schema {extra.path!r} (extra_schemas in the lexicon metadata): "
+            "give a path relative to the sources folder, without '..'"
+        )
+    path = (root / given).resolve()
+    if not path.is_relative_to(root):
+        raise SchemaError(
+            f"extra {extra.kind} schema {extra.path!r} leads out of the sources folder {root} "
+            "(a symbolic link?): copy the schema into the folder"
+        )
     if not path.is_file():
         raise SchemaError(
             f"extra {extra.kind} schema {path} (listed under extra_schemas in the lexicon "
@@ -345,20 +366,76 @@ def _extra_path(extra: ExtraSchema, base_dir: Path | None) -> Path:
     return path
 
 
-def _compiled_extra(extra: ExtraSchema, path: Path) -> Any:
+# Schema constructs that load another file: each target must be a local file in the folder.
+_LOADING_ATTRIBUTES = {
+    "{http://relaxng.org/ns/structure/1.0}include": "href",
+    "{http://relaxng.org/ns/structure/1.0}externalRef": "href",
+    "{http://www.w3.org/2001/XInclude}include": "href",
+    "{http://www.w3.org/2001/XMLSchema}import": "schemaLocation",
+    "{http://www.w3.org/2001/XMLSchema}include": "schemaLocation",
+    "{http://www.w3.org/2001/XMLSchema}redefine": "schemaLocation",
+    "{http://www.w3.org/2001/XMLSchema}override": "schemaLocation",
+    "{http://www.w3.org/1999/XSL/Transform}import": "href",
+    "{http://www.w3.org/1999/XSL/Transform}include": "href",
+}
+
+
+def _check_references(path: Path, root: Path, seen: set[Path]) -> None:
+    """Walk the files a schema loads; refuse any URL and any file outside ``root``.
+
+    Done before any library compiles the schema, so that nothing is fetched: neither lxml's
+    RelaxNG and Schematron compilers nor xmlschema get the chance to open a network address.
+    """
+    if path in seen:
+        return
+    seen.add(path)
+    try:
+        tree = parse_untrusted(path)
+    except (MalformedXMLError, UnsafeXMLError) as error:
+        raise SchemaError(f"cannot read extra schema: {error}") from None
+    for element in tree.iter(*_LOADING_ATTRIBUTES):
+        target = element.get(_LOADING_ATTRIBUTES[element.tag])
+        if not target:
+            continue
+        where = f"{path}:{element.sourceline}"
+        if re.match(r"^[A-Za-z][A-Za-z0-9+.-]*:", target) and not target.startswith("file:"):
+            raise SchemaError(
+                f"{where}: the schema loads {target!r} from the network; lexbuild never fetches "
+                "anything: copy that schema into the sources folder and refer to it by a "
+                "relative path"
+            )
+        local = (path.parent / target.removeprefix("file://")).resolve()
+        if not local.is_relative_to(root):
+            raise SchemaError(
+                f"{where}: the schema loads {target!r}, outside the sources folder {root}"
+            )
+        if local.is_file():
+            _check_references(local, root, seen)
+
+
+def _compiled_extra(extra: ExtraSchema, path: Path, root: Path | None = None) -> Any:
     key = (str(path.resolve()), extra.kind, path.stat().st_mtime)
     if key in _EXTRA_CACHE:
         return _EXTRA_CACHE[key]
+    _check_references(path.resolve(), (root or path.parent).resolve(), set())
     try:
         if extra.kind == "xsd":
+            import warnings
+
             import xmlschema
 
-            compiled: Any = xmlschema.XMLSchema(str(path))
+            # "local": files only, never a remote one (the check above keeps them in the
+            # folder); the warnings xmlschema gives for a blocked import become errors.
+            with warnings.catch_warnings():
+                warnings.simplefilter("error")
+                compiled: Any = xmlschema.XMLSchema(
+                    str(path.resolve()), allow="local", defuse="always"
+                )
         elif extra.kind == "rng":
-            compiled = etree.RelaxNG(etree.parse(str(path)))
+            compiled = etree.RelaxNG(etree.parse(str(path), safe_parser()))
         else:
             compiled = isoschematron.Schematron(
-                etree.parse(str(path)),
+                etree.parse(str(path), safe_parser()),
                 error_finder=isoschematron.Schematron.ASSERTS_AND_REPORTS,
                 store_report=True,
             )
@@ -369,9 +446,13 @@ def _compiled_extra(extra: ExtraSchema, path: Path) -> Any:
 
 
 def _extra_findings(
-    extra: ExtraSchema, path: Path, tree: etree._ElementTree, where: _Where
+    extra: ExtraSchema,
+    path: Path,
+    tree: etree._ElementTree,
+    where: _Where,
+    root: Path | None = None,
 ) -> list[XmlFinding]:
-    compiled = _compiled_extra(extra, path)
+    compiled = _compiled_extra(extra, path, root)
     label = f"{path.name} (extra {extra.kind})"
     if extra.kind == "xsd":
         findings = []
@@ -501,7 +582,7 @@ def _parse(data: bytes, where: _Where, max_bytes: int) -> etree._ElementTree | l
         return parse_untrusted(data, max_bytes=max_bytes)
     except UnsafeXMLError as error:
         return [where.finding(error.message.replace("<bytes>: ", ""), SAFETY)]
-    except etree.XMLSyntaxError as error:
+    except MalformedXMLError as error:
         # The exception's log may hold older messages: parse again with a parser of our own
         # and read its log; then once more in recovery mode to name the element near each error.
         parser = safe_parser()
@@ -531,7 +612,7 @@ def _parse(data: bytes, where: _Where, max_bytes: int) -> etree._ElementTree | l
                     xml_id=duplicate.group(1) if duplicate else None,
                 )
             )
-        return findings or [where.finding(f"not well-formed: {error}", "XML 1.0")]
+        return findings or [where.finding(f"not well-formed: {error.message}", "XML 1.0")]
 
 
 def validate_bytes(
@@ -584,7 +665,7 @@ def validate_bytes(
         findings += _lmf_pointers(tree, where)
     for extra in extras:
         if extra.format == fmt:
-            findings += _extra_findings(extra, _extra_path(extra, base), tree, where)
+            findings += _extra_findings(extra, _extra_path(extra, base), tree, where, base)
     return findings
 
 

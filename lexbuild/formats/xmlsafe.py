@@ -14,7 +14,7 @@ from typing import Any
 
 from lxml import etree
 
-from lexbuild.errors import UnsafeXMLError
+from lexbuild.errors import MalformedXMLError, SourceLocation, UnsafeXMLError
 
 __all__ = [
     "DEFAULT_MAX_BYTES",
@@ -25,6 +25,7 @@ __all__ = [
     "forbidden_character",
     "forbidden_characters",
     "indent",
+    "malformed",
     "parse_untrusted",
     "safe_parser",
 ]
@@ -52,10 +53,15 @@ def _read(source: str | Path | bytes, max_bytes: int) -> tuple[bytes, str]:
         data, name = source, "<bytes>"
     else:
         path = Path(source)
-        size = path.stat().st_size
-        if size > max_bytes:
-            raise UnsafeXMLError(f"{path}: {size} bytes is over the limit of {max_bytes} bytes")
-        data, name = path.read_bytes(), str(path)
+        try:
+            size = path.stat().st_size
+            if size > max_bytes:
+                raise UnsafeXMLError(f"{path}: {size} bytes is over the limit of {max_bytes} bytes")
+            data, name = path.read_bytes(), str(path)
+        except OSError as error:
+            raise MalformedXMLError(
+                f"cannot read the file: {error.strerror or error}", SourceLocation(str(path))
+            ) from None
     if len(data) > max_bytes:
         raise UnsafeXMLError(f"{name}: {len(data)} bytes is over the limit of {max_bytes} bytes")
     return data, name
@@ -67,7 +73,9 @@ def parse_untrusted(
     """Parse ``source`` (a path or the bytes of a document) without trusting it.
 
     Raises ``UnsafeXMLError`` for an internal DTD subset or entity declaration, or a document
-    over ``max_bytes``; ``lxml.etree.XMLSyntaxError`` for malformed XML.
+    over ``max_bytes``; ``MalformedXMLError`` (file, line, column of the first error) for XML
+    that is not well-formed, whatever the cause: syntax, encoding, two roots, a duplicate
+    ``xml:id``, nesting deeper than libxml2's 256 levels or a text node over its 10 MB.
     """
     data, name = _read(source, max_bytes)
     # Check the raw bytes first so that nothing is even parsed when a subset is present.
@@ -76,12 +84,31 @@ def parse_untrusted(
             f"{name}: the document declares an internal DTD subset or entities; lexbuild refuses "
             "them (entity expansion and external entities are attack vectors)"
         )
-    tree = etree.ElementTree(etree.fromstring(data, safe_parser(), base_url=None))
+    parser = safe_parser()
+    try:
+        tree = etree.ElementTree(etree.fromstring(data, parser, base_url=None))
+    except etree.XMLSyntaxError as error:
+        raise malformed(error, parser, name) from None
     # Belt and braces: the byte scan could be fooled by an encoding other than UTF-8/ASCII;
     # unexpanded entity references would then still show up as Entity nodes.
     for node in tree.iter(etree.Entity):
         raise UnsafeXMLError(f"{name}: entity reference &{node.name}; refused")
     return tree
+
+
+def malformed(error: etree.XMLSyntaxError, parser: etree.XMLParser, name: str) -> MalformedXMLError:
+    """The first error of a failed parse as one coded error with file, line and column."""
+    entries = [entry for entry in parser.error_log if entry.level >= etree.ErrorLevels.ERROR]
+    if entries:
+        first = entries[0]
+        message, line, column = first.message, first.line, first.column + 1
+    else:
+        message = str(error.msg or error)
+        line, column = (error.position or (0, -1))[0], (error.position or (0, -1))[1] + 1
+    return MalformedXMLError(
+        f"not well-formed XML: {message.strip()}",
+        SourceLocation(name, max(line, 0), max(column, 0)),
+    )
 
 
 # XML 1.0 section 2.2 'Char': of the C0 controls only tab, line feed and carriage return; no

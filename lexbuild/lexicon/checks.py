@@ -52,6 +52,7 @@ class Problem:
     entry: str | None  # None for the metadata file
     path: FieldPath
     message: str
+    first: FieldPath | None = None  # in the same file: an earlier value this one repeats
 
 
 @dataclass(frozen=True, slots=True)
@@ -171,6 +172,32 @@ def _duplicate_id(lexicon: Lexicon) -> Iterator[Problem]:
                 )
             else:
                 first_seen[identifier] = entry.id
+
+
+@_rule(
+    "E110",
+    "duplicate-header-id",
+    Severity.ERROR,
+    "give each editor and each corpus in lexicon.yaml its own id (exports use them as "
+    "xml:id, which must be unique)",
+)
+def _duplicate_header_id(lexicon: Lexicon) -> Iterator[Problem]:
+    for field_name, identifiers in (
+        ("editors", [editor.id for editor in lexicon.meta.editors]),
+        ("corpora", [corpus.id for corpus in lexicon.meta.corpora]),
+    ):
+        first_index: dict[str, int] = {}
+        for index, identifier in enumerate(identifiers):
+            if identifier in first_index:
+                earlier = first_index[identifier]
+                yield Problem(
+                    None,
+                    (field_name, index, "id"),
+                    f"{field_name} id {identifier!r} is already used by {field_name}[{earlier}]",
+                    first=(field_name, earlier, "id"),
+                )
+            else:
+                first_index[identifier] = index
 
 
 @_rule(
@@ -554,6 +581,13 @@ def _locate(loaded: LoadedLexicon, problem: Problem) -> SourceLocation:
     return loaded.source_map.locate(problem.entry, problem.path)
 
 
+def _with_first(loaded: LoadedLexicon, problem: Problem) -> str:
+    if problem.first is None:
+        return problem.message
+    first = _locate(loaded, Problem(problem.entry, problem.first, ""))
+    return f"{problem.message} (line {first.line})" if first.line else problem.message
+
+
 def check_lexicon(
     loaded: LoadedLexicon,
     *,
@@ -570,7 +604,7 @@ def check_lexicon(
                     code=rule.code,
                     name=rule.name,
                     severity=rule.severity,
-                    message=problem.message,
+                    message=_with_first(loaded, problem),
                     hint=rule.hint,
                     location=_locate(loaded, problem),
                     entry=problem.entry,

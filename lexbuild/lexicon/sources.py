@@ -205,9 +205,18 @@ def _yaml() -> YAML:
 
 def _read_text(path: Path, shown: str) -> str:
     try:
+        if path.stat().st_size > MAX_YAML_BYTES:
+            raise SourceError(
+                f"file larger than {MAX_YAML_BYTES} bytes: a source file is never this large",
+                SourceLocation(shown),
+            )
         data = path.read_bytes()
     except FileNotFoundError:
         raise SourceError(f"file not found: {path}", SourceLocation(shown)) from None
+    except IsADirectoryError:
+        raise SourceError(f"a folder, not a file: {path}", SourceLocation(shown)) from None
+    except OSError as error:
+        raise SourceError(f"cannot read {path}: {error.strerror}", SourceLocation(shown)) from None
     try:
         return data.decode("utf-8")
     except UnicodeDecodeError as error:
@@ -220,6 +229,7 @@ def _read_text(path: Path, shown: str) -> str:
 
 
 def _parse_yaml(text: str, shown: str) -> Any:
+    _guard_yaml(text, shown)
     try:
         return _yaml().load(text)
     except MarkedYAMLError as error:
@@ -391,6 +401,144 @@ def _libyaml_loader() -> Any:
     return CoreLoader
 
 
+# ------------------------------------------------------------------------------ input limits
+#
+# Sources are written by people, sometimes copied from elsewhere: the guard below reads the YAML
+# event stream once (libyaml's parser is iterative, so depth cannot exhaust the stack) and refuses
+# what would be lost or dangerous when building values: duplicate keys (the last one would win
+# silently), tags (``!!python/...``), merge keys (``<<``), anchors and aliases (alias bombs),
+# nesting deeper than MAX_YAML_DEPTH, numbers longer than MAX_NUMBER_CHARS and files over
+# MAX_YAML_BYTES. The limits are stated in the README ("Limits on input").
+
+#: Largest YAML source file read (bytes); an entry file is a few kilobytes.
+MAX_YAML_BYTES = 16 * 1024 * 1024
+#: Deepest nesting of mappings and sequences (the model needs 6).
+MAX_YAML_DEPTH = 64
+#: Longest number written as a plain scalar (characters).
+MAX_NUMBER_CHARS = 64
+
+
+def _event_parser(text: str) -> Iterator[Any]:
+    loader = _libyaml_loader()
+    if loader is not None:
+        import yaml
+
+        return yaml.parse(text, Loader=loader)
+    return YAML(typ="safe", pure=True).parse(text)
+
+
+def _guard_yaml(text: str, shown: str) -> None:
+    """Raise ``SourceError`` (file, line, column) on YAML constructs sources may not use."""
+
+    def where(event: Any) -> SourceLocation:
+        mark = event.start_mark
+        return SourceLocation(shown, mark.line + 1, mark.column + 1)
+
+    # One frame per open collection: for a mapping, {key: line} and whether a key comes next.
+    frames: list[tuple[dict[str, int], list[bool]] | None] = []
+    documents = 0
+    try:
+        for event in _event_parser(text):
+            kind = type(event).__name__
+            if kind in ("StreamStartEvent", "StreamEndEvent", "DocumentEndEvent"):
+                continue
+            if kind == "DocumentStartEvent":
+                documents += 1
+                if documents > 1:
+                    raise SourceError(
+                        "more than one YAML document (a second '---'): one document per file",
+                        where(event),
+                    )
+                continue
+            if kind == "AliasEvent" or getattr(event, "anchor", None):
+                raise SourceError(
+                    "anchors and aliases (&name, *name) are not allowed in sources: write the "
+                    "value out in full",
+                    where(event),
+                )
+            if getattr(event, "tag", None) and kind != "MappingEndEvent":
+                raise SourceError(
+                    f"YAML tag {event.tag!r} is not allowed in sources: remove it (values are "
+                    "plain text, numbers, lists and mappings)",
+                    where(event),
+                )
+            if kind in ("MappingEndEvent", "SequenceEndEvent"):
+                frames.pop()
+                _after_node(frames)
+                continue
+            parent = frames[-1] if frames else None
+            in_key = parent is not None and parent[1][0]
+            if kind == "ScalarEvent":
+                _check_scalar(event, where)
+                if in_key and parent is not None:
+                    _check_key(event, parent[0], where)
+                _after_node(frames)
+                continue
+            # MappingStartEvent or SequenceStartEvent
+            if in_key:
+                raise SourceError(
+                    "a mapping key must be plain text, not a list or a mapping", where(event)
+                )
+            if len(frames) >= MAX_YAML_DEPTH:
+                raise SourceError(
+                    f"nesting deeper than {MAX_YAML_DEPTH} levels: sources never need this",
+                    where(event),
+                )
+            frames.append(({}, [True]) if kind == "MappingStartEvent" else None)
+    except SourceError:
+        raise
+    except MarkedYAMLError as error:  # ruamel's parser, without libyaml
+        mark = error.problem_mark or error.context_mark
+        location = SourceLocation(shown, mark.line + 1, mark.column + 1) if mark else None
+        raise SourceError(f"invalid YAML: {error.problem or error}", location) from None
+    except Exception as error:  # PyYAML's MarkedYAMLError: same fields, another class
+        mark = getattr(error, "problem_mark", None) or getattr(error, "context_mark", None)
+        location = (
+            SourceLocation(shown, mark.line + 1, mark.column + 1) if mark else SourceLocation(shown)
+        )
+        problem = getattr(error, "problem", None) or str(error)
+        raise SourceError(f"invalid YAML: {problem}", location) from None
+
+
+def _after_node(frames: list[tuple[dict[str, int], list[bool]] | None]) -> None:
+    # A complete node in a mapping alternates key and value.
+    if frames and frames[-1] is not None:
+        flag = frames[-1][1]
+        flag[0] = not flag[0]
+
+
+def _check_scalar(event: Any, where: typing.Callable[[Any], SourceLocation]) -> None:
+    value = event.value
+    if (
+        not event.style
+        and len(value) > MAX_NUMBER_CHARS
+        and (_CORE_INT.match(value) or _CORE_FLOAT.match(value))
+    ):
+        raise SourceError(
+            f"number of {len(value)} characters (more than {MAX_NUMBER_CHARS}): quote it if it "
+            "is text",
+            where(event),
+        )
+
+
+def _check_key(
+    event: Any, seen: dict[str, int], where: typing.Callable[[Any], SourceLocation]
+) -> None:
+    key = event.value
+    line = event.start_mark.line + 1
+    if key == "<<" and not event.style:
+        raise SourceError(
+            "merge keys ('<<') are not allowed in sources: write the keys out", where(event)
+        )
+    if key in seen:
+        raise SourceError(
+            f"duplicate key {key!r} (first at line {seen[key]}, again at line {line}): only "
+            "one value would be kept; remove or merge one of them",
+            where(event),
+        )
+    seen[key] = line
+
+
 def _fast_load(text: str) -> Any:
     loader = _libyaml_loader()
     if loader is None:
@@ -403,7 +551,11 @@ def _fast_load(text: str) -> Any:
 def _read_fast(path: Path) -> Any:
     """Plain data of an entry file, or None when it needs the careful path (errors, encoding)."""
     try:
-        return _fast_load(path.read_bytes().decode("utf-8"))
+        if path.stat().st_size > MAX_YAML_BYTES:
+            return None
+        text = path.read_bytes().decode("utf-8")
+        _guard_yaml(text, str(path))
+        return _fast_load(text)
     except Exception:  # any problem (PyYAML's errors included): the careful path reports it
         return None
 

@@ -28,7 +28,7 @@ import numpy as np
 
 from lexbuild._atomic import atomic_write_bytes, atomic_write_text
 from lexbuild.corpus.occurrences import Argument, Occurrence
-from lexbuild.errors import InductionError
+from lexbuild.errors import InductionError, SourceLocation
 from lexbuild.senses.clustering import SenseClusterer
 from lexbuild.senses.evaluation import evaluate_verb
 from lexbuild.senses.vectors import CacheStats, Representation, VectorCache, encode_cached
@@ -372,16 +372,16 @@ def read_calibration(path: str | Path) -> dict[str, Any]:
     file = Path(path)
     if file.is_dir():
         file = file / "calibration.json"
-    try:
-        data = json.loads(file.read_text(encoding="utf-8"))
-    except json.JSONDecodeError as error:
-        raise InductionError(f"{file}:{error.lineno}: not valid JSON ({error.msg})") from None
+    from lexbuild._readers import load_json
+
+    data = load_json(file, InductionError)
     try:
         float(data["recommended"]["threshold"])
         str(data["representation"])
     except (KeyError, TypeError, ValueError):
         raise InductionError(
-            f"{file}: missing 'recommended.threshold' or 'representation'; write it with "
-            "'lexbuild calibrate'"
+            "missing 'recommended.threshold' or 'representation'; write it with "
+            "'lexbuild calibrate'",
+            SourceLocation(str(file)),
         ) from None
     return dict(data)

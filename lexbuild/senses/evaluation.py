@@ -236,10 +236,14 @@ def read_gold_tsv(path: str | Path) -> dict[Key, str]:
     stand, other columns aside (the development set's ``file sent_id token_id lemma form sense``).
     Rows whose sense is ``?`` (undecided) are left out.
     """
+    from lexbuild._readers import text_lines
+
     out: dict[Key, str] = {}
     columns: tuple[int, ...] = (0, 1, 2)
-    with open(path, encoding="utf-8", newline="") as fh:
-        for lineno, row in enumerate(csv.reader(fh, delimiter="\t"), start=1):
+    reader = csv.reader(text_lines(path, CorpusError), delimiter="\t")
+    try:
+        for row in reader:
+            lineno = reader.line_num
             if not row or not "".join(row).strip() or row[0].startswith("#"):
                 continue
             names = [c.strip() for c in row]
@@ -263,6 +267,8 @@ def read_gold_tsv(path: str | Path) -> dict[Key, str]:
             if sense == UNDECIDED:
                 continue
             out[(sent_id, tok)] = sense
+    except csv.Error as error:
+        raise CorpusError(f"bad TSV: {error}", SourceLocation.of(path, reader.line_num)) from None
     return out
 
 
@@ -272,35 +278,40 @@ def read_gold_conllu(paths: str | Path | Iterable[str | Path]) -> dict[Key, str]
     A small local parser on purpose: only sent_id comments and the ID, UPOS and MISC columns
     matter here. Multiword ranges (``1-2``) and empty nodes (``1.1``) are skipped.
     """
+    from lexbuild._readers import text_lines
+
     if isinstance(paths, str | Path):
         paths = [paths]
     out: dict[Key, str] = {}
     for path in paths:
         sent_id: str | None = None
-        with open(path, encoding="utf-8") as fh:
-            for lineno, raw in enumerate(fh, start=1):
-                line = raw.rstrip("\n")
-                if not line.strip():
-                    sent_id = None
-                    continue
-                if line.startswith("#"):
-                    body = line[1:].strip()
-                    if body.startswith("sent_id") and "=" in body:
-                        sent_id = body.split("=", 1)[1].strip()
-                    continue
-                cols = line.split("\t")
-                if len(cols) != 10:
-                    raise CorpusError(
-                        f"expected 10 columns, found {len(cols)}", SourceLocation.of(path, lineno)
-                    )
-                if not cols[0].isdigit() or cols[3] not in ("VERB", "AUX"):
-                    continue
-                sense = _misc_value(cols[9], "Sense")
-                if sense is None:
-                    continue
-                if sent_id is None:
-                    raise CorpusError("sentence without sent_id", SourceLocation.of(path, lineno))
-                out[(sent_id, int(cols[0]))] = sense
+        for lineno, raw in enumerate(text_lines(path, CorpusError), start=1):
+            line = raw.rstrip("\r\n")
+            if not line.strip():
+                sent_id = None
+                continue
+            if line.startswith("#"):
+                body = line[1:].strip()
+                if body.startswith("sent_id") and "=" in body:
+                    sent_id = body.split("=", 1)[1].strip()
+                continue
+            cols = line.split("\t")
+            if len(cols) != 10:
+                raise CorpusError(
+                    f"expected 10 columns, found {len(cols)}", SourceLocation.of(path, lineno)
+                )
+            word = cols[0]
+            if not (word.isascii() and word.isdigit() and len(word) < 10) or cols[3] not in (
+                "VERB",
+                "AUX",
+            ):
+                continue
+            sense = _misc_value(cols[9], "Sense")
+            if sense is None:
+                continue
+            if sent_id is None:
+                raise CorpusError("sentence without sent_id", SourceLocation.of(path, lineno))
+            out[(sent_id, int(cols[0]))] = sense
     return out
 
 

@@ -494,16 +494,19 @@ def read_assignments(folder: str | Path) -> dict[tuple[str, int], tuple[str, str
     path = Path(folder)
     if path.is_dir():
         path = path / "assignments.tsv"
+    from lexbuild._readers import text_lines
+
     out: dict[tuple[str, int], tuple[str, str]] = {}
-    with open(path, encoding="utf-8", newline="") as handle:
-        reader = csv.reader(handle, delimiter="\t")
+    reader = csv.reader(text_lines(path, InductionError), delimiter="\t")
+    try:
         header = next(reader, None)
         if header is None or tuple(header) != ASSIGNMENTS_HEADER:
             raise InductionError(
                 f"expected the header {' '.join(ASSIGNMENTS_HEADER)} (tab-separated)",
                 SourceLocation.of(path, 1),
             )
-        for lineno, row in enumerate(reader, start=2):
+        for row in reader:
+            lineno = reader.line_num
             if not row:
                 continue
             if len(row) != len(ASSIGNMENTS_HEADER):
@@ -518,4 +521,8 @@ def read_assignments(folder: str | Path) -> dict[tuple[str, int], tuple[str, str
                 raise InductionError(
                     f"field 'token': {token!r} is not an integer", SourceLocation.of(path, lineno)
                 ) from None
+    except csv.Error as error:
+        raise InductionError(
+            f"bad TSV: {error}", SourceLocation.of(path, reader.line_num)
+        ) from None
     return out
