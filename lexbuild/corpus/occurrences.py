@@ -478,7 +478,14 @@ def _subject_agreement(verb: int, dependents: list[int], tree: _Tree) -> tuple[s
             return _feature(token, "Person"), _feature(token, "Number")
         if tree.bases[node] not in ("xcomp", "conj") or tree.governor(node) < 0:
             break
-        node = tree.governor(node)
+        governor = tree.governor(node)
+        if tree.bases[node] == "xcomp":
+            # Object control ("permettez-moi de vous dire"): the object is the controller.
+            for k in tree.kids[governor]:
+                if k != node and tree.relations[k] in ("obj", "iobj"):
+                    controller = tree.tokens[k]
+                    return _feature(controller, "Person") or "3", _feature(controller, "Number")
+        node = governor
         deps = tree.kids[node]
     return "", ""
 
