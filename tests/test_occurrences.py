@@ -60,7 +60,9 @@ EXPECTED = [
 
 @pytest.fixture(scope="module")
 def fixture_occurrences() -> list[Occurrence]:
-    return list(iter_occurrences(SLOTS_FR, language="fr"))
+    # One sentence per rule: the labels decide the obliques (a corpus-level decision needs a
+    # corpus; it is tested on the treebanks in tests/test_argumenthood.py).
+    return list(iter_occurrences(SLOTS_FR, language="fr", obliques="labels"))
 
 
 def test_fixture_parses_with_the_reference_reader() -> None:
@@ -205,10 +207,14 @@ def test_s_agir_is_pronominal_impersonal_with_de(
 EN_VERBS = ("give", "look", "want", "live", "work")
 
 
-def test_english_verbs_with_their_complements(ud_dir: Path) -> None:
+@pytest.mark.parametrize("obliques", ["labels", "evidence"])
+def test_english_verbs_with_their_complements(ud_dir: Path, obliques: str) -> None:
     by_lemma: dict[str, list[Occurrence]] = {lemma: [] for lemma in EN_VERBS}
     for occurrence in iter_occurrences(
-        ud_dir / "en_ewt-ud-dev.conllu", language="en", lemmas=EN_VERBS
+        ud_dir / "en_ewt-ud-dev.conllu",
+        language="en",
+        lemmas=EN_VERBS,
+        obliques=obliques,  # type: ignore[arg-type]
     ):
         by_lemma[occurrence.lemma].append(occurrence)
     # From memory: give sb sth (double object), look for, want to + infinitive, live in, work
@@ -219,7 +225,10 @@ def test_english_verbs_with_their_complements(ud_dir: Path) -> None:
     assert _share(by_lemma["want"], lambda o: _has(o, "comp:INF")) >= 0.3
     assert _share(by_lemma["live"], lambda o: _has(o, "obl:PP[in]")) >= 0.5
     work_preps = ("obl:PP[for]", "obl:PP[on]", "obl:PP[with]", "obl:PP[at]")
-    assert _share(by_lemma["work"], lambda o: any(_has(o, p) for p in work_preps)) >= 0.3
+    # EWT has plain obl only: by the profile's rule (labels) every PP of "work" is in; the
+    # evidence of 28 tokens admits only the best attested (with), so a lower share.
+    least = 0.3 if obliques == "labels" else 0.1
+    assert _share(by_lemma["work"], lambda o: any(_has(o, p) for p in work_preps)) >= least
     # The English profile has no clitics: the core rules alone.
     everything = [o for occurrences in by_lemma.values() for o in occurrences]
     assert not any(s.realisation is Realisation.CLITIC for o in everything for s in o.slots)

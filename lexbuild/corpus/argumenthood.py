@@ -27,8 +27,9 @@ The evidence, each term a log-odds-like number added to the score (argument when
 * **the same PP with other verbs**: share of the pair's tokens whose (slot, noun) also occurs
   with at least ``spread_verbs`` other verbs ("en 2005", "à Paris" go with any verb);
 * the **labels**, when the corpus has them: (arg - mod) / tokens, weighted by the trust the
-  corpus earns: 0 when it lacks ``obl:arg`` or ``obl:mod`` (a plain ``obl`` says nothing), else
-  how often its labels agree with the verdict of the other evidence (0.5 -> 0, 1.0 -> 1).
+  corpus earns: 0 when it has no ``obl:arg`` at all (a plain ``obl`` then says nothing), else
+  how often its labels agree with the verdict of the other evidence (0.5 -> 0, 1.0 -> 1),
+  shrunk towards a prior agreement of 0.75 while few tokens are labelled.
 
 Per token, an admitted pair still leaves out a fronted PP and a PP whose noun is a time
 expression, unless most of the pair's tokens are such (the verb selects them: "dater de 1820").
@@ -40,8 +41,16 @@ import math
 from collections import Counter
 from collections.abc import Iterable, Iterator
 from dataclasses import dataclass, field
+from pathlib import Path
 
-from lexbuild.corpus.occurrences import LanguageProfile, Oblique, Occurrence, readmit
+from lexbuild.corpus.conllu import OnError
+from lexbuild.corpus.occurrences import (
+    LanguageProfile,
+    Oblique,
+    Occurrence,
+    iter_occurrences,
+    readmit,
+)
 
 __all__ = [
     "Decision",
@@ -50,6 +59,7 @@ __all__ = [
     "Verdict",
     "apply",
     "binomial_tail",
+    "count_obliques",
     "decide",
     "log_likelihood",
 ]
@@ -86,6 +96,9 @@ class ObliqueCounts:
             self.add(occurrence)
         return self
 
+    def decide(self, settings: DecisionSettings | None = None) -> Decision:
+        return decide(self, settings or DecisionSettings())
+
     def __add__(self, other: ObliqueCounts) -> ObliqueCounts:
         return ObliqueCounts(
             self.verbs + other.verbs,
@@ -110,6 +123,11 @@ class DecisionSettings:
     spread_weight: float = 1.0
     spread_verbs: int = 3
     label_weight: float = 4.0
+    # Agreement assumed of labels before any is measured, and how many tokens it is worth.
+    trust_prior: float = 0.75
+    trust_prior_weight: float = 20.0
+    # Slot tokens at which the back-off counts half (a small corpus measures it badly).
+    backoff_support: float = 20.0
     bias: float = 0.0
 
 
@@ -241,7 +259,13 @@ def decide(counts: ObliqueCounts, settings: DecisionSettings = DecisionSettings(
                 "association",
                 _clip(g2[verb, slot] / settings.association_scale, settings.association_cap),
             ),
-            ("backoff", (backoff[slot] - settings.backoff_centre) * settings.backoff_weight),
+            (
+                "backoff",
+                (backoff[slot] - settings.backoff_centre)
+                * settings.backoff_weight
+                * per_slot[slot]
+                / (per_slot[slot] + settings.backoff_support),
+            ),
             (
                 "class",
                 -settings.class_weight * sum(counts.classes[verb, slot, c] for c in _CLASSES) / k,
@@ -260,16 +284,18 @@ def decide(counts: ObliqueCounts, settings: DecisionSettings = DecisionSettings(
     label_totals: Counter[str] = Counter()
     agree = labelled = 0
     for (verb, slot, label), k in counts.labels.items():
-        label_totals[label] += k
+        if not slot.startswith("obl:CLITIC"):  # a clitic's "arg" comes from iobj, not obl:arg
+            label_totals[label] += k
         if label in ("arg", "mod"):
             labelled += k
             agree += k * ((label == "arg") == (base[verb, slot][0] > 0))
     agreement = agree / labelled if labelled else 0.0
-    trust = (
-        max(0.0, min(1.0, (agreement - 0.5) / 0.5))
-        if label_totals["arg"] and label_totals["mod"]
-        else 0.0
+    # Few labelled tokens measure little: shrink towards a prior agreement (a small corpus has
+    # little other evidence either, so its labels keep some say).
+    smoothed = (agree + settings.trust_prior * settings.trust_prior_weight) / (
+        labelled + settings.trust_prior_weight
     )
+    trust = max(0.0, min(1.0, (smoothed - 0.5) / 0.5)) if label_totals["arg"] else 0.0
     verdicts: dict[tuple[str, str], Verdict] = {}
     for verb, slot in sorted(counts.pairs):
         k, n = counts.pairs[verb, slot], counts.verbs[verb]
@@ -305,3 +331,22 @@ def apply(
             continue
         flags = [decision.admits(occurrence.lemma, o) for o in occurrence.obliques]
         yield readmit(occurrence, flags, profile)
+
+
+def count_obliques(
+    paths: str | Path | Iterable[str | Path],
+    *,
+    language: str = "fr",
+    on_error: OnError = "raise",
+    include_auxiliaries: bool = False,
+) -> ObliqueCounts:
+    """The counts of a corpus's files (every verb): the first of the two passes."""
+    occurrences = iter_occurrences(
+        paths,
+        language=language,
+        on_error=on_error,
+        errors=[],  # reported by the second pass
+        include_auxiliaries=include_auxiliaries,
+        obliques="labels",
+    )
+    return ObliqueCounts().update(occurrences)

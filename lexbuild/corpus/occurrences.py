@@ -31,10 +31,14 @@ from collections.abc import Iterable, Iterator
 from dataclasses import dataclass, field, replace
 from functools import lru_cache
 from pathlib import Path
+from typing import TYPE_CHECKING, Literal
 
 from lexbuild.corpus.conllu import OnError, Sentence, Token, iter_sentences
 from lexbuild.errors import CorpusError
 from lexbuild.lexicon.model import Function, Realisation, Slot, format_frame, slot_sort_key
+
+if TYPE_CHECKING:
+    from lexbuild.corpus.argumenthood import Decision
 
 __all__ = [
     "Argument",
@@ -842,9 +846,40 @@ def iter_occurrences(
     on_error: OnError = "raise",
     errors: list[CorpusError] | None = None,
     include_auxiliaries: bool = False,
+    obliques: Literal["evidence", "labels"] = "evidence",
+    decision: Decision | None = None,
 ) -> Iterator[Occurrence]:
-    """Stream the verb occurrences of a corpus, optionally only those of some lemmas."""
+    """Stream the verb occurrences of a corpus, optionally only those of some lemmas.
+
+    Obliques are admitted by ``decision`` when given; else, with ``obliques="evidence"`` (the
+    default), by the decision lexbuild.corpus.argumenthood takes over the whole corpus, which
+    costs a first pass over the files (all verbs: the rates are corpus-wide); with
+    ``obliques="labels"``, by the treebank's labels alone (one pass).
+    """
+    from lexbuild.corpus.argumenthood import apply, count_obliques
+
     profile = profile_for(language)
+    if not isinstance(paths, str | Path):
+        paths = list(paths)  # read twice
+    if decision is None and obliques == "evidence":
+        decision = count_obliques(
+            paths, language=language, on_error=on_error, include_auxiliaries=include_auxiliaries
+        ).decide()
+    stream = _extract(paths, profile, lemmas, on_error, errors, include_auxiliaries)
+    if decision is None:
+        yield from stream
+    else:
+        yield from apply(stream, decision, profile)
+
+
+def _extract(
+    paths: str | Path | list[str | Path],
+    profile: LanguageProfile,
+    lemmas: Iterable[str] | None,
+    on_error: OnError,
+    errors: list[CorpusError] | None,
+    include_auxiliaries: bool,
+) -> Iterator[Occurrence]:
     wanted = frozenset(lemmas) if lemmas is not None else None
     for sentence in iter_sentences(paths, on_error=on_error, errors=errors):
         # Skip whole sentences without a wanted lemma: extraction costs far more than this.
