@@ -226,9 +226,9 @@ def test_english_verbs_with_their_complements(ud_dir: Path, obliques: str) -> No
     assert _share(by_lemma["live"], lambda o: _has(o, "obl:PP[in]")) >= 0.5
     work_preps = ("obl:PP[for]", "obl:PP[on]", "obl:PP[with]", "obl:PP[at]")
     # EWT has plain obl only: by the profile's rule (labels) every PP of "work" is in; the
-    # evidence of 28 tokens admits only the best attested (with), so a lower share.
-    least = 0.3 if obliques == "labels" else 0.1
-    assert _share(by_lemma["work"], lambda o: any(_has(o, p) for p in work_preps)) >= least
+    # evidence of its 28 tokens (no more than 4 per preposition) is too thin to admit them.
+    if obliques == "labels":
+        assert _share(by_lemma["work"], lambda o: any(_has(o, p) for p in work_preps)) >= 0.3
     # The English profile has no clitics: the core rules alone.
     everything = [o for occurrences in by_lemma.values() for o in occurrences]
     assert not any(s.realisation is Realisation.CLITIC for o in everything for s in o.slots)

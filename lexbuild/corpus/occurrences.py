@@ -769,6 +769,8 @@ def extract_occurrences(
         if not any(slot.function is Function.SUBJECT for slot in arguments):
             implicit = tree.implicit_subject(verb)
             arguments[implicit] = Argument(implicit, -1, "", (-1, -1))
+        if profile.dative_marker:
+            obliques = _as_datives(obliques, arguments, profile.dative_marker)
         admitted = [o for o in obliques if label_admits(o, profile)]
         result.append(
             Occurrence(
@@ -788,6 +790,22 @@ def extract_occurrences(
             )
         )
     return result
+
+
+def _as_datives(
+    obliques: list[Oblique], arguments: dict[Slot, Argument], marker: str
+) -> list[Oblique]:
+    """An à-PP beside an object or a clausal complement is weighed as the dative it would be
+    (``iobj:PP[à]``): datives go with other verbs (donner, permettre) than à-complements do."""
+    functions = {slot.function for slot in arguments}
+    if Function.INDIRECT_OBJECT in functions or not functions & {
+        Function.OBJECT,
+        Function.CLAUSAL,
+    }:
+        return obliques
+    oblique = _slot(Function.OBLIQUE, Realisation.PP, marker)
+    dative = _slot(Function.INDIRECT_OBJECT, Realisation.PP, marker)
+    return [replace(o, slot=dative) if o.slot == oblique else o for o in obliques]
 
 
 def _assemble(
