@@ -47,7 +47,10 @@ __all__ = [
     "Occurrence",
     "extract_occurrences",
     "iter_occurrences",
+    "label_admits",
+    "normalise_relation",
     "profile_for",
+    "readmit",
 ]
 
 
