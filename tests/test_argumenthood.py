@@ -195,7 +195,7 @@ def test_counts_reduce_across_shards(ud_dir: Path) -> None:
 def test_explained_verdict_names_its_evidence(labelled: list[Occurrence]) -> None:
     decision = ObliqueCounts().update(labelled).decide()
     verdict = decision.verdicts["participer", "obl:PP[à]"]
-    assert verdict.argument and verdict.tokens >= 20
+    assert verdict.argument and verdict.tokens >= 15
     names = [name for name, _ in verdict.evidence]
     assert names == ["association", "backoff", "class", "position", "spread", "bias", "labels"]
     assert verdict.score == pytest.approx(sum(value for _, value in verdict.evidence))
