@@ -129,9 +129,9 @@ class DecisionSettings:
     # Agreement assumed of labels before any is measured, and how many tokens it is worth.
     trust_prior: float = 0.75
     trust_prior_weight: float = 20.0
-    # Slot tokens at which the back-off counts half (a small corpus measures it badly).
+    # Slot tokens at which the back-off and the bias count half (a small corpus measures badly).
     backoff_support: float = 20.0
-    bias: float = -0.75  # an oblique is an adjunct until the evidence says otherwise
+    bias: float = -1.0  # an oblique is an adjunct until the evidence says otherwise
 
 
 @dataclass(frozen=True, slots=True)
@@ -246,6 +246,12 @@ def decide(counts: ObliqueCounts, settings: DecisionSettings = DecisionSettings(
         if value >= _SIGNIFICANT and k >= 2:  # a rare slot seen once is "significant" by chance
             significant[slot] += k
     backoff = {slot: significant[slot] / per_slot[slot] for slot in sorted(per_slot)}
+    # How far the slot's corpus-wide behaviour is measured: the back-off (per slot) and the
+    # leaning towards adjuncts (per corpus) count fully only with enough tokens; in a tiny
+    # corpus the labels speak.
+    support = {m: per_slot[m] / (per_slot[m] + settings.backoff_support) for m in per_slot}
+    observed = sum(per_slot.values())
+    corpus_support = observed / (observed + settings.backoff_support)
     # The same PP with other verbs: distinct verbs per (slot, noun).
     spread: Counter[tuple[str, str]] = Counter()
     for slot, noun, _ in counts.nouns:
@@ -264,10 +270,7 @@ def decide(counts: ObliqueCounts, settings: DecisionSettings = DecisionSettings(
             ),
             (
                 "backoff",
-                (backoff[slot] - settings.backoff_centre)
-                * settings.backoff_weight
-                * per_slot[slot]
-                / (per_slot[slot] + settings.backoff_support),
+                (backoff[slot] - settings.backoff_centre) * settings.backoff_weight * support[slot],
             ),
             (
                 "class",
@@ -276,7 +279,7 @@ def decide(counts: ObliqueCounts, settings: DecisionSettings = DecisionSettings(
             ("position", -settings.fronted_weight * counts.fronted[verb, slot] / k),
             ("spread", -settings.spread_weight * promiscuous[verb, slot] / k),
         ]
-        evidence.append(("bias", settings.bias))
+        evidence.append(("bias", settings.bias * corpus_support))
         return sum(value for _, value in evidence), evidence
 
     base = {pair: unlabelled(*pair) for pair in counts.pairs}
