@@ -8,13 +8,20 @@ UD), then compares, verb by verb, the verbs' dependents with the gold tree's:
   argument or oblique relation (nsubj*, csubj*, obj*, iobj*, obl*, ccomp, xcomp, expl*), the
   marker being the lemmas of the dependent's case/mark children (with their fixed parts);
 * **slots**: (verb position, slot) for the slots lexbuild.corpus.occurrences extracts (what frames
-  are counted from), unexpressed subjects left out.
+  are counted from), unexpressed subjects left out;
+* **frames**: per gold verb token, whether the predicted verb at the same position has the same
+  whole frame (unexpressed subjects included); the share of gold verb tokens that do.
+
+Obliques are decided as ``lexbuild frames`` does (``--obliques evidence``: the corpus-level
+decision of lexbuild.corpus.argumenthood, taken separately on the gold trees and on the parsed
+sentences, each a corpus of its own; ``--obliques labels``: by the labels alone).
 
 A verb's position is its first character in the sentence text, so a verb the parser misses
 (or a word it wrongly takes for a verb) costs recall (or precision). Items are multisets;
 precision = matched / predicted, recall = matched / gold, F1 their harmonic mean.
 
     python benchmarks/parse_agreement.py [GOLD.conllu] [--pipeline NAME] [--limit N]
+        [--obliques evidence|labels]
 """
 
 from __future__ import annotations
@@ -27,8 +34,9 @@ import time
 from collections import Counter
 from pathlib import Path
 
+from lexbuild.corpus.argumenthood import ObliqueCounts, apply
 from lexbuild.corpus.conllu import Sentence, iter_sentences
-from lexbuild.corpus.occurrences import extract_occurrences, profile_for
+from lexbuild.corpus.occurrences import Occurrence, extract_occurrences, profile_for
 from lexbuild.corpus.textparse import DEFAULT_PIPELINE, doc_to_conllu, load_pipeline
 
 DEFAULT_GOLD = Path(__file__).resolve().parents[2] / "shared/corpora/ud/fr_gsd-ud-test.conllu"
@@ -63,15 +71,37 @@ def relation_items(sentence: Sentence) -> Counter[tuple[int, str, str]]:
     return items
 
 
-def slot_items(sentence: Sentence, language: str) -> Counter[tuple[int, str, str]]:
+def decided_occurrences(
+    sentences: list[Sentence], language: str, obliques: str
+) -> list[list[Occurrence]]:
+    """Each sentence's occurrences, obliques decided over all the sentences as one corpus."""
+    profile = profile_for(language)
+    per_sentence = [extract_occurrences(s, profile) for s in sentences]
+    if obliques == "labels":
+        return per_sentence
+    counts = ObliqueCounts()
+    for occurrences in per_sentence:
+        counts.update(occurrences)
+    decision = counts.decide()
+    return [list(apply(occurrences, decision, profile)) for occurrences in per_sentence]
+
+
+def slot_items(occurrences: list[Occurrence]) -> Counter[tuple[int, str, str]]:
     items: Counter[tuple[int, str, str]] = Counter()
-    for occurrence in extract_occurrences(sentence, profile_for(language)):
+    for occurrence in occurrences:
         if occurrence.char_span[0] < 0:
             continue
         for argument in occurrence.arguments:
             if argument.expressed:
                 items[(occurrence.char_span[0], str(argument.slot), "")] += 1
     return items
+
+
+def frame_agreement(gold: list[Occurrence], predicted: list[Occurrence]) -> tuple[int, int]:
+    """(gold verb tokens whose predicted verb has the same frame, gold verb tokens)."""
+    by_start = {o.char_span[0]: o.frame for o in predicted if o.char_span[0] >= 0}
+    same = sum(by_start.get(o.char_span[0]) == o.frame for o in gold)
+    return same, len(gold)
 
 
 def prf(matched: int, predicted: int, gold: int) -> tuple[float, float, float]:
@@ -87,6 +117,7 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--pipeline", default=DEFAULT_PIPELINE)
     parser.add_argument("--language", default="fr")
     parser.add_argument("--limit", type=int, default=0, help="first N sentences only")
+    parser.add_argument("--obliques", choices=("evidence", "labels"), default="evidence")
     args = parser.parse_args(argv)
 
     gold = list(iter_sentences(args.gold))
@@ -102,16 +133,22 @@ def main(argv: list[str] | None = None) -> int:
         path.write_text("".join(chunks), encoding="utf-8")
         predicted = list(iter_sentences(path))
     assert len(predicted) == len(gold)
+    gold_occurrences = decided_occurrences(gold, args.language, args.obliques)
+    pred_occurrences = decided_occurrences(predicted, args.language, args.obliques)
 
     totals = {"relations": [0, 0, 0], "slots": [0, 0, 0]}
+    frames = [0, 0]
     by_relation: dict[str, list[int]] = {}
-    for gold_sentence, pred_sentence in zip(gold, predicted, strict=True):
+    for index, (gold_sentence, pred_sentence) in enumerate(zip(gold, predicted, strict=True)):
+        same, verbs = frame_agreement(gold_occurrences[index], pred_occurrences[index])
+        frames[0] += same
+        frames[1] += verbs
         for name, gold_items, pred_items in (
             ("relations", relation_items(gold_sentence), relation_items(pred_sentence)),
             (
                 "slots",
-                slot_items(gold_sentence, args.language),
-                slot_items(pred_sentence, args.language),
+                slot_items(gold_occurrences[index]),
+                slot_items(pred_occurrences[index]),
             ),
         ):
             common = gold_items & pred_items
@@ -127,13 +164,17 @@ def main(argv: list[str] | None = None) -> int:
     print(
         f"gold: {args.gold.name}, {len(gold)} sentences; pipeline {nlp.meta['lang']}_"
         f"{nlp.meta['name']}-{nlp.meta['version']}; parse {len(gold) / seconds:.0f} "
-        f"sentences/s",
+        f"sentences/s; obliques by {args.obliques}",
         file=out,
     )
     print(f"{'items':<22}{'P':>7}{'R':>7}{'F1':>7}{'gold':>7}{'pred':>7}", file=out)
     for name, (hits, pred, gold_count) in totals.items():
         p, r, f = prf(hits, pred, gold_count)
         print(f"{name:<22}{p:7.3f}{r:7.3f}{f:7.3f}{gold_count:7d}{pred:7d}", file=out)
+    print(
+        f"whole frames: {frames[0] / max(frames[1], 1):.3f} of {frames[1]} gold verb tokens",
+        file=out,
+    )
     print("by relation (gold >= 20):", file=out)
     for relation, (hits, pred, gold_count) in sorted(
         by_relation.items(), key=lambda item: -item[1][2]

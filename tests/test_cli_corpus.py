@@ -139,3 +139,43 @@ def test_english_and_compressed_input(
     plain = capsys.readouterr().out
     assert main(["frames", str(packed), *args]) == 0
     assert capsys.readouterr().out == plain
+
+
+def test_explain_shows_the_decision_per_verb_and_slot(
+    ud_dir: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    gsd = str(ud_dir / "fr_gsd-ud-dev.conllu")
+    args = ["frames", gsd, "--lemma", "participer", "--lemma", "naître", "--explain"]
+    assert main([*args, "--format", "tsv"]) == 0
+    out = capsys.readouterr().out.splitlines()
+    assert out[0].startswith("# label_trust=")
+    rows = {(r["lemma"], r["slot"]): r for r in csv.DictReader(out[1:], delimiter="\t")}
+    # From memory (facts of the trade): participer à qch; "naître en <year>" a time adjunct.
+    participer = rows["participer", "obl:PP[à]"]
+    assert participer["verdict"] == "argument" and float(participer["score"]) > 0
+    assert "association=+" in participer["evidence"] and "labels=" in participer["evidence"]
+    assert rows["naître", "obl:PP[en]"]["verdict"] == "adjunct"
+    assert main([*args, "--format", "json"]) == 0
+    document = json.loads(capsys.readouterr().out)
+    assert 0.0 <= document["label_trust"] <= 1.0
+    verbs = {v["lemma"]: v for v in document["verbs"]}
+    slots = {o["slot"]: o for o in verbs["participer"]["obliques"]}
+    assert slots["obl:PP[à]"]["argument"] is True
+    assert set(slots["obl:PP[à]"]["evidence"]) >= {"association", "class", "position", "labels"}
+    assert main(args) == 0
+    assert "obl:PP[à]" in capsys.readouterr().out
+
+
+def test_obliques_by_labels_and_significance_options(
+    ud_dir: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    gsd = str(ud_dir / "fr_gsd-ud-test.conllu")
+    assert main(["frames", gsd, "--format", "tsv", "--obliques", "labels"]) == 0
+    labels = capsys.readouterr().out
+    assert main(["frames", gsd, "--format", "tsv"]) == 0
+    evidence = capsys.readouterr().out
+    assert labels != evidence
+    assert main(["frames", gsd, "--format", "tsv", "--significance", "0.05"]) == 0
+    assert capsys.readouterr().out != evidence
+    assert main(["frames", gsd, "--significance", "1.5"]) == 2
+    assert "--significance" in capsys.readouterr().err

@@ -9,12 +9,25 @@ from collections.abc import Iterable, Iterator, Sequence
 from typing import TYPE_CHECKING, TextIO
 
 if TYPE_CHECKING:
+    from lexbuild.corpus.argumenthood import Decision, Verdict
     from lexbuild.corpus.occurrences import Occurrence
     from lexbuild.corpus.valency import FrameCount, FrameThresholds
 
 __all__ = ["register"]
 
 TSV_COLUMNS = ("lemma", "frame", "count", "share")
+EXPLAIN_COLUMNS = (
+    "lemma",
+    "slot",
+    "verdict",
+    "score",
+    "tokens",
+    "verb_tokens",
+    "expected",
+    "g2",
+    "p_value",
+    "evidence",
+)
 
 
 def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) -> None:
@@ -54,6 +67,42 @@ def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) ->
         "--no-optional",
         action="store_true",
         help="keep a frame with and without a slot apart instead of marking the slot optional",
+    )
+    parser.add_argument(
+        "--significance",
+        type=float,
+        default=None,
+        metavar="ALPHA",
+        help=(
+            "keep a frame when a binomial test rejects, at this level, that it is noise at "
+            "--noise-rate (Brent 1993), instead of the --min-share cut-off"
+        ),
+    )
+    parser.add_argument(
+        "--noise-rate",
+        type=float,
+        default=0.02,
+        metavar="P",
+        help="rate at which a frame a verb does not take is seen anyway, 0..1 (0.02)",
+    )
+    parser.add_argument(
+        "--obliques",
+        choices=("evidence", "labels"),
+        default="evidence",
+        help=(
+            "how prepositional phrases are told arguments or adjuncts: from evidence over the "
+            "whole corpus (association of verb and preposition, class of the noun, position, "
+            "the labels as far as the corpus earns trust; reads the corpus twice) or from the "
+            "obl:arg/obl:mod labels alone (evidence)"
+        ),
+    )
+    parser.add_argument(
+        "--explain",
+        action="store_true",
+        help=(
+            "also show, per verb and oblique slot, the decision: verdict, score and each piece "
+            "of evidence (with --format tsv: that table instead of the frames)"
+        ),
     )
     parser.add_argument(
         "--format", choices=("table", "tsv", "json"), default="table", help="output format"
@@ -97,6 +146,7 @@ def _with_progress(
 
 def run_frames(args: argparse.Namespace) -> int:
     from lexbuild._atomic import atomic_write_text
+    from lexbuild.corpus.argumenthood import count_obliques
     from lexbuild.corpus.occurrences import iter_occurrences
     from lexbuild.corpus.valency import FrameThresholds, count_frames
     from lexbuild.errors import CorpusError
@@ -106,11 +156,27 @@ def run_frames(args: argparse.Namespace) -> int:
             f"--min-count must be at least 1 (got {args.min_count}) and --min-share within "
             f"0..1 (got {args.min_share})"
         )
+    if args.significance is not None and not 0.0 < args.significance < 1.0:
+        raise CorpusError(f"--significance must lie within 0..1, got {args.significance}")
+    if not 0.0 < args.noise_rate < 1.0:
+        raise CorpusError(f"--noise-rate must lie within 0..1, got {args.noise_rate}")
     thresholds = FrameThresholds(
-        min_count=args.min_count, min_share=args.min_share, merge_optional=not args.no_optional
+        min_count=args.min_count,
+        min_share=args.min_share,
+        merge_optional=not args.no_optional,
+        significance=args.significance,
+        noise_rate=args.noise_rate,
     )
     errors: list[CorpusError] = []
     stats: dict[str, list[int]] = {}
+    decision = None
+    if args.obliques == "evidence":
+        decision = count_obliques(
+            args.corpus,
+            language=args.language,
+            on_error=args.on_error,
+            include_auxiliaries=args.include_aux,
+        ).decide()
     occurrences = iter_occurrences(
         args.corpus,
         language=args.language,
@@ -118,9 +184,15 @@ def run_frames(args: argparse.Namespace) -> int:
         on_error=args.on_error,
         errors=errors,
         include_auxiliaries=args.include_aux,
+        obliques=args.obliques,
+        decision=decision,
     )
     table = count_frames(_with_progress(occurrences, stats), thresholds)
-    text = format_table(table, stats, args.format, len(errors), thresholds)
+    explained = decision if args.explain else None
+    if explained is not None and args.format == "tsv":
+        text = format_decision_tsv(explained, set(table))
+    else:
+        text = format_table(table, stats, args.format, len(errors), thresholds, explained)
     if args.output:
         atomic_write_text(args.output, text)
     else:
@@ -129,21 +201,66 @@ def run_frames(args: argparse.Namespace) -> int:
     return 1 if errors else 0
 
 
+def _verdicts(decision: Decision, lemma: str) -> list[Verdict]:
+    """A verb's verdicts, strongest argument first."""
+    rows = [v for (verb, _), v in decision.verdicts.items() if verb == lemma]
+    return sorted(rows, key=lambda v: (-v.score, v.slot))
+
+
+def format_decision_tsv(decision: Decision, lemmas: set[str]) -> str:
+    """The argument/adjunct decision per verb and oblique slot, one TSV row each."""
+    lines = [f"# label_trust={decision.label_trust:.4f}", "\t".join(EXPLAIN_COLUMNS)]
+    for lemma in sorted(lemmas):
+        for v in _verdicts(decision, lemma):
+            lines.append(
+                "\t".join(
+                    (
+                        v.verb,
+                        v.slot,
+                        "argument" if v.argument else "adjunct",
+                        f"{v.score:.3f}",
+                        str(v.tokens),
+                        str(v.verb_tokens),
+                        f"{v.expected:.3f}",
+                        f"{v.g2:.3f}",
+                        f"{v.p_value:.4g}",
+                        v.explain(),
+                    )
+                )
+            )
+    return "\n".join(lines) + "\n"
+
+
+def _verdict_json(v: Verdict) -> dict[str, object]:
+    return {
+        "slot": v.slot,
+        "argument": v.argument,
+        "score": round(v.score, 4),
+        "tokens": v.tokens,
+        "expected": round(v.expected, 4),
+        "g2": round(v.g2, 4),
+        "p_value": float(f"{v.p_value:.4g}"),
+        "evidence": {name: round(value, 4) for name, value in v.evidence},
+    }
+
+
 def format_table(
     table: dict[str, list[FrameCount]],
     stats: dict[str, list[int]],
     fmt: str,
     skipped: int = 0,
     thresholds: FrameThresholds | None = None,
+    decision: Decision | None = None,
 ) -> str:
-    """The frame table as ``tsv`` (lemma, frame, count, share), ``json`` or ``table`` text."""
+    """The frame table as ``tsv`` (lemma, frame, count, share), ``json`` or ``table`` text;
+    with a ``decision``, the verdicts on each verb's obliques too (json and table)."""
     rows = [row for lemma in sorted(table) for row in table[lemma]]
     if fmt == "tsv":
         lines = ["\t".join(TSV_COLUMNS)]
         lines.extend(f"{r.lemma}\t{r.frame}\t{r.count}\t{r.share:.4f}" for r in rows)
         return "\n".join(lines) + "\n"
     if fmt == "json":
-        document = {
+        document: dict[str, object] = {
             "thresholds": (
                 {"min_count": thresholds.min_count, "min_share": thresholds.min_share}
                 if thresholds
@@ -162,10 +279,17 @@ def format_table(
                         {"frame": r.frame, "count": r.count, "share": round(r.share, 4)}
                         for r in table[lemma]
                     ],
+                    **(
+                        {"obliques": [_verdict_json(v) for v in _verdicts(decision, lemma)]}
+                        if decision is not None
+                        else {}
+                    ),
                 }
                 for lemma in sorted(table)
             ],
         }
+        if decision is not None:
+            document["label_trust"] = round(decision.label_trust, 4)
         return json.dumps(document, ensure_ascii=False, indent=2) + "\n"
     # A table for people: one block per verb.
     out: list[str] = []
@@ -177,6 +301,13 @@ def format_table(
             out.append("  (no frame above the thresholds)")
         for r in table[lemma]:
             out.append(f"  {r.frame:<{width}}  {r.count:>7}  {r.share:6.1%}")
+        if decision is not None:
+            for v in _verdicts(decision, lemma):
+                verdict = "argument" if v.argument else "adjunct "
+                out.append(
+                    f"    {v.slot:<{width - 2}}  {verdict} {v.score:+6.2f}  {v.tokens}/"
+                    f"{v.verb_tokens}  {v.explain()}"
+                )
     return "\n".join(out) + ("\n" if out else "")
 
 

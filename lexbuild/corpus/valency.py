@@ -7,6 +7,9 @@ The pipeline, the same for one verb (``frames_for``) and for a whole corpus (``c
 2. **Drop noise.** A raw pattern is kept when its count is at least ``min_count`` *and* its
    share of the verb's occurrences (all of them, dropped ones included) is at least
    ``min_share``. Parser errors and rare adjunct-like attachments mostly fall below both.
+   Optionally (``significance``), the share cut-off is replaced by a binomial test against a
+   noise rate, as in subcategorisation acquisition (Brent 1993; Korhonen 2002): a frequent verb
+   then needs a smaller share, a rare one a larger.
 3. **Optional slots.** A slot is marked optional (``obj:NP?``) when the same frame occurs with
    and without it, both above the thresholds of step 2. How it is decided, deterministically:
    the kept patterns are visited from the longest to the shortest (then by count, descending,
@@ -28,6 +31,7 @@ from collections import Counter
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
 
+from lexbuild.corpus.argumenthood import binomial_tail
 from lexbuild.corpus.occurrences import Occurrence
 from lexbuild.lexicon.ids import frame_id
 from lexbuild.lexicon.model import Frame, Slot, format_frame, slot_sort_key
@@ -58,12 +62,29 @@ class FrameThresholds:
     min_count: int = 2
     min_share: float = 0.05
     merge_optional: bool = True
+    # The significance test instead of min_share (Brent 1993): a pattern is kept when the
+    # binomial probability of seeing it that often, were it noise at ``noise_rate``, is below
+    # ``significance``. None: the relative frequency cut-off.
+    significance: float | None = None
+    noise_rate: float = 0.02
 
     def __post_init__(self) -> None:
         if self.min_count < 1:
             raise ValueError(f"min_count must be at least 1, got {self.min_count}")
         if not 0.0 <= self.min_share <= 1.0:
             raise ValueError(f"min_share must lie in [0, 1], got {self.min_share}")
+        if self.significance is not None and not 0.0 < self.significance < 1.0:
+            raise ValueError(f"significance must lie in (0, 1), got {self.significance}")
+        if not 0.0 < self.noise_rate < 1.0:
+            raise ValueError(f"noise_rate must lie in (0, 1), got {self.noise_rate}")
+
+    def keeps(self, count: int, total: int) -> bool:
+        """Whether a pattern seen ``count`` times in ``total`` occurrences is no noise."""
+        if count < self.min_count:
+            return False
+        if self.significance is None:
+            return count / total >= self.min_share
+        return binomial_tail(count, total, self.noise_rate) < self.significance
 
 
 @dataclass(frozen=True, slots=True)
@@ -105,11 +126,7 @@ def select_frames(
     total = sum(merged.values())
     if total == 0:
         return [], 0
-    kept = {
-        slots: count
-        for slots, count in merged.items()
-        if count >= thresholds.min_count and count / total >= thresholds.min_share
-    }
+    kept = {slots: count for slots, count in merged.items() if thresholds.keeps(count, total)}
     selected = (
         _merge_optional(kept)
         if thresholds.merge_optional
