@@ -129,7 +129,8 @@ def test_registry_and_cli(tmp_path: Path, sample_lexicon_dir: Path, turtle: byte
     assert format_for_file("x/lexicon.ontolex.ttl") is ontolex
     assert format_for_file("x/other.xml").name == "tei"  # XML: TEI or LMF, told by the root
     out = tmp_path / "lexicon.ontolex.ttl"
-    assert main(["export", str(sample_lexicon_dir), "--format", "ontolex", "--output", str(out)]) == 0
+    argv = ["export", str(sample_lexicon_dir), "--format", "ontolex", "--output", str(out)]
+    assert main(argv) == 0
     assert out.read_bytes() == turtle
     assert main(["validate", str(out)]) == 0
     out.write_bytes(turtle.replace(b"ontolex:canonicalForm", b"ontolex:otherForm", 1))
