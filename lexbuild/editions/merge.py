@@ -53,15 +53,10 @@ after each staged file: a test hook to interrupt a merge half-way.
 from __future__ import annotations
 
 import contextlib
-import csv
-import ctypes
-import errno
-import io
 import json
 import os
 import shutil
 import time
-import zipfile
 from collections.abc import Iterable, Iterator, Mapping, Sequence
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
@@ -70,8 +65,8 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
-from lexbuild._atomic import atomic_write_bytes, staging_dir
-from lexbuild.errors import MergeError, SourceError, SourceLocation
+from lexbuild._atomic import recover_swap, staging_dir, swap_dir
+from lexbuild.errors import MergeError, SourceLocation
 from lexbuild.lexicon import ids
 from lexbuild.lexicon.model import (
     Corpus,
@@ -83,25 +78,25 @@ from lexbuild.lexicon.model import (
     Sense,
     Status,
 )
-from lexbuild.lexicon.sources import load_entry
+from lexbuild.senses.induction_folder import (
+    CENTROIDS_FILE,
+    InducedFolder,
+    read_centroids,
+    read_induction,
+    write_centroids,
+)
 
 __all__ = [
-    "CENTROIDS_FILE",
     "FLAG_PREFIXES",
-    "InducedFolder",
     "MergeReport",
     "MergeSettings",
     "SenseMatch",
     "match_senses",
     "merge_induction",
     "merge_lexicon",
-    "read_centroids",
-    "read_induction",
     "recover_interrupted",
-    "write_centroids",
 ]
 
-CENTROIDS_FILE = "centroids.npz"
 PAUSE_ENV = "LEXBUILD_MERGE_PAUSE"
 UNSUPPORTED = "unsupported:"
 SPLIT_FROM = "split-from:"
@@ -124,108 +119,6 @@ class MergeSettings:
             raise MergeError(f"example_weight must be in [0, 1], got {self.example_weight}")
         if self.max_examples < 0 or self.split_min_examples < 1:
             raise MergeError("max_examples must be >= 0 and split_min_examples >= 1")
-
-
-# --------------------------------------------------------------------------- induction folder
-
-
-@dataclass
-class InducedFolder:
-    """An induction folder read into memory."""
-
-    settings: dict[str, Any]
-    entries: list[Entry]
-    centroids: dict[str, Vector]
-    assignments: dict[str, set[Sentence]]  # induced sense id -> clustered sentences
-
-    @property
-    def run(self) -> str:
-        return str(self.settings.get("run") or self.settings.get("run_id") or "unknown")
-
-
-def read_centroids(path: str | Path) -> dict[str, Vector]:
-    """Sense id -> float32 vector from an ``.npz`` file (empty when the file is absent)."""
-    where = Path(path)
-    if not where.is_file():
-        return {}
-    try:
-        with np.load(where, allow_pickle=False) as data:
-            return {key: np.asarray(data[key], dtype=np.float32) for key in data.files}
-    except (OSError, ValueError, zipfile.BadZipFile) as error:
-        raise SourceError(f"cannot read centroids: {error}", SourceLocation(str(where))) from None
-
-
-def write_centroids(path: str | Path, centroids: Mapping[str, Vector]) -> None:
-    """Deterministic ``.npz`` (sorted keys, fixed zip timestamps), written atomically."""
-    buffer = io.BytesIO()
-    with zipfile.ZipFile(buffer, "w", compression=zipfile.ZIP_STORED) as archive:
-        for key in sorted(centroids):
-            info = zipfile.ZipInfo(f"{key}.npy", date_time=(1980, 1, 1, 0, 0, 0))
-            array = io.BytesIO()
-            np.lib.format.write_array(array, np.asarray(centroids[key], dtype=np.float32))
-            archive.writestr(info, array.getvalue())
-    atomic_write_bytes(path, buffer.getvalue())
-
-
-_ASSIGNMENT_HEADER = ("lemma", "sense", "corpus", "sent_id", "token")
-
-
-def _read_assignments(path: Path) -> dict[str, set[Sentence]]:
-    """Induced sense id -> clustered (corpus, sentence) pairs, from a TSV in csv quoting."""
-    found: dict[str, set[Sentence]] = {}
-    if not path.is_file():
-        return found
-    with path.open(encoding="utf-8", newline="") as handle:
-        reader = csv.reader(handle, delimiter="\t")
-        try:
-            for cells in reader:
-                number = reader.line_num
-                if number == 1:
-                    if tuple(cells) != _ASSIGNMENT_HEADER:
-                        raise SourceError(
-                            f"header must be {' '.join(_ASSIGNMENT_HEADER)} (tab-separated), "
-                            f"got {' '.join(cells)!r}",
-                            SourceLocation(str(path), 1),
-                        )
-                    continue
-                if not cells:
-                    continue
-                if len(cells) != len(_ASSIGNMENT_HEADER):
-                    raise SourceError(
-                        f"expected {len(_ASSIGNMENT_HEADER)} tab-separated fields "
-                        f"({', '.join(_ASSIGNMENT_HEADER)}), got {len(cells)}",
-                        SourceLocation(str(path), number),
-                    )
-                found.setdefault(cells[1], set()).add((cells[2], cells[3]))
-        except csv.Error as error:
-            raise SourceError(f"bad TSV: {error}",
-                              SourceLocation(str(path), reader.line_num)) from None
-    return found
-
-
-def read_induction(folder: str | Path) -> InducedFolder:
-    """Read an induction folder; errors name the file (and line for the TSV)."""
-    root = Path(folder)
-    settings_path = root / "induction.json"
-    if not settings_path.is_file():
-        raise MergeError(
-            f"{root} is not an induction folder: induction.json is missing (run "
-            "`lexbuild induce` to make one)",
-            SourceLocation(str(settings_path)),
-        )
-    try:
-        settings = json.loads(settings_path.read_text(encoding="utf-8"))
-    except (ValueError, UnicodeDecodeError) as error:
-        raise MergeError(f"invalid JSON: {error}", SourceLocation(str(settings_path))) from None
-    if not isinstance(settings, dict):
-        raise MergeError("expected a JSON object", SourceLocation(str(settings_path)))
-    entries = [load_entry(path) for path in sorted((root / "entries").glob("*.yaml"))]
-    return InducedFolder(
-        settings=settings,
-        entries=entries,
-        centroids=read_centroids(root / CENTROIDS_FILE),
-        assignments=_read_assignments(root / "assignments.tsv"),
-    )
 
 
 # ------------------------------------------------------------------------------ the report
@@ -751,46 +644,9 @@ def _declare_corpora(
 # ----------------------------------------------------------------------------- on disk
 
 
-def _backup_name(sources: Path) -> Path:
-    return sources.with_name(f".{sources.name}.merge-backup")
-
-
 def recover_interrupted(sources: str | Path) -> bool:
-    """Put the sources back after a crash inside the two-rename fallback swap."""
-    root = Path(sources)
-    backup = _backup_name(root)
-    if backup.is_dir() and not root.exists():
-        os.rename(backup, root)
-        return True
-    if backup.is_dir() and root.is_dir():  # the swap completed; only the cleanup was lost
-        shutil.rmtree(backup)
-    return False
-
-
-def _exchange(a: Path, b: Path) -> bool:
-    """Atomically swap two folders (Linux renameat2 RENAME_EXCHANGE); False if unsupported."""
-    try:
-        libc = ctypes.CDLL(None, use_errno=True)
-        renameat2 = libc.renameat2
-    except (OSError, AttributeError):
-        return False
-    at_fdcwd, rename_exchange = -100, 2
-    if renameat2(at_fdcwd, os.fsencode(a), at_fdcwd, os.fsencode(b), rename_exchange) == 0:
-        return True
-    code = ctypes.get_errno()
-    if code in (errno.ENOSYS, errno.EINVAL, errno.EOPNOTSUPP):
-        return False
-    raise OSError(code, f"cannot swap {a} and {b}: {os.strerror(code)}")
-
-
-def _swap_in(stage: Path, sources: Path) -> None:
-    if _exchange(stage, sources):
-        shutil.rmtree(stage)  # now holds the old sources
-        return
-    backup = _backup_name(sources)
-    os.rename(sources, backup)
-    os.rename(stage, sources)
-    shutil.rmtree(backup)
+    """Put the sources back after a crash inside the folder swap (``_atomic.recover_swap``)."""
+    return recover_swap(sources)
 
 
 def _pause() -> None:
@@ -880,7 +736,7 @@ def _merge_locked(
         if centroids_changed:
             write_centroids(stage / CENTROIDS_FILE, centroids)
             _pause()
-        _swap_in(stage, root)
+        swap_dir(stage, root)
     with contextlib.suppress(FileNotFoundError):
         shutil.rmtree(stage)
     return report

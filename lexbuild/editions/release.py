@@ -31,7 +31,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from lexbuild._atomic import replace_dir_atomically, staging_dir
+from lexbuild._atomic import staging_dir, swap_dir
 from lexbuild.editions.diff import (
     LexiconDiff,
     change_lines,
@@ -260,5 +260,5 @@ def release(
             json.dumps(manifest, indent=2, sort_keys=True, ensure_ascii=False) + "\n",
             encoding="utf-8",
         )
-        replace_dir_atomically(stage, target)
+        swap_dir(stage, target, replace=False)  # an edition is never overwritten
     return ReleaseResult(target, edition, previous, manifest, changes, warnings)
