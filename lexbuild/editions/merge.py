@@ -1,7 +1,9 @@
 """Bring an induction result into the curated YAML sources without losing an editor's work.
 
 Inputs: an induction folder (``induction.json``, ``entries/*.yaml``, ``centroids.npz``,
-``assignments.tsv``; see ``lexbuild.senses.induce``) and a sources folder.
+``assignments.tsv``; read by ``lexbuild.senses.induction_folder``) and a sources folder. The
+similarity and the one-to-one matching live in ``lexbuild.editions.matching``, the report in
+``lexbuild.editions.merge_report``, the folder swap in ``lexbuild._atomic``.
 
 Matching. For each induced verb, the induced senses are matched one-to-one to the existing
 senses of the entries with the same lemma and part of speech, by the Hungarian method
@@ -42,10 +44,10 @@ Flags with those three prefixes are the merge's own: each merge recomputes them 
 it touches; other flags are left alone.
 
 Atomicity: the whole sources folder is copied to a staging sibling, updated there, and swapped in
-with one ``renameat2(RENAME_EXCHANGE)`` where the system has it (Linux); elsewhere two renames
-with a backup folder that ``recover_interrupted`` puts back. An interrupted merge leaves the
-sources untouched or fully merged; a staging folder ``.<name>.*.partial`` may be left behind and
-can be deleted. One merge at a time: an advisory lock (``flock``) on the sources folder refuses
+by ``_atomic.swap_dir``: one ``renameat2(RENAME_EXCHANGE)`` where the system has it (Linux);
+elsewhere two renames with a backup folder that ``recover_interrupted`` puts back. An
+interrupted merge leaves the sources untouched or fully merged; a staging folder
+``.<name>.*.partial`` may be left behind and can be deleted. One merge at a time: an advisory lock (``flock``) on the sources folder refuses
 a second concurrent merge and dies with its process. ``LEXBUILD_MERGE_PAUSE`` (seconds) sleeps
 after each staged file: a test hook to interrupt a merge half-way.
 """
@@ -53,19 +55,26 @@ after each staged file: a test hook to interrupt a merge half-way.
 from __future__ import annotations
 
 import contextlib
-import json
 import os
 import shutil
 import time
-from collections.abc import Iterable, Iterator, Mapping, Sequence
-from dataclasses import asdict, dataclass, field
+from collections.abc import Iterator, Mapping, Sequence
+from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
 
 import numpy as np
 import numpy.typing as npt
 
 from lexbuild._atomic import recover_swap, staging_dir, swap_dir
+from lexbuild.editions.matching import (
+    MergeSettings,
+    combined_similarity,
+    example_key,
+    match_senses,
+    sentence_of,
+)
+from lexbuild.editions.matching import cosine as centroid_cosine
+from lexbuild.editions.merge_report import MergeReport, SenseMatch
 from lexbuild.errors import MergeError, SourceLocation
 from lexbuild.lexicon import ids
 from lexbuild.lexicon.model import (
@@ -105,184 +114,6 @@ FLAG_PREFIXES = (UNSUPPORTED, SPLIT_FROM, MERGE_INTO)
 
 Vector = npt.NDArray[np.float32]
 Sentence = tuple[str, str]  # (corpus, sentence id)
-
-
-@dataclass(frozen=True)
-class MergeSettings:
-    min_similarity: float = 0.5  # below it an induced sense is not the same as an existing one
-    example_weight: float = 0.5  # weight of shared examples vs centroid cosine, both known
-    max_examples: int = 5  # example candidates are added while a sense has fewer than this
-    split_min_examples: int = 1  # shared examples needed to report a split or merge branch
-
-    def __post_init__(self) -> None:
-        if not 0.0 <= self.example_weight <= 1.0:
-            raise MergeError(f"example_weight must be in [0, 1], got {self.example_weight}")
-        if self.max_examples < 0 or self.split_min_examples < 1:
-            raise MergeError("max_examples must be >= 0 and split_min_examples >= 1")
-
-
-# ------------------------------------------------------------------------------ the report
-
-
-@dataclass(frozen=True)
-class SenseMatch:
-    entry: str
-    induced: str
-    sense: str
-    similarity: float
-    shared_examples: float | None
-    cosine: float | None
-
-
-@dataclass
-class MergeReport:
-    run: str
-    dry_run: bool = False
-    entries_added: list[str] = field(default_factory=list)
-    entries_skipped: list[dict[str, str]] = field(default_factory=list)
-    matched: list[SenseMatch] = field(default_factory=list)
-    senses_added: list[dict[str, str]] = field(default_factory=list)
-    unsupported: list[str] = field(default_factory=list)
-    frames_added: list[dict[str, str]] = field(default_factory=list)
-    frequencies_refreshed: list[dict[str, Any]] = field(default_factory=list)
-    examples_added: list[dict[str, str]] = field(default_factory=list)
-    splits: list[dict[str, Any]] = field(default_factory=list)
-    merges: list[dict[str, Any]] = field(default_factory=list)
-    corpora_declared: list[str] = field(default_factory=list)
-    corpora_undeclared: list[str] = field(default_factory=list)
-    files_written: list[str] = field(default_factory=list)
-
-    def as_dict(self) -> dict[str, Any]:
-        data = asdict(self)
-        data["summary"] = {
-            key: len(value) for key, value in data.items() if isinstance(value, list)
-        }
-        return data
-
-    def to_json(self) -> str:
-        return json.dumps(self.as_dict(), ensure_ascii=False, indent=2, sort_keys=True) + "\n"
-
-    def to_markdown(self) -> str:
-        title = "Merge report (dry run: nothing written)" if self.dry_run else "Merge report"
-        lines = [f"# {title}", "", f"Induction run: `{self.run}`", "", "## Summary", ""]
-        lines += ["| item | count |", "|---|---:|"]
-        summary = self.as_dict()["summary"]
-        lines += [f"| {key.replace('_', ' ')} | {count} |" for key, count in summary.items()]
-
-        def section(name: str, rows: Iterable[str]) -> None:
-            items = list(rows)
-            if items:
-                lines.extend(["", f"## {name}", "", *items])
-
-        section("Entries added", (f"- `{e}`" for e in self.entries_added))
-        section(
-            "Entries skipped",
-            (f"- `{row['entry']}`: {row['reason']}" for row in self.entries_skipped),
-        )
-        section(
-            "Senses matched",
-            (
-                f"- `{m.induced}` -> `{m.sense}` (similarity {m.similarity:.3f}; shared "
-                f"examples {_fmt(m.shared_examples)}, centroid cosine {_fmt(m.cosine)})"
-                for m in self.matched
-            ),
-        )
-        section(
-            "Senses added (draft)",
-            (f"- `{row['sense']}` from induced `{row['induced']}`" for row in self.senses_added),
-        )
-        section(
-            "Senses no longer supported (flagged, kept)",
-            (f"- `{sense}`" for sense in self.unsupported),
-        )
-        section(
-            "Proposed splits (for the editor to confirm)",
-            (
-                f"- `{row['sense']}` -> " + ", ".join(f"`{s}`" for s in row["into"])
-                for row in self.splits
-            ),
-        )
-        section(
-            "Proposed merges (for the editor to confirm)",
-            (
-                ", ".join(f"`{s}`" for s in row["senses"]) + f" -> `{row['into']}`"
-                for row in self.merges
-            ),
-        )
-        section(
-            "Frames added",
-            (f"- `{row['frame']}` `{row['pattern']}`" for row in self.frames_added),
-        )
-        section(
-            "Frequencies refreshed",
-            (
-                f"- `{row['frame']}`: {row['old']} -> {row['new']}"
-                for row in self.frequencies_refreshed
-            ),
-        )
-        section(
-            "Example candidates added",
-            (f"- `{row['example']}` ({row['source']})" for row in self.examples_added),
-        )
-        section("Corpora declared in lexicon.yaml",
-                (f"- `{name}`" for name in self.corpora_declared))
-        section("Corpora cited but not declarable (not an XML name)",
-                (f"- `{name}`" for name in self.corpora_undeclared))
-        section("Files written", (f"- {name}" for name in self.files_written))
-        return "\n".join(lines) + "\n"
-
-
-def _fmt(value: float | None) -> str:
-    return "n/a" if value is None else f"{value:.3f}"
-
-
-# ------------------------------------------------------------------------------- matching
-
-
-def _sentences(example: Example) -> Sentence | None:
-    return (example.source.corpus, example.source.sentence) if example.source else None
-
-
-def _example_key(example: Example) -> tuple[str, str]:
-    ref = _sentences(example)
-    return ref if ref is not None else ("", example.text)
-
-
-def _cosine(a: Vector | None, b: Vector | None) -> float | None:
-    if a is None or b is None or a.shape != b.shape:
-        return None
-    norm = float(np.linalg.norm(a) * np.linalg.norm(b))
-    return float(np.dot(a, b) / norm) if norm > 0 else None
-
-
-def _similarity(
-    shared: float | None, cosine: float | None, settings: MergeSettings
-) -> float:
-    if shared is not None and cosine is not None:
-        w = settings.example_weight
-        return w * shared + (1 - w) * cosine
-    if shared is not None:
-        return shared
-    if cosine is not None:
-        return cosine
-    return 0.0
-
-
-def match_senses(similarity: npt.NDArray[np.float64], minimum: float) -> list[tuple[int, int]]:
-    """One-to-one pairs (row, column) maximising the total similarity, each >= ``minimum``.
-
-    Pairs under the minimum are cut before the assignment (their similarity set to a value that
-    no pair prefers), so that a weak pair never displaces a strong one elsewhere.
-    """
-    from scipy.optimize import linear_sum_assignment
-
-    if similarity.size == 0:
-        return []
-    weights = np.where(similarity >= minimum, similarity, 0.0)
-    rows, cols = linear_sum_assignment(weights, maximize=True)
-    return sorted(
-        (int(r), int(c)) for r, c in zip(rows, cols, strict=True) if similarity[r, c] >= minimum
-    )
 
 
 # -------------------------------------------------------------------------------- merging
@@ -370,7 +201,7 @@ def _candidates(
     for example in induced.examples:
         if have + len(added) >= settings.max_examples:
             break
-        key = _example_key(example)
+        key = example_key(example)
         if key in cited:
             continue
         cited.add(key)
@@ -434,13 +265,13 @@ def _coverage(
     seen: dict[Sentence, int] = {}
     for sense in induced:
         sentences = set(result.assignments.get(sense.id, set()))
-        sentences.update(ref for ref in map(_sentences, sense.examples) if ref is not None)
+        sentences.update(ref for ref in map(sentence_of, sense.examples) if ref is not None)
         clustered.append(sentences)
         for sentence in sentences:
             seen[sentence] = seen.get(sentence, 0) + 1
     usable = {sentence for sentence, count in seen.items() if count == 1}
     existing_sentences = [
-        {ref for ref in map(_sentences, sense.examples) if ref is not None} & usable
+        {ref for ref in map(sentence_of, sense.examples) if ref is not None} & usable
         for sense in existing
     ]
     shared = np.zeros((len(induced), len(existing)), dtype=np.int64)
@@ -477,12 +308,12 @@ def _merge_entry(
             vector = result.centroids.get(new.id)
         for j, old in enumerate(existing):
             share = shared[i, j] / covered[j] if covered[j] else None
-            cosine = _cosine(vector, centroids.get(old.id))
+            cosine = centroid_cosine(vector, centroids.get(old.id))
             details[i, j] = (share, cosine)
-            similarity[i, j] = _similarity(share, cosine, settings)
+            similarity[i, j] = combined_similarity(share, cosine, settings)
     pairs = match_senses(similarity, settings.min_similarity)
     matched_of_induced = dict(pairs)
-    cited = {_example_key(x) for entry in targets for s in entry.senses for x in s.examples}
+    cited = {example_key(x) for entry in targets for s in entry.senses for x in s.examples}
     updated = list(existing)
     result_id: dict[int, str] = {}
     for i, j in pairs:
@@ -552,9 +383,10 @@ def merge_lexicon(
     lexicon: Lexicon,
     centroids: Mapping[str, Vector],
     result: InducedFolder,
-    settings: MergeSettings = MergeSettings(),
+    settings: MergeSettings | None = None,
 ) -> tuple[Lexicon, dict[str, Vector], MergeReport]:
     """The merged lexicon, the sources' new centroid table, and the report (pure function)."""
+    settings = settings or MergeSettings()
     report = MergeReport(run=result.run)
     pools = _Pools(lexicon.all_ids())
     retired = set(lexicon.meta.retired_ids)
@@ -659,10 +491,11 @@ def merge_induction(
     induced: str | Path,
     sources: str | Path,
     *,
-    settings: MergeSettings = MergeSettings(),
+    settings: MergeSettings | None = None,
     dry_run: bool = False,
 ) -> MergeReport:
     """Merge the induction folder ``induced`` into the sources folder ``sources``."""
+    settings = settings or MergeSettings()
     root = Path(sources)
     recover_interrupted(root)
     with _merge_lock(root):
