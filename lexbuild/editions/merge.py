@@ -47,9 +47,10 @@ Atomicity: the whole sources folder is copied to a staging sibling, updated ther
 by ``_atomic.swap_dir``: one ``renameat2(RENAME_EXCHANGE)`` where the system has it (Linux);
 elsewhere two renames with a backup folder that ``recover_interrupted`` puts back. An
 interrupted merge leaves the sources untouched or fully merged; a staging folder
-``.<name>.*.partial`` may be left behind and can be deleted. One merge at a time: an advisory lock (``flock``) on the sources folder refuses
-a second concurrent merge and dies with its process. ``LEXBUILD_MERGE_PAUSE`` (seconds) sleeps
-after each staged file: a test hook to interrupt a merge half-way.
+``.<name>.*.partial`` may be left behind and can be deleted. One merge at a time: an advisory
+lock (``flock``) on the sources folder refuses a second concurrent merge and dies with its
+process. ``LEXBUILD_MERGE_PAUSE`` (seconds) sleeps after each staged file: a test hook to
+interrupt a merge half-way.
 """
 
 from __future__ import annotations
