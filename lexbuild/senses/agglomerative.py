@@ -19,7 +19,6 @@ from scipy.cluster.hierarchy import fcluster
 
 from lexbuild.errors import InductionError
 from lexbuild.senses.clustering import (
-    ClustererSpec,
     check_common,
     fitted,
     group_sums,
@@ -27,6 +26,7 @@ from lexbuild.senses.clustering import (
     normalise_rows,
     relabel,
 )
+from lexbuild.senses.registry import ClustererSpec
 from lexbuild.senses.settings import InductionSettings
 
 __all__ = [

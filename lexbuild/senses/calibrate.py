@@ -29,8 +29,8 @@ import numpy as np
 from lexbuild._atomic import atomic_write_bytes, atomic_write_text
 from lexbuild.corpus.occurrences import Argument, Occurrence
 from lexbuild.errors import InductionError
-from lexbuild.senses.clustering import get_clusterer
 from lexbuild.senses.evaluation import evaluate_verb
+from lexbuild.senses.registry import get_clusterer
 from lexbuild.senses.settings import CalibrationSettings, InductionSettings
 from lexbuild.senses.vectors import CacheStats, Representation, VectorCache, encode_cached
 

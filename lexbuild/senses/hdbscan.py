@@ -23,13 +23,13 @@ import numpy.typing as npt
 from lexbuild.errors import InductionError
 from lexbuild.senses.agglomerative import condensed_cosine
 from lexbuild.senses.clustering import (
-    ClustererSpec,
     attach_noise,
     check_common,
     fitted,
     merge_small_clusters,
     normalise_rows,
 )
+from lexbuild.senses.registry import ClustererSpec
 from lexbuild.senses.settings import InductionSettings
 
 __all__ = ["FRACTIONS", "SPEC", "HdbscanClusterer"]
