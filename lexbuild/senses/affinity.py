@@ -34,6 +34,8 @@ from lexbuild.senses.settings import InductionSettings
 __all__ = ["PREFERENCES", "SPEC", "AffinityPropagationClusterer"]
 
 IntArray = npt.NDArray[np.intp]
+#: Constructor defaults come from the one settings object.
+_DEFAULTS = InductionSettings()
 
 #: Preferences (cosine similarity scale, so at most 1) swept by calibration.
 PREFERENCES: tuple[float, ...] = (
@@ -55,9 +57,9 @@ class AffinityPropagationClusterer:
         preference: float = DEFAULT_PREFERENCE,
         damping: float = 0.9,
         max_iter: int = 400,
-        min_cluster_size: int = 3,
-        min_cluster_share: float = 0.05,
-        random_state: int | None = 0,
+        min_cluster_size: int = _DEFAULTS.min_cluster_size,
+        min_cluster_share: float = _DEFAULTS.min_cluster_share,
+        random_state: int | None = _DEFAULTS.random_state,
     ) -> None:
         self.preference = preference
         self.damping = damping
