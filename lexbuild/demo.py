@@ -88,18 +88,14 @@ def run_demo(
     from lexbuild.demo_corpus import corpus_files, gold_labels_for, read_gold
     from lexbuild.editions.merge import merge_induction
     from lexbuild.editions.release import release
-    from lexbuild.formats.validate import validate_file
+    from lexbuild.formats.registry import ValidationContext, all_formats
     from lexbuild.lexicon.model import Status
     from lexbuild.lexicon.sources import load_lexicon, write_meta
     from lexbuild.senses.evaluation import evaluate
-    from lexbuild.senses.induce import (
-        DEFAULT_THRESHOLD,
-        InductionSettings,
-        induce,
-        read_assignments,
-        write_induction,
-    )
-    from lexbuild.senses.vectors import StaticSyntacticVectors, VectorCache
+    from lexbuild.senses.inducer import SenseInducer
+    from lexbuild.senses.induction_folder import read_assignments, write_induction
+    from lexbuild.senses.settings import InductionSettings
+    from lexbuild.senses.vectors import VectorCache, load_representation
 
     root = Path(output)
     root.mkdir(parents=True, exist_ok=True)
@@ -129,16 +125,13 @@ def run_demo(
         for occ in extract_occurrences(sentence, french)
         if occ.lemma in lemmas
     ]
-    settings = InductionSettings(threshold=DEFAULT_THRESHOLD if threshold is None else threshold)
+    # The same defaults as ``lexbuild induce`` (InductionSettings), threshold included.
+    settings = InductionSettings()
+    if threshold is not None:
+        settings = settings.with_threshold(threshold)
     with VectorCache(root / "vector-cache.sqlite") as cache:
-        result = induce(
-            occurrences,
-            StaticSyntacticVectors(),
-            settings,
-            cache=cache,
-            corpus=[conllu],
-            lemmas=lemmas,
-        )
+        inducer = SenseInducer(load_representation(), settings=settings, cache=cache)
+        result = inducer.fit(occurrences, corpus=[conllu], lemmas=lemmas).result_
     write_induction(result, induced, overwrite=True)
 
     # 4. Score against the gold labels.
@@ -159,8 +152,11 @@ def run_demo(
     )
     # The published files, read back from disk as any user would check them.
     problems = sum(
-        len(validate_file(path, schemas_dir=schemas_dir))
-        for path in sorted(second.folder.glob("*.xml"))
+        len(output_format.validate(
+            (second.folder / output_format.file_name).read_bytes(),
+            ValidationContext(schemas_dir=schemas_dir, name=output_format.file_name),
+        ))
+        for output_format in all_formats()
     )
     senses_per_verb = {
         entry.lemma: sum(1 for s in entry.senses if s.status is not Status.RETIRED)

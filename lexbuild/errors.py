@@ -93,3 +93,8 @@ class FetchError(LexbuildError, OSError):
 
 class MalformedXMLError(LexbuildError, ValueError):
     """An XML file read back is not well-formed (syntax, encoding, depth or text size limits)."""
+
+
+class InductionFolderError(InductionError, MergeError, SourceError):
+    """An induction folder cannot be read (file, line and field named); caught as an
+    induction, merge or source error alike."""

@@ -11,7 +11,10 @@ import numpy as np
 from lexbuild.lexicon.model import Induction, Lexicon
 from lexbuild.review import OCCURRENCE_VECTORS_FILE, occurrence_vectors_bytes
 from lexbuild.senses.calibrate import Calibration, ThresholdScores, write_calibration
-from lexbuild.senses.induce import Assignment, InductionResult, InductionSettings, write_induction
+from lexbuild.senses.induce import Assignment
+from lexbuild.senses.inducer import InductionResult
+from lexbuild.senses.induction_folder import write_induction
+from lexbuild.senses.settings import InductionSettings
 
 #: Verbs given an induction (their senses become the induced senses, sizes 12, 9, 6, ...).
 INDUCED_LEMMAS = ("compter", "donner", "passer")
@@ -61,7 +64,7 @@ def write_occurrence_vectors_from_cache(induced: Path, corpus: Path, cache: Path
 
     from lexbuild.corpus.conllu import read_sentences
     from lexbuild.corpus.occurrences import extract_occurrences, profile_for
-    from lexbuild.senses.induce import read_assignments
+    from lexbuild.senses.induction_folder import read_assignments
     from lexbuild.senses.vectors import StaticSyntacticVectors, VectorCache, encode_cached
 
     assigned = read_assignments(induced)  # (sentence id, 1-based word id) -> (lemma, sense)

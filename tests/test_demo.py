@@ -24,7 +24,8 @@ def test_demo_runs_offline_and_is_reproducible(
     first = {path.relative_to(edition).as_posix(): path.read_bytes()
              for path in sorted(edition.rglob("*")) if path.is_file()}
     assert {name for name in first if not name.startswith("site/")} == {
-        "changelog.md", "lexicon.lmf.xml", "lexicon.tei.xml", "manifest.json"}
+        "changelog.md", "lexicon.lmf.xml", "lexicon.ontolex.ttl", "lexicon.tei.xml",
+        "manifest.json"}
     assert "site/index.html" in first  # the review site (tests/test_review_browser.py)
     # Published TEI Lex-0 RelaxNG + Schematron and LMF DTD rev. 16 (../shared/schemas).
     for name in ("lexicon.tei.xml", "lexicon.lmf.xml"):
@@ -42,7 +43,8 @@ def test_demo_runs_offline_and_is_reproducible(
             assert merged_senses[sense.id].status == sense.status
 
     # The induced senses agree with the demo's gold labels well above chance (ARI 0): the
-    # embedded default measured a mean ARI of 0.32 over the 13 verbs; the floor leaves margin.
+    # embedded default measured a mean ARI of 0.298 over the 13 verbs (threshold calibrated on
+    # the demo corpus: 0.75); the floor leaves margin.
     mean_ari = float(summary.split("mean over verbs:")[1].split("ari ")[1].split(",")[0])
     assert mean_ari > 0.25
 

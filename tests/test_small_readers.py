@@ -10,11 +10,11 @@ from pathlib import Path
 import pytest
 
 from lexbuild.cli import main
-from lexbuild.editions.merge import merge_induction, read_induction
+from lexbuild.editions.merge import merge_induction
 from lexbuild.errors import CorpusError, InductionError, LexbuildError, MergeError, SourceError
 from lexbuild.senses.calibrate import read_calibration
 from lexbuild.senses.evaluation import read_gold_conllu, read_gold_tsv
-from lexbuild.senses.induce import read_assignments
+from lexbuild.senses.induction_folder import read_assignments, read_induction
 
 CALIBRATION = {"representation": "static-syntactic", "recommended": {"threshold": 0.45}}
 

@@ -74,7 +74,7 @@ def _read_npz(path: Path) -> dict[str, Matrix]:
 def read_induction_view(folder: str | Path) -> InductionView:
     """The induction folder as the site shows it; raises ``InductionError`` naming the file."""
     from lexbuild.lexicon.sources import ENTRIES_DIR, load_entry
-    from lexbuild.senses.induce import read_assignments
+    from lexbuild.senses.induction_folder import read_assignments
 
     root = Path(folder)
     manifest_path = root / "induction.json"

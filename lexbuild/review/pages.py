@@ -6,7 +6,8 @@ from collections import Counter
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
-from lexbuild.editions.diff import LexiconDiff, change_lines
+from lexbuild.editions.diff import LexiconDiff
+from lexbuild.editions.diff_report import change_lines
 from lexbuild.lexicon.model import Entry, Example, Function, Lexicon, Sense, Status
 from lexbuild.review.assets import SCRIPT_FILE, STYLE_FILE
 from lexbuild.review.diagnostics import InducedEntry, InductionView
