@@ -38,6 +38,36 @@ def test_condensed_matches_scipy_pdist() -> None:
     np.testing.assert_allclose(condensed_cosine(Xn), pdist(X, "cosine"), atol=1e-6)
 
 
+@pytest.mark.parametrize("block_elements", [1, 40, 57 * 3, 10_000])
+def test_condensed_blocks_of_every_size_match_scipy_pdist(
+    block_elements: int, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # Reference: scipy.spatial.distance.pdist(X, "cosine"). Blocks of one row, of rows growing
+    # as fewer columns remain, and one block for all rows must give the same condensed vector.
+    from lexbuild.senses import agglomerative
+
+    monkeypatch.setattr(agglomerative, "_BLOCK_ELEMENTS", block_elements)
+    rng = np.random.default_rng(2)
+    X = rng.normal(size=(57, 9))
+    Xn = (X / np.linalg.norm(X, axis=1, keepdims=True)).astype(np.float32)
+    np.testing.assert_allclose(condensed_cosine(Xn), pdist(X, "cosine"), atol=1e-6)
+
+
+def test_rows_normalised_in_chunks_equal_one_float64_pass(monkeypatch: pytest.MonkeyPatch) -> None:
+    # Chunking bounds memory only: each row is still divided by its float64 norm.
+    from lexbuild.senses import clustering
+
+    monkeypatch.setattr(clustering, "_NORMALISE_ROWS", 3)
+    rng = np.random.default_rng(3)
+    X = rng.normal(size=(11, 5)).astype(np.float32)
+    whole = X.astype(np.float64)
+    expected = (whole / np.linalg.norm(whole, axis=1, keepdims=True)).astype(np.float32)
+    assert np.array_equal(clustering.normalise_rows(X), expected)
+    X[9] = 0.0  # a zero row in the last chunk is still reported
+    with pytest.raises(InductionError, match="1 all-zero rows"):
+        clustering.normalise_rows(X)
+
+
 @pytest.mark.parametrize("random_state", [0, 1, 2])
 @pytest.mark.parametrize("threshold", [0.3, 0.6, 0.9, 1.0, 1.1])
 def test_exact_path_equals_scipy_average(random_state: int, threshold: float) -> None:

@@ -60,21 +60,24 @@ _BLOCK_ELEMENTS = 16_000_000
 def condensed_cosine(Xn: npt.NDArray[np.float32]) -> npt.NDArray[np.float64]:
     """Condensed cosine distances of normalised rows, filled block by block.
 
-    Only the condensed vector (float64, as the linkage code wants) is kept; each block of the
-    square matrix is a bounded float32 temporary, so no full n x n matrix ever exists.
+    Only the condensed vector (float64, as the linkage code wants) is kept. Each block of rows
+    is multiplied by the rows from its own first row on, so about half of the square is computed
+    (the upper triangle plus a small triangle inside each block), and the float32 temporary
+    stays under ``_BLOCK_ELEMENTS`` elements: blocks grow as fewer columns remain.
     """
     n = Xn.shape[0]
     out = np.empty(n * (n - 1) // 2, dtype=np.float64)
-    block = max(1, _BLOCK_ELEMENTS // max(n, 1))
-    for start in range(0, n, block):
-        stop = min(n, start + block)
-        d = Xn[start:stop] @ Xn.T  # similarity block, float32
+    start = 0
+    while start < n:
+        stop = min(n, start + max(1, _BLOCK_ELEMENTS // (n - start)))
+        d = Xn[start:stop] @ Xn[start:].T  # similarity of rows start..stop to rows start..n
         np.subtract(1.0, d, out=d)
         np.clip(d, 0.0, 2.0, out=d)
         for i in range(start, stop):
             # Offset of pair (i, i+1) in the condensed (row-major upper triangle) layout.
             off = n * i - i * (i + 1) // 2
-            out[off : off + n - i - 1] = d[i - start, i + 1 :]
+            out[off : off + n - i - 1] = d[i - start, i - start + 1 :]
+        start = stop
     return out
 
 
@@ -146,6 +149,8 @@ class AgglomerativeClusterer:
         ``max(min_cluster_size, min_cluster_share * n)`` are merged into the nearest large one.
     exact_max: largest n clustered exactly; above it the two-stage path runs.
     n_micro: number of k-means micro-clusters in the two-stage path.
+    refine_max: largest two-stage cluster clustered again exactly (memory grows with its
+        square: 8,000 members take 256 MB of distances).
     random_state: fixes the random numbers of the k-means stage.
     """
 
@@ -163,6 +168,7 @@ class AgglomerativeClusterer:
         exact_max: int = _DEFAULTS.exact_max,
         n_micro: int = 256,
         random_state: int | None = _DEFAULTS.random_state,
+        refine_max: int = 8000,
     ) -> None:
         self.threshold = threshold
         self.linkage = linkage
@@ -172,6 +178,7 @@ class AgglomerativeClusterer:
         self.exact_max = exact_max
         self.n_micro = n_micro
         self.random_state = random_state
+        self.refine_max = refine_max
 
     def _check_params(self) -> None:
         if self.metric != "cosine":
@@ -181,8 +188,8 @@ class AgglomerativeClusterer:
         if not np.isfinite(self.threshold) or self.threshold < 0:
             raise InductionError(f"threshold must be a finite number >= 0, got {self.threshold}")
         check_common(self.get_params())
-        if self.exact_max < 1 or self.n_micro < 1:
-            raise InductionError("exact_max and n_micro must be >= 1")
+        if self.exact_max < 1 or self.n_micro < 1 or self.refine_max < 1:
+            raise InductionError("exact_max, n_micro and refine_max must be >= 1")
 
     def fit(self, X: Any, y: Any = None) -> AgglomerativeClusterer:
         """Cluster the rows of ``X``; ``y`` is ignored (scikit-learn convention)."""
@@ -240,6 +247,7 @@ class AgglomerativeClusterer:
             "exact_max": self.exact_max,
             "n_micro": self.n_micro,
             "random_state": self.random_state,
+            "refine_max": self.refine_max,
         }
 
     def _tree(self, Xn: npt.NDArray[np.float32]) -> npt.NDArray[np.float64]:
@@ -255,28 +263,64 @@ class AgglomerativeClusterer:
         return np.asarray(fcluster(Z, t=self.threshold, criterion="distance"), dtype=np.intp)
 
     def _fit_two_stage(self, Xn: npt.NDArray[np.float32]) -> IntArray:
+        """k-means micro-clusters, linkage between them, then each cluster refined exactly.
+
+        The micro-clusters glue their members together, so the two-stage clusters are coarser
+        than the exact ones where the cut runs through a micro-cluster. Average and Ward
+        linkage are reducible, so the exact clusters inside a union of exact clusters are found
+        by clustering that union alone: each two-stage cluster of at most ``refine_max``
+        members is clustered again exactly, which splits what the micro-clusters glued.
+        """
+        coarse = relabel(self._micro_linkage(Xn))
+        labels = coarse.copy()
+        next_label = int(coarse.max()) + 1
+        for cluster in range(int(coarse.max()) + 1):
+            members = np.flatnonzero(coarse == cluster)
+            if not 2 <= members.size <= self.refine_max:
+                continue
+            sub = relabel(self._fit_exact(Xn[members]))
+            extra = sub > 0  # sub-cluster 0 keeps the cluster's label, the others get new ones
+            labels[members[extra]] = next_label + sub[extra] - 1
+            next_label += int(sub.max())
+        if self.linkage != "average" or next_label == 1:
+            return labels
+        # Parts of one exact cluster that a micro-cluster boundary put into two coarse clusters
+        # join again: average linkage between the refined clusters is exact (sums and sizes).
+        labels = relabel(labels)
+        m = int(labels.max()) + 1
+        sizes = np.bincount(labels, minlength=m).astype(np.float64)
+        joined = _average_linkage_groups(group_sums(Xn, labels, m), sizes, float(self.threshold))
+        return np.asarray(joined[labels], dtype=np.intp)
+
+    def _micro_linkage(self, Xn: npt.NDArray[np.float32]) -> IntArray:
         from sklearn.cluster import KMeans, MiniBatchKMeans
+        from threadpoolctl import threadpool_limits
 
         n = Xn.shape[0]
         k = min(self.n_micro, n)
-        # MiniBatchKMeans scales to many points; plain KMeans is fine for modest n. One
-        # initialisation: the micro-clusters only need to be tight, not optimal, and on
-        # static vectors of UD French verbs n_init=3 was 5x slower with no better agreement
-        # with the exact partition (benchmarks/bench_clustering.py).
+        # One initialisation from random points, in one thread. The micro-clusters only need
+        # to be tight: on overlapping 768-d blobs k-means++ seeding was 3-6x slower than random
+        # seeding for the same inertia (within 0.1%), and BLAS threads competing with another
+        # busy core made the k-means stage up to 10x slower (benchmarks/bench_clustering.py).
         km: Any
         if n > 10 * k:
             km = MiniBatchKMeans(
-                n_clusters=k, random_state=self.random_state, n_init=1, batch_size=4096
+                n_clusters=k,
+                random_state=self.random_state,
+                n_init=1,
+                batch_size=4096,
+                init="random",
             )
         else:
-            km = KMeans(n_clusters=k, random_state=self.random_state, n_init=1)
-        micro = relabel(km.fit_predict(Xn))
+            km = KMeans(n_clusters=k, random_state=self.random_state, n_init=1, init="random")
+        with threadpool_limits(limits=1):
+            micro = relabel(km.fit_predict(Xn))
         m = int(micro.max()) + 1
         sums = group_sums(Xn, micro, m)
         sizes = np.bincount(micro, minlength=m).astype(np.float64)
         if self.linkage == "ward":
             # Ward between micro-clusters is approximated on their normalised centroids
-            # (unweighted); only the average linkage path is exact.
+            # (unweighted); the exact refinement that follows corrects within each cluster.
             from scipy.cluster.hierarchy import linkage as scipy_linkage
 
             cents = sums / np.linalg.norm(sums, axis=1, keepdims=True)

@@ -31,6 +31,10 @@ __all__ = [
 FloatArray = npt.NDArray[np.floating[Any]]
 IntArray = npt.NDArray[np.intp]
 
+# Rows normalised at once: bounds the float64 temporary (4096 x 768 x 8 bytes = 24 MiB).
+_NORMALISE_ROWS = 4096
+
+
 @runtime_checkable
 class Clusterer(Protocol):
     """What induction and calibration need from a clustering method."""
@@ -48,23 +52,38 @@ class Clusterer(Protocol):
 
 
 def normalise_rows(X: Any, name: str = "X") -> npt.NDArray[np.float32]:
-    """Check shape and values, return L2-normalised float32 rows."""
+    """Check shape and values, return L2-normalised float32 rows.
+
+    Each row is divided by its norm in float64 and stored as float32, a chunk of rows at a time:
+    the result is the same as normalising the whole array in float64, but the float64 copy never
+    exceeds ``_NORMALISE_ROWS`` rows (a whole copy was 5x the input at 40,000 x 768).
+    """
     try:
-        arr = np.asarray(X, dtype=np.float64)
+        arr = np.asarray(X)
+        if arr.dtype.kind not in "fiub":
+            arr = np.asarray(arr, dtype=np.float64)
     except (TypeError, ValueError) as exc:
         raise InductionError(f"{name} is not a numeric array: {exc}") from exc
     if arr.ndim != 2:
         raise InductionError(f"{name} must be 2-D (n_samples, n_features), got {arr.ndim}-D")
     if arr.shape[0] == 0 or arr.shape[1] == 0:
         raise InductionError(f"{name} is empty: shape {arr.shape}")
-    if not np.all(np.isfinite(arr)):
-        raise InductionError(f"{name} contains NaN or infinite values")
-    norms = np.linalg.norm(arr, axis=1)
-    if np.any(norms == 0.0):
+    out = np.empty(arr.shape, dtype=np.float32)
+    zero_rows = 0
+    for start in range(0, arr.shape[0], _NORMALISE_ROWS):
+        chunk = np.asarray(arr[start : start + _NORMALISE_ROWS], dtype=np.float64)
+        if not np.all(np.isfinite(chunk)):
+            raise InductionError(f"{name} contains NaN or infinite values")
+        norms = np.linalg.norm(chunk, axis=1)
+        zero = norms == 0.0
+        if zero.any():
+            zero_rows += int(zero.sum())
+            continue
+        out[start : start + _NORMALISE_ROWS] = chunk / norms[:, None]
+    if zero_rows:
         # Cosine distance is undefined for a zero vector.
-        raise InductionError(f"{name} has {int(np.sum(norms == 0.0))} all-zero rows")
-    # Normalise in float64 then store float32: halves memory for the products that follow.
-    return (arr / norms[:, None]).astype(np.float32)
+        raise InductionError(f"{name} has {zero_rows} all-zero rows")
+    return out
 
 
 def relabel(labels: npt.ArrayLike) -> IntArray:
