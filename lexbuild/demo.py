@@ -97,7 +97,8 @@ def run_demo(
         read_assignments,
         write_induction,
     )
-    from lexbuild.senses.vectors import StaticSyntacticVectors, VectorCache
+    from lexbuild.senses.static import StaticSyntacticVectors
+    from lexbuild.senses.vectors import VectorCache
 
     root = Path(output)
     root.mkdir(parents=True, exist_ok=True)
