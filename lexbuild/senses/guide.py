@@ -57,7 +57,7 @@ DEFAULT_ASSIGNER = "centroid"
 #: Cosine distance beyond which an occurrence is left to the clustering of new senses.
 #: Calibrated (``lexbuild calibrate --guide``) where the sources allow; this value is the
 #: leave-one-sense-out optimum on the demo sources (benchmarks/bench_guided.py).
-DEFAULT_MAX_DISTANCE = 0.6
+DEFAULT_MAX_DISTANCE = 0.7
 
 Matrix = npt.NDArray[np.float32]
 IntArray = npt.NDArray[np.intp]
