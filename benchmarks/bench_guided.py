@@ -77,16 +77,35 @@ def demo_gold(work: Path) -> list[GoldVerb]:
     return [by_verb[lemma] for lemma in sorted(by_verb)]
 
 
-def devset_gold() -> list[GoldVerb]:
-    """The development set's labelled tokens (``?`` left out), per verb."""
-    from tests.devset.fr_senses import load_devset  # type: ignore[import-not-found]
+def devset_gold(folder: Path = ROOT / "tests" / "devset" / "fr_senses",
+                ud: Path = ROOT.parent / "shared" / "corpora" / "ud") -> list[GoldVerb]:
+    """The development set's labelled tokens (``?`` left out), per verb, read off the UD files."""
+    import csv
 
-    verbs = []
-    for lemma, pairs in sorted(load_devset().items()):
-        occs = [occ for occ, sense in pairs if sense != "?"]
-        gold = [sense for _, sense in pairs if sense != "?"]
-        verbs.append(GoldVerb(lemma, occs, gold))
-    return verbs
+    from lexbuild.corpus.conllu import read_sentences
+    from lexbuild.corpus.occurrences import extract_occurrences, profile_for
+
+    wanted: dict[tuple[str, str, int], tuple[str, str]] = {}
+    with open(folder / "gold.tsv", encoding="utf-8", newline="") as handle:
+        for row in csv.DictReader(handle, delimiter="\t", quoting=csv.QUOTE_NONE):
+            if row["sense"] != "?":
+                key = (row["file"], row["sent_id"], int(row["token_id"]))
+                wanted[key] = (row["lemma"], row["sense"])
+    french = profile_for("fr")
+    by_verb: dict[str, GoldVerb] = {}
+    for name in sorted({file for file, _, _ in wanted}):
+        sent_ids = {sid for file, sid, _ in wanted if file == name}
+        for sentence in read_sentences(ud / name):
+            if sentence.id not in sent_ids:
+                continue
+            for occ in extract_occurrences(sentence, french):
+                found = wanted.get((name, occ.sentence_id, occ.token + 1))
+                if found is None or found[0] != occ.lemma:
+                    continue
+                verb = by_verb.setdefault(occ.lemma, GoldVerb(occ.lemma, [], []))
+                verb.occurrences.append(occ)
+                verb.gold.append(found[1])
+    return [by_verb[lemma] for lemma in sorted(by_verb)]
 
 
 def draw_examples(gold: Sequence[str], n: int, random_state: int) -> dict[int, str]:

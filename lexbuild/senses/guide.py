@@ -220,7 +220,7 @@ def parse_examples(
     with tempfile.TemporaryDirectory(prefix="lexbuild-examples-") as folder:
         path = Path(folder) / "examples.conllu"
         path.write_text("".join(blocks), encoding="utf-8")
-        sentences = {s.sent_id: s for s in read_sentences(path)}
+        sentences = {s.id: s for s in read_sentences(path)}
     anchors: list[Anchor] = []
     for number, (sense, example) in enumerate(pending, 1):
         sentence = sentences.get(f"example.{number}")
