@@ -28,7 +28,14 @@ from lexbuild.errors import InductionError, ModelLoadError
 from lexbuild.lexicon.model import Function
 from lexbuild.senses.vectors import Matrix, _digest, _l2
 
-__all__ = ["GROUP_NAMES", "StaticSyntacticVectors"]
+__all__ = [
+    "BLOCK_NAMES",
+    "GROUP_NAMES",
+    "StaticSyntacticVectors",
+    "combine_blocks",
+    "constructions",
+    "pronominal",
+]
 
 
 def _stable_bucket(text: str, buckets: int) -> int:
@@ -61,7 +68,11 @@ _DEFAULT_WEIGHTS: dict[str, float] = {
     "comp": 1.0,
     "window": 1.0,
     "frame": 1.0,
+    "pronominal": 0.0,
+    "construction": 0.0,
 }
+#: The blocks of the vector, in order.
+BLOCK_NAMES = (*GROUP_NAMES, "window", "frame", "pronominal", "construction")
 
 _VECTOR_CACHE: dict[str, Any] = {}
 # Pipes of spaCy's trained packages: none is run here, only the vocabulary's vectors are read.
@@ -167,7 +178,7 @@ class StaticSyntacticVectors:
     @property
     def dimension(self) -> int:
         width = int(self._table[0].shape[1])
-        return width * (len(GROUP_NAMES) + 1) + self.frame_buckets + 1
+        return width * (len(GROUP_NAMES) + 1) + self.frame_buckets + 2 + _CONSTRUCTION_BUCKETS
 
     def input_key(self, occurrence: Occurrence) -> str:
         # The vector depends on the words and lemmas (window), the arguments (groups, frame).
@@ -215,11 +226,19 @@ class StaticSyntacticVectors:
             return False  # punctuation, symbols
         return self.window_stop_words or lemma.lower() not in self._stop_words
 
-    def encode(self, occurrences: Sequence[Occurrence]) -> Matrix:
+    def blocks(self, occurrences: Sequence[Occurrence]) -> dict[str, Matrix]:
+        """Each part of the vector, L2-normalised and unweighted, one matrix per block name.
+
+        ``combine_blocks(blocks, weights)`` gives ``encode``'s rows; calibration reweights the
+        parts without encoding again.
+        """
         width = int(self._table[0].shape[1])
-        out = np.zeros((len(occurrences), self.dimension), dtype=np.float32)
+        n = len(occurrences)
+        out = {name: np.zeros((n, width), dtype=np.float32) for name in (*GROUP_NAMES, "window")}
+        out["frame"] = np.zeros((n, self.frame_buckets), dtype=np.float32)
+        out["pronominal"] = np.zeros((n, 1), dtype=np.float32)
+        out["construction"] = np.zeros((n, _CONSTRUCTION_BUCKETS), dtype=np.float32)
         for i, occ in enumerate(occurrences):
-            blocks: list[npt.NDArray[np.float32]] = []
             grouped: dict[str, list[str]] = {name: [] for name in GROUP_NAMES}
             for argument in occ.arguments:
                 group = _GROUPS.get(argument.slot.function)
@@ -227,8 +246,8 @@ class StaticSyntacticVectors:
                     grouped[group].append(argument.lemma)
             for name in GROUP_NAMES:
                 mean = self._mean(grouped[name])
-                block = np.zeros(width, dtype=np.float32) if mean is None else _l2(mean)
-                blocks.append(block * self.weights[name])
+                if mean is not None:
+                    out[name][i] = _l2(mean)
             lo, hi = max(0, occ.token - self.window), occ.token + self.window + 1
             context = [
                 lemma
@@ -236,14 +255,78 @@ class StaticSyntacticVectors:
                 if j != occ.token and self._is_content(lemma)
             ]
             mean = self._mean(context)
-            window = np.zeros(width, dtype=np.float32) if mean is None else _l2(mean)
-            blocks.append(window * self.weights["window"])
-            frame = np.zeros(self.frame_buckets, dtype=np.float32)
+            if mean is not None:
+                out["window"][i] = _l2(mean)
+            frame = out["frame"][i]
             frame[_stable_bucket("frame=" + occ.frame, self.frame_buckets)] += 1.0
             for slot in occ.slots:
                 frame[_stable_bucket("slot=" + str(slot), self.frame_buckets)] += 1.0
-            blocks.append(_l2(frame) * self.weights["frame"])
-            # A constant component: an occurrence with nothing else is still a valid direction.
-            blocks.append(np.full(1, 1e-3, dtype=np.float32))
-            out[i] = _l2(np.concatenate(blocks))
+            out["frame"][i] = _l2(frame)
+            out["pronominal"][i, 0] = 1.0 if pronominal(occ) else 0.0
+            cues = constructions(occ)
+            for cue in cues:
+                out["construction"][i, _stable_bucket(cue, _CONSTRUCTION_BUCKETS)] += 1.0
+            out["construction"][i] = _l2(out["construction"][i])
         return out
+
+    def encode(self, occurrences: Sequence[Occurrence]) -> Matrix:
+        return combine_blocks(self.blocks(occurrences), self.weights)
+
+
+#: Hashed buckets of the construction cues (few distinct cues: collisions are rare).
+_CONSTRUCTION_BUCKETS = 32
+#: Reflexive clitic forms (French); a reflexive-looking clitic just before the verb (or its
+#: auxiliary) marks pronominal use where the treebank gives no ``refl`` slot.
+_REFLEXIVE_FORMS = frozenset({"se", "s'", "s’"})
+_AUXILIARIES = frozenset({"être", "avoir"})
+
+
+def pronominal(occ: Occurrence) -> bool:
+    """Pronominal use: a ``refl`` slot, else ``se``/``s'`` right before the verb or its auxiliary
+    (annotation conventions differ: ``expl:pv``, ``expl:comp``/``obj`` with a reflexive clitic)."""
+    if any(slot.function is Function.REFLEXIVE for slot in occ.slots):
+        return True
+    j = occ.token - 1
+    seen = 0
+    while j >= 0 and seen < 3:
+        form = occ.words[j].lower()
+        if form in _REFLEXIVE_FORMS:
+            return True
+        if occ.lemmas[j] not in _AUXILIARIES and form not in {"ne", "n'", "n’", "y", "en"}:
+            return False
+        j -= 1
+        seen += 1
+    return False
+
+
+def constructions(occ: Occurrence) -> list[str]:
+    """Construction cues of an occurrence: fixed prepositions, predicative and clausal
+    complements, pronominal and impersonal use, a direct object."""
+    cues: list[str] = []
+    for slot in occ.slots:
+        if slot.function in (Function.OBLIQUE, Function.INDIRECT_OBJECT) and slot.marker:
+            cues.append(f"prep={slot.marker}")
+        elif slot.function is Function.PREDICATIVE:
+            cues.append("predicative")
+        elif slot.function is Function.CLAUSAL:
+            cues.append(f"clause={slot.realisation.value}:{slot.marker}")
+        elif slot.function is Function.OBJECT:
+            cues.append("object")
+        elif slot.function is Function.SUBJECT and slot.realisation.value == "EXPL":
+            cues.append("impersonal")
+    if pronominal(occ):
+        cues.append("pronominal")
+    return cues or ["bare"]
+
+
+def combine_blocks(blocks: dict[str, Matrix], weights: dict[str, float]) -> Matrix:
+    """The representation's rows from its blocks: each block times its weight, concatenated,
+    with a small constant part (an occurrence with nothing else is still a direction), then
+    L2-normalised."""
+    n = next(iter(blocks.values())).shape[0]
+    parts = [blocks[name] * np.float32(weights[name]) for name in BLOCK_NAMES]
+    parts.append(np.full((n, 1), 1e-3, dtype=np.float32))
+    out = np.concatenate(parts, axis=1).astype(np.float32)
+    norms = np.linalg.norm(out, axis=1, keepdims=True)
+    norms[norms == 0] = 1.0
+    return (out / norms).astype(np.float32)
