@@ -13,7 +13,7 @@ from pathlib import Path
 import conllu as reference
 import pytest
 
-from lexbuild.corpus.conllu import iter_sentences
+from lexbuild.corpus.conllu import Sentence, Token, iter_sentences
 from lexbuild.corpus.occurrences import (
     Occurrence,
     extract_occurrences,
@@ -50,7 +50,8 @@ EXPECTED = [
     ("brevenn-relative", "dépendre", "subj:NP obl:PP[de]", False, False),
     ("brevenn-relative", "céder", "subj:NP", False, False),
     ("brevenn-clitic-en", "dépendre", "subj:NP obl:CLITIC[en]", False, False),
-    ("brevenn-se-passive", "vendre", "subj:NP obj:NP", True, False),
+    # The se-passive is a pronominal use: its surface frame, whatever the convention says of se.
+    ("brevenn-se-passive", "vendre", "subj:NP refl:CLITIC[se]", True, False),
     ("brevenn-auxiliary", "bâtir", "subj:NP obj:NP", False, False),  # "ont" is no occurrence
     # GSD attaches "y" and "en" as iobj; they stand for an à- or de-complement, not a dative.
     ("brevenn-clitic-y", "penser", "subj:NP obl:CLITIC[y]", False, False),
@@ -275,3 +276,70 @@ def test_bad_sentence_is_skipped_and_reported() -> None:
     assert "bad_head.conllu:8" in str(errors[0])
     with pytest.raises(CorpusError, match=r"bad_head\.conllu:8"):
         list(iter_occurrences(FIXTURES / "bad_head.conllu"))
+
+
+# ------------------------------------------------------------------------- long sentences
+
+
+def chained_conjuncts(verbs: int) -> Sentence:
+    """ "Maëlle rame, pêche, rame, ... et rentre": each verb a ``conj`` of the one before (a
+    chain, not UD's attachment of every conjunct to the first), every second one raised under
+    "sembler" by xcomp. Shared with benchmarks/bench_long_sentence.py."""
+    forms = ["Maëlle"]
+    rows: list[tuple[str, str, str, str, int, str]] = [
+        ("Maëlle", "Maëlle", "PROPN", "_", 2, "nsubj")
+    ]
+    previous = 0
+    for number in range(verbs):
+        position = len(rows) + 1
+        head, relation = (0, "root") if number == 0 else (previous, "conj")
+        lemma = "ramer" if number % 2 else "pêcher"
+        rows.append((lemma[:-1], lemma, "VERB", "VerbForm=Fin", head, relation))
+        forms.append(lemma[:-1])
+        previous = position
+    tokens = tuple(
+        Token(i, form, lemma, upos, "_", feats, head, rel, "_", "_")
+        for i, (form, lemma, upos, feats, head, rel) in enumerate(rows, 1)
+    )
+    return Sentence(id="chain", text=" ".join(forms), tokens=tokens)
+
+
+def test_a_long_chain_of_conjuncts_shares_the_first_subject() -> None:
+    # Regression (issue 13): the walks up chains of conjuncts were quadratic; 20,000 words.
+    sentence = chained_conjuncts(20_000)
+    occurrences = extract_occurrences(sentence, profile_for("fr"))
+    assert len(occurrences) == 20_000
+    assert all(o.frame == "subj:NP" for o in occurrences)
+    # Every conjunct's subject is the first conjunct's: "Maëlle" (word 0), expressed.
+    assert {(o.arguments[0].head, o.arguments[0].lemma) for o in occurrences} == {(0, "Maëlle")}
+
+
+def test_implicit_subject_up_a_long_chain_is_the_expletive() -> None:
+    # "il semble pêcher, ramer, ..." : conjuncts of an infinitive raised under impersonal
+    # "sembler" have the expletive as their unexpressed subject, however long the chain.
+    base = chained_conjuncts(5_000)
+    tokens = [
+        Token(1, "il", "il", "PRON", "_", "Person=3", 2, "expl:subj", "_", "_"),
+        Token(2, "semble", "sembler", "VERB", "_", "VerbForm=Fin", 0, "root", "_", "_"),
+    ]
+    for token in base.tokens[1:]:  # drop "Maëlle"; the first verb becomes xcomp of "semble"
+        head, relation = (2, "xcomp") if token.deprel == "root" else (token.head + 1, token.deprel)
+        tokens.append(
+            Token(
+                token.id + 1,
+                token.form,
+                token.lemma,
+                "VERB",
+                "_",
+                "VerbForm=Inf",
+                head,
+                relation,
+                "_",
+                "_",
+            )
+        )
+    sentence = Sentence(id="raised", text=" ".join(t.form for t in tokens), tokens=tuple(tokens))
+    occurrences = extract_occurrences(sentence, profile_for("fr"))
+    raised = [o for o in occurrences if o.lemma != "sembler"]
+    assert len(raised) == 5_000
+    assert all(o.frame == "subj:EXPL" and not o.arguments[0].expressed for o in raised)
