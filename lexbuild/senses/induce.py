@@ -75,8 +75,9 @@ __all__ = [
 ]
 
 #: Threshold used when neither a threshold nor a calibration is given: the best mean ARI of
-#: the default representation on French UD pseudo-verbs (benchmarks/probe_representations.py).
-DEFAULT_THRESHOLD = 0.7
+#: the default representation on French UD pseudo-verbs (benchmarks/probe_representations.py),
+#: and on real polysemy (development set and demo gold, benchmarks/bench_guided.py).
+DEFAULT_THRESHOLD = 0.65
 ASSIGNMENTS_HEADER = ("lemma", "sense", "corpus", "sent_id", "token")
 _TERMINAL = (".", "!", "?", "…", "»", '"', "”", ")")
 
