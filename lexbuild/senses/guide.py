@@ -347,7 +347,6 @@ def guided_labels(
     from lexbuild.senses.clustering import SenseClusterer
 
     Xn = _normalise(X)
-    n = Xn.shape[0]
     anchor_labels = [sense for _, sense in anchors]
     labels, distance = assign_to_senses(
         Xn, anchor_X, anchor_labels, n_curated, method=method, max_distance=max_distance, k=k

@@ -39,11 +39,12 @@ WEIGHT_GRID: tuple[float, ...] = (0.0, 0.5, 1.0, 2.0)
 
 @dataclass
 class GoldVerbBlocks:
-    """One gold verb: its representation blocks and the gold sense of each row."""
+    """One gold verb: its representation blocks and the gold sense of each row (None: a row
+    that is clustered with the others but not scored, as an unlabelled corpus occurrence)."""
 
     name: str
     blocks: dict[str, Matrix]
-    gold: list[str]
+    gold: Sequence[str | None]
 
 
 @dataclass
@@ -77,8 +78,10 @@ def sweep_thresholds(
         clusterer = SenseClusterer(
             min_cluster_size=min_cluster_size, min_cluster_share=min_cluster_share
         )
+        scored = [r for r, sense in enumerate(verb.gold) if sense is not None]
+        gold = [verb.gold[r] for r in scored]
         for j, labels in enumerate(clusterer.sweep(X, thresholds)):
-            out[i, j] = adjusted_rand(verb.gold, labels.tolist())
+            out[i, j] = adjusted_rand(gold, labels[scored].tolist())
     return out
 
 
@@ -158,13 +161,16 @@ def choose_max_distance(
     candidates: Sequence[float],
     *,
     method: str = "centroid",
+    unknown_share: float = 0.25,
 ) -> tuple[float, dict[float, float]]:
     """The assignment distance that best separates known from unknown senses.
 
     Per verb (vectors, gold senses; every row an example of its sense), each row is predicted
     from the others: with its own sense among the anchors it should be assigned to it
     (leave-one-out), with its whole sense held out it should be left unassigned
-    (leave-one-sense-out). The score of a distance is the mean of both accuracies.
+    (leave-one-sense-out). The score of a distance weighs the second accuracy by
+    ``unknown_share``, the share of occurrences expected outside the curated inventory: an
+    assumption (curated inventories cover most uses), not a measured value.
     """
     from lexbuild.senses.guide import assign_to_senses
 
@@ -194,7 +200,8 @@ def choose_max_distance(
                                               len(senses), method=method, max_distance=d)
                     left[d] += int(got[0] == -1)
     scores = {
-        d: 0.5 * (right[d] / max(total_known, 1)) + 0.5 * (left[d] / max(total_unknown, 1))
+        d: (1 - unknown_share) * (right[d] / max(total_known, 1))
+        + unknown_share * (left[d] / max(total_unknown, 1))
         for d in candidates
     }
     best = max(candidates, key=lambda d: (round(scores[d], 12), d))
