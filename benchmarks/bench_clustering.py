@@ -18,7 +18,7 @@ import numpy as np
 from sklearn.cluster import AgglomerativeClustering
 from sklearn.metrics import adjusted_rand_score
 
-from lexbuild.senses.clustering import SenseClusterer
+from lexbuild.senses.agglomerative import AgglomerativeClusterer as SenseClusterer
 
 SKLEARN_MAX = 10_000  # above this its dense n x n float64 matrix gets too large to be useful
 

@@ -40,7 +40,7 @@ from lexbuild.corpus.occurrences import Occurrence  # noqa: E402
 from lexbuild.senses.clustering import SenseClusterer  # noqa: E402
 from lexbuild.senses.evaluation import evaluate_verb  # noqa: E402
 from lexbuild.senses.guide import ASSIGNERS, DEFAULT_MAX_DISTANCE, guided_labels  # noqa: E402
-from lexbuild.senses.induce import DEFAULT_THRESHOLD  # noqa: E402
+from lexbuild.senses.agglomerative import DEFAULT_THRESHOLDS  # noqa: E402
 from lexbuild.senses.static import StaticSyntacticVectors  # noqa: E402
 from lexbuild.senses.vectors import VectorCache, encode_cached  # noqa: E402
 
@@ -201,7 +201,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     parser.add_argument("--gold", choices=("demo", "devset"), default="demo")
     parser.add_argument("--examples", type=int, nargs="+", default=[1, 3, 5])
-    parser.add_argument("--threshold", type=float, default=DEFAULT_THRESHOLD)
+    parser.add_argument("--threshold", type=float, default=DEFAULT_THRESHOLDS["average"])
     parser.add_argument("--method", choices=ASSIGNERS, default="centroid")
     parser.add_argument("--max-distance", type=float, default=DEFAULT_MAX_DISTANCE)
     parser.add_argument("--repeats", type=int, default=3)

@@ -25,8 +25,9 @@ import numpy as np
 from sklearn.metrics import adjusted_rand_score
 
 from lexbuild.corpus.occurrences import Occurrence, iter_occurrences
-from lexbuild.senses.clustering import SenseClusterer
-from lexbuild.senses.induce import InductionSettings, induce
+from lexbuild.senses.agglomerative import AgglomerativeClusterer as SenseClusterer
+from lexbuild.senses.inducer import induce
+from lexbuild.senses.settings import InductionSettings
 from lexbuild.senses.vectors import (
     Representation,
     StaticSyntacticVectors,

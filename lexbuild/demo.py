@@ -90,15 +90,10 @@ def run_demo(
     from lexbuild.lexicon.model import Status
     from lexbuild.lexicon.sources import load_lexicon, write_meta
     from lexbuild.senses.evaluation import evaluate
-    from lexbuild.senses.induce import (
-        DEFAULT_THRESHOLD,
-        InductionSettings,
-        induce,
-        read_assignments,
-        write_induction,
-    )
-    from lexbuild.senses.static import StaticSyntacticVectors
-    from lexbuild.senses.vectors import VectorCache
+    from lexbuild.senses.inducer import SenseInducer
+    from lexbuild.senses.induction_folder import read_assignments, write_induction
+    from lexbuild.senses.settings import InductionSettings
+    from lexbuild.senses.vectors import VectorCache, load_representation
 
     root = Path(output)
     root.mkdir(parents=True, exist_ok=True)
@@ -128,16 +123,13 @@ def run_demo(
         for occ in extract_occurrences(sentence, french)
         if occ.lemma in lemmas
     ]
-    settings = InductionSettings(threshold=DEFAULT_THRESHOLD if threshold is None else threshold)
+    # The same defaults as ``lexbuild induce`` (InductionSettings), threshold included.
+    settings = InductionSettings()
+    if threshold is not None:
+        settings = settings.with_threshold(threshold)
     with VectorCache(root / "vector-cache.sqlite") as cache:
-        result = induce(
-            occurrences,
-            StaticSyntacticVectors(),
-            settings,
-            cache=cache,
-            corpus=[conllu],
-            lemmas=lemmas,
-        )
+        inducer = SenseInducer(load_representation(), settings=settings, cache=cache)
+        result = inducer.fit(occurrences, corpus=[conllu], lemmas=lemmas).result_
     write_induction(result, induced, overwrite=True)
 
     # 4. Score against the gold labels.

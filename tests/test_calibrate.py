@@ -164,7 +164,7 @@ def test_per_verb_curves_match_the_means(calibration: Calibration) -> None:
 def test_sweep_equals_one_fit_per_threshold(exact_max: int) -> None:
     # The calibration cuts one tree at every threshold; each cut must be what a fresh fit at
     # that threshold gives (exact path; the two-stage path above exact_max refits).
-    from lexbuild.senses.clustering import SenseClusterer
+    from lexbuild.senses.agglomerative import AgglomerativeClusterer as SenseClusterer
 
     rng = np.random.default_rng(3)
     centres = rng.normal(size=(4, 24))

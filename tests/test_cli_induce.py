@@ -290,10 +290,14 @@ def test_induce_calibrates_when_no_threshold_is_given(
         == 0
     )
     err = capsys.readouterr().err
-    assert "calibrated on 1 pseudo-verbs" in err
+    # The calibration reads every verb of the corpus, not only the verbs induced, as
+    # ``lexbuild calibrate`` does: 20 pairs + 10 matched pairs + 5 triples.
+    assert "calibrated on 35 pseudo-verbs" in err
     manifest = json.loads((tmp_path / "o" / "induction.json").read_text(encoding="utf-8"))
-    threshold = float(err.split("threshold ")[1].split()[0])
+    threshold = float(err.split("threshold ")[1].split(",")[0])
     assert manifest["threshold"] == threshold
+    assert manifest["threshold_source"].startswith("calibrated on 35 pseudo-verbs")
+    assert manifest["settings"]["calibration"]["per_verb"] == 200
 
 
 def test_induce_with_a_transformer_folder(

@@ -11,7 +11,9 @@ from scipy.spatial.distance import pdist
 from sklearn.metrics import adjusted_rand_score
 
 from lexbuild.errors import InductionError
-from lexbuild.senses.clustering import SenseClusterer, assign_to_centroids, condensed_cosine
+from lexbuild.senses.agglomerative import AgglomerativeClusterer as SenseClusterer
+from lexbuild.senses.agglomerative import condensed_cosine
+from lexbuild.senses.clustering import assign_to_centroids
 
 NO_MERGE: dict[str, Any] = {"min_cluster_size": 1, "min_cluster_share": 0.0}
 

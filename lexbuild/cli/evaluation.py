@@ -3,16 +3,21 @@
 from __future__ import annotations
 
 import argparse
+import dataclasses
 import sys
 from pathlib import Path
 from typing import Any
 
 from lexbuild.cli.induce import (
+    DEFAULTS,
+    add_clusterer_options,
     add_representation_options,
     open_cache,
     representation_from_args,
+    settings_from_args,
     update_bar,
 )
+from lexbuild.senses.clustering import CLUSTERERS
 
 __all__ = ["register"]
 
@@ -34,7 +39,7 @@ def run_evaluate(args: argparse.Namespace) -> int:
     from lexbuild._atomic import atomic_write_text
     from lexbuild.errors import InductionError
     from lexbuild.senses.evaluation import evaluate, report_json, report_markdown
-    from lexbuild.senses.induce import read_assignments
+    from lexbuild.senses.induction_folder import read_assignments
 
     assignments = read_assignments(args.induced)
     gold = _read_gold(args.gold)
@@ -60,47 +65,70 @@ def run_evaluate(args: argparse.Namespace) -> int:
 def run_calibrate(args: argparse.Namespace) -> int:
     from tqdm import tqdm
 
+    from lexbuild._atomic import atomic_write_text
     from lexbuild.corpus.conllu import resolve_paths
     from lexbuild.corpus.occurrences import iter_occurrences
     from lexbuild.errors import InductionError
-    from lexbuild.senses.calibrate import DEFAULT_THRESHOLDS, calibrate, write_calibration
+    from lexbuild.senses.calibrate import (
+        best_clusterer,
+        compare_clusterers,
+        comparison_markdown,
+        write_calibration,
+    )
 
     files = resolve_paths(args.corpus)
     if not files:
         raise InductionError(f"no CoNLL-U file found in {' '.join(args.corpus)}")
+    thresholds = None
     if args.thresholds:
         try:
-            thresholds = [float(x) for x in args.thresholds.split(",") if x.strip()]
+            thresholds = tuple(float(x) for x in args.thresholds.split(",") if x.strip())
         except ValueError:
             raise InductionError(
                 f"--thresholds {args.thresholds!r}: expected numbers separated by commas"
             ) from None
-    else:
-        thresholds = list(DEFAULT_THRESHOLDS)
-    representation = representation_from_args(args)
-    cache = open_cache(args)
-    occurrences = list(iter_occurrences(files, language=args.language))
-    total = args.pairs + args.matched_pairs + args.triples
-    with tqdm(total=total, desc="pseudo-verbs", file=sys.stderr, disable=None) as bar:
-        calibration = calibrate(
-            occurrences,
-            representation,
-            thresholds=thresholds,
+    names = list(dict.fromkeys([args.clusterer, *(args.compare or [])]))
+    if "all" in names:
+        names = list(CLUSTERERS)
+    if thresholds is not None and len(names) > 1:
+        raise InductionError("--thresholds applies to one clusterer; compare without it")
+    settings = settings_from_args(args)
+    settings = settings.updated(
+        calibration=dataclasses.replace(
+            settings.calibration,
             pairs=args.pairs,
             matched_pairs=args.matched_pairs,
             triples=args.triples,
             min_count=args.min_count,
             per_verb=args.per_verb,
             mask=not args.no_mask,
-            random_state=args.random_state,
+            thresholds=thresholds,
+        )
+    )
+    representation = representation_from_args(args)
+    cache = open_cache(args)
+    occurrences = list(iter_occurrences(files, language=args.language))
+    options = settings.calibration
+    total = (options.pairs + options.matched_pairs + options.triples) * len(names)
+    with tqdm(total=total, desc="pseudo-verbs", file=sys.stderr, disable=None) as bar:
+        calibrations = compare_clusterers(
+            occurrences,
+            representation,
+            names,
+            settings,
             cache=cache,
             progress=lambda n: update_bar(bar, n),
         )
+    best_name = best_clusterer(calibrations)
+    calibration = calibrations[best_name]
     path = write_calibration(calibration, args.output, plot=not args.no_plot)
+    if len(names) > 1:
+        atomic_write_text(Path(args.output) / "comparison.md", comparison_markdown(calibrations))
+        sys.stdout.write(comparison_markdown(calibrations))
     best = calibration.recommended
     print(
-        f"recommended threshold {best.threshold:g}: mean ARI {best.ari:.3f}, "
-        f"{best.clusters_per_verb:.1f} clusters per pseudo-verb, "
+        f"recommended threshold {best.threshold:g} ({best_name}, {calibration.parameter}): "
+        f"mean ARI {best.ari:.3f}, {best.clusters_per_verb:.1f} clusters per pseudo-verb, "
         f"{len(calibration.pseudo_verbs)} pseudo-verbs -> {path}"
     )
     return 0
@@ -130,19 +158,32 @@ def register(subparsers: Any) -> None:
     calibrate.add_argument("corpus", nargs="+", help="CoNLL-U files or folders")
     calibrate.add_argument("--output", "-o", required=True, help="folder to write into")
     calibrate.add_argument(
-        "--thresholds", help="comma-separated thresholds (default 0.10 to 0.95 by 0.05)"
+        "--thresholds",
+        help="comma-separated values of the clusterer's parameter (default: the clusterer's "
+        "own grid; agglomerative average linkage: 0.10 to 0.95 by 0.05)",
     )
-    calibrate.add_argument("--pairs", type=int, default=20, help="random pairs of verbs")
-    calibrate.add_argument("--matched-pairs", type=int, default=10,
+    calibrate.add_argument(
+        "--compare",
+        action="append",
+        choices=(*CLUSTERERS, "all"),
+        metavar="CLUSTERER",
+        help="calibrate this clusterer too, on the same pseudo-verbs (repeat; 'all' for every "
+        "registered one); calibration.json is written for the best, comparison.md for all",
+    )
+    options = DEFAULTS.calibration
+    calibrate.add_argument("--pairs", type=int, default=options.pairs,
+                           help="random pairs of verbs")
+    calibrate.add_argument("--matched-pairs", type=int, default=options.matched_pairs,
                            help="pairs of verbs of similar frequency")
-    calibrate.add_argument("--triples", type=int, default=5, help="random triples of verbs")
-    calibrate.add_argument("--min-count", type=int, default=30,
+    calibrate.add_argument("--triples", type=int, default=options.triples,
+                           help="random triples of verbs")
+    calibrate.add_argument("--min-count", type=int, default=options.min_count,
                            help="occurrences a verb needs to enter a pseudo-verb")
-    calibrate.add_argument("--per-verb", type=int, default=200,
+    calibrate.add_argument("--per-verb", type=int, default=options.per_verb,
                            help="occurrences sampled from each verb")
     calibrate.add_argument("--no-mask", action="store_true",
                            help="leave the verb form visible (tests the representation only)")
     calibrate.add_argument("--no-plot", action="store_true", help="skip calibration.png")
-    calibrate.add_argument("--random-state", type=int, default=0)
+    add_clusterer_options(calibrate)
     add_representation_options(calibrate)
     calibrate.set_defaults(handler=run_calibrate)

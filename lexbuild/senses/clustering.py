@@ -1,30 +1,108 @@
-"""Sense induction by agglomerative clustering of contextual embeddings.
+"""Clustering methods for sense induction: one protocol, one registry, shared helpers.
 
-``SenseClusterer`` follows the scikit-learn estimator shape: ``__init__`` stores parameters,
-``fit`` learns ``labels_``, ``n_clusters_`` and ``centroids_``. Up to ``exact_max`` points the
-full average-linkage tree is built on cosine distances; beyond that a two-stage scheme
-(k-means micro-clusters, then exact average linkage between them) keeps memory linear.
+A clusterer follows the scikit-learn estimator shape: ``__init__`` stores parameters, ``fit(X)``
+learns ``labels_`` (0..k-1, every row labelled), ``n_clusters_`` and ``centroids_`` (unit
+vectors). ``sweep(X, values)`` gives the labels ``fit`` would give for each value of the
+method's calibrated parameter, so that calibration can share work between values.
+
+A method is one module defining a ``ClustererSpec`` named ``SPEC`` plus one line in
+``CLUSTERERS`` below (name -> module). Modules are imported only when their method is used, so
+a method's heavy dependencies cost nothing to the others.
 """
 
 from __future__ import annotations
 
-from typing import Any
+import importlib
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass
+from typing import TYPE_CHECKING, Any, Protocol, runtime_checkable
 
 import numpy as np
 import numpy.typing as npt
-from scipy.cluster.hierarchy import fcluster
 
 from lexbuild.errors import InductionError
+
+if TYPE_CHECKING:
+    from lexbuild.senses.settings import InductionSettings
+
+__all__ = [
+    "CLUSTERERS",
+    "Clusterer",
+    "ClustererSpec",
+    "assign_to_centroids",
+    "clusterer_names",
+    "get_clusterer",
+    "merge_small_clusters",
+    "normalise_rows",
+    "relabel",
+    "unit_centroids",
+]
 
 FloatArray = npt.NDArray[np.floating[Any]]
 IntArray = npt.NDArray[np.intp]
 
-_LINKAGES = ("average", "ward")
-# Rows of the similarity block computed at once: bounds the temporary to ~64 MB of float32.
-_BLOCK_ELEMENTS = 16_000_000
+#: Registered clustering methods: CLI name -> module defining ``SPEC``.
+CLUSTERERS: dict[str, str] = {
+    "agglomerative": "lexbuild.senses.agglomerative",
+    "hdbscan": "lexbuild.senses.hdbscan",
+    "affinity-propagation": "lexbuild.senses.affinity",
+}
 
 
-def _validate(X: Any, name: str = "X") -> npt.NDArray[np.float32]:
+@runtime_checkable
+class Clusterer(Protocol):
+    """What induction and calibration need from a clustering method."""
+
+    labels_: IntArray
+    n_clusters_: int
+    centroids_: npt.NDArray[np.float64]
+
+    def fit(self, X: Any, y: Any = None) -> Any: ...
+
+    def sweep(self, X: Any, values: Sequence[float]) -> list[IntArray]: ...
+
+
+@dataclass(frozen=True)
+class ClustererSpec:
+    """A registered method.
+
+    ``parameter``: the name of its calibrated parameter, in the method's own terms.
+    ``default(settings)``: the value used when no threshold is given and calibration is not
+    possible; ``grid(settings)``: the values calibration sweeps. ``make(settings, value)``: a
+    clusterer with that value. ``params(settings)``: the settings its result depends on, which a
+    calibration file must match before its recommendation is used.
+    """
+
+    name: str
+    parameter: str
+    description: str
+    default: Callable[[InductionSettings], float]
+    grid: Callable[[InductionSettings], tuple[float, ...]]
+    make: Callable[[InductionSettings, float], Clusterer]
+    params: Callable[[InductionSettings], dict[str, Any]]
+
+
+def clusterer_names() -> tuple[str, ...]:
+    return tuple(CLUSTERERS)
+
+
+def get_clusterer(name: str) -> ClustererSpec:
+    """The spec of a registered method; an unknown name is an error naming the known ones."""
+    module = CLUSTERERS.get(name)
+    if module is None:
+        raise InductionError(
+            f"unknown clusterer {name!r}; expected one of {', '.join(CLUSTERERS)}"
+        )
+    spec = importlib.import_module(module).SPEC
+    if not isinstance(spec, ClustererSpec) or spec.name != name:
+        raise InductionError(f"{module}.SPEC does not define the clusterer {name!r}")
+    return spec
+
+
+# ----------------------------------------------------------------------- shared helpers
+
+
+def normalise_rows(X: Any, name: str = "X") -> npt.NDArray[np.float32]:
     """Check shape and values, return L2-normalised float32 rows."""
     try:
         arr = np.asarray(X, dtype=np.float64)
@@ -44,7 +122,7 @@ def _validate(X: Any, name: str = "X") -> npt.NDArray[np.float32]:
     return (arr / norms[:, None]).astype(np.float32)
 
 
-def _relabel(labels: npt.ArrayLike) -> IntArray:
+def relabel(labels: npt.ArrayLike) -> IntArray:
     """Renumber labels 0..k-1 in order of first appearance (deterministic output)."""
     arr = np.asarray(labels)
     _, first, inverse = np.unique(arr, return_index=True, return_inverse=True)
@@ -54,7 +132,7 @@ def _relabel(labels: npt.ArrayLike) -> IntArray:
     return rank[inverse.ravel()].astype(np.intp)
 
 
-def _group_sums(X: FloatArray, labels: IntArray, k: int) -> npt.NDArray[np.float64]:
+def group_sums(X: FloatArray, labels: IntArray, k: int) -> npt.NDArray[np.float64]:
     """Row sums per label 0..k-1 (float64), by sorting and ``np.add.reduceat``.
 
     ``np.add.at`` on 2-D rows is unbuffered and some 50x slower at a few hundred rows.
@@ -69,267 +147,70 @@ def _group_sums(X: FloatArray, labels: IntArray, k: int) -> npt.NDArray[np.float
     return sums
 
 
-def _centroids(Xn: FloatArray, labels: IntArray, k: int) -> npt.NDArray[np.float64]:
+def unit_centroids(Xn: FloatArray, labels: IntArray, k: int) -> npt.NDArray[np.float64]:
     """L2-normalised mean of each cluster's (already normalised) members."""
-    sums = _group_sums(Xn, labels, k)
+    sums = group_sums(Xn, labels, k)
     norms = np.linalg.norm(sums, axis=1, keepdims=True)
     norms[norms == 0.0] = 1.0  # members cancelling out exactly: keep a zero centroid
     return np.asarray(sums / norms)
 
 
-def condensed_cosine(Xn: npt.NDArray[np.float32]) -> npt.NDArray[np.float64]:
-    """Condensed cosine distances of normalised rows, filled block by block.
-
-    Only the condensed vector (float64, as the linkage code wants) is kept; each block of the
-    square matrix is a bounded float32 temporary, so no full n x n matrix ever exists.
-    """
-    n = Xn.shape[0]
-    out = np.empty(n * (n - 1) // 2, dtype=np.float64)
-    block = max(1, _BLOCK_ELEMENTS // max(n, 1))
-    for start in range(0, n, block):
-        stop = min(n, start + block)
-        d = Xn[start:stop] @ Xn.T  # similarity block, float32
-        np.subtract(1.0, d, out=d)
-        np.clip(d, 0.0, 2.0, out=d)
-        for i in range(start, stop):
-            # Offset of pair (i, i+1) in the condensed (row-major upper triangle) layout.
-            off = n * i - i * (i + 1) // 2
-            out[off : off + n - i - 1] = d[i - start, i + 1 :]
-    return out
-
-
-def _linkage(condensed: npt.NDArray[np.float64], method: str) -> npt.NDArray[np.float64]:
-    """Linkage matrix from a condensed float64 vector, which may be overwritten."""
-    try:
-        import fastcluster  # lazily: optional, much faster
-    except ImportError:  # pragma: no cover - depends on the environment
-        from scipy.cluster.hierarchy import linkage as scipy_linkage
-
-        return np.asarray(scipy_linkage(condensed, method=method))
-    n = int(np.ceil(np.sqrt(condensed.size * 2)))
-    wrap = getattr(fastcluster, "linkage_wrap", None)
-    mthidx = getattr(fastcluster, "mthidx", None)
-    if wrap is None or mthidx is None or not condensed.flags.c_contiguous:
-        return np.asarray(fastcluster.linkage(condensed, method=method, preserve_input=False))
-    # fastcluster.linkage() begins with np.array(X), a full copy of the condensed matrix even
-    # with preserve_input=False (1.3.0); its C routine works in place, so call it directly.
-    Z = np.empty((n - 1, 4))
-    wrap(n, condensed, Z, mthidx[method])
-    return Z
-
-
-def _average_linkage_groups(
-    sums: npt.NDArray[np.float64], sizes: npt.NDArray[np.float64], threshold: float
+def merge_small_clusters(
+    Xn: npt.NDArray[np.float32], labels: IntArray, min_size: int, min_share: float
 ) -> IntArray:
-    """Average linkage between groups of normalised points, cut at ``threshold``.
+    """Clusters under ``max(min_size, min_share * n)`` go into the most similar large one."""
+    n = labels.size
+    k = int(labels.max()) + 1
+    sizes = np.bincount(labels, minlength=k)
+    floor = max(min_size, min_share * n)
+    large = sizes >= floor
+    if large.all():
+        return labels
+    if not large.any():
+        # No cluster has enough support: the largest becomes the only target.
+        large[int(np.argmax(sizes))] = True
+    cents = unit_centroids(Xn, labels, k)
+    sim = cents @ cents[large].T
+    target_of_large = np.flatnonzero(large)
+    mapping = np.arange(k)
+    small = np.flatnonzero(~large)
+    mapping[small] = target_of_large[np.argmax(sim[small], axis=1)]
+    return relabel(mapping[labels])
 
-    The mean cosine distance over member pairs of groups i, j is
-    ``1 - dot(sum_i, sum_j) / (n_i n_j)``, so the start matrix is exact; merges use the
-    size-weighted Lance-Williams update, which is exact for average linkage.
+
+def attach_noise(Xn: npt.NDArray[np.float32], labels: npt.ArrayLike) -> IntArray:
+    """Labels with every noise point (label -1) given to the cluster of nearest centroid.
+
+    A dictionary sense covers every occurrence of its verb, so noise is not left out; when all
+    points are noise they form one cluster.
     """
-    m = sizes.size
-    if m == 1:
-        return np.zeros(1, dtype=np.intp)
-    dist = 1.0 - (sums @ sums.T) / np.outer(sizes, sizes)
-    np.clip(dist, 0.0, 2.0, out=dist)
-    np.fill_diagonal(dist, np.inf)
-    sizes = sizes.astype(np.float64).copy()
-    owner = np.arange(m)  # group -> surviving representative
-    for _ in range(m - 1):
-        flat = int(np.argmin(dist))
-        i, j = divmod(flat, m)
-        if not dist[i, j] <= threshold:  # fcluster 'distance' joins merges of height <= t
-            break
-        i, j = min(i, j), max(i, j)
-        ni, nj = sizes[i], sizes[j]
-        merged = (ni * dist[i] + nj * dist[j]) / (ni + nj)
-        dist[i, :] = merged
-        dist[:, i] = merged
-        dist[i, i] = np.inf
-        dist[j, :] = np.inf
-        dist[:, j] = np.inf
-        sizes[i] = ni + nj
-        owner[owner == j] = i
-    return _relabel(owner)
+    arr = np.asarray(labels, dtype=np.intp).copy()
+    noise = arr < 0
+    if noise.all():
+        return np.zeros(arr.size, dtype=np.intp)
+    if noise.any():
+        kept = relabel(arr[~noise])
+        k = int(kept.max()) + 1
+        cents = unit_centroids(Xn[~noise], kept, k)
+        arr[~noise] = kept
+        arr[noise] = np.argmax(Xn[noise] @ cents.T, axis=1)
+    return relabel(arr)
 
 
-class SenseClusterer:
-    """Agglomerative sense clustering on cosine distances, scikit-learn style.
+def fitted(
+    model: Any, Xn: npt.NDArray[np.float32], labels: IntArray
+) -> None:
+    """Set the fitted attributes every clusterer exposes."""
+    model.labels_ = labels
+    model.n_clusters_ = int(labels.max()) + 1
+    model.centroids_ = unit_centroids(Xn, labels, model.n_clusters_)
 
-    Parameters
-    ----------
-    threshold: distance at which the tree is cut (cosine distance; for ``linkage="ward"`` the
-        Ward height on normalised vectors in euclidean space).
-    linkage: ``"average"`` or ``"ward"``.
-    metric: only ``"cosine"`` is supported.
-    min_cluster_size, min_cluster_share: clusters smaller than
-        ``max(min_cluster_size, min_cluster_share * n)`` are merged into the nearest large one.
-    exact_max: largest n clustered exactly; above it the two-stage path runs.
-    n_micro: number of k-means micro-clusters in the two-stage path.
-    random_state: fixes the random numbers of the k-means stage.
-    """
 
-    labels_: IntArray
-    n_clusters_: int
-    centroids_: npt.NDArray[np.float64]
-
-    def __init__(
-        self,
-        threshold: float = 0.5,
-        linkage: str = "average",
-        metric: str = "cosine",
-        min_cluster_size: int = 3,
-        min_cluster_share: float = 0.05,
-        exact_max: int = 20000,
-        n_micro: int = 256,
-        random_state: int | None = 0,
-    ) -> None:
-        self.threshold = threshold
-        self.linkage = linkage
-        self.metric = metric
-        self.min_cluster_size = min_cluster_size
-        self.min_cluster_share = min_cluster_share
-        self.exact_max = exact_max
-        self.n_micro = n_micro
-        self.random_state = random_state
-
-    def _check_params(self) -> None:
-        if self.metric != "cosine":
-            raise InductionError(f"metric must be 'cosine', got {self.metric!r}")
-        if self.linkage not in _LINKAGES:
-            raise InductionError(f"linkage must be one of {_LINKAGES}, got {self.linkage!r}")
-        if not np.isfinite(self.threshold) or self.threshold < 0:
-            raise InductionError(f"threshold must be a finite number >= 0, got {self.threshold}")
-        if self.min_cluster_size < 1:
-            raise InductionError("min_cluster_size must be >= 1")
-        if not 0.0 <= self.min_cluster_share <= 1.0:
-            raise InductionError("min_cluster_share must lie in [0, 1]")
-        if self.exact_max < 1 or self.n_micro < 1:
-            raise InductionError("exact_max and n_micro must be >= 1")
-
-    def fit(self, X: Any, y: Any = None) -> SenseClusterer:
-        """Cluster the rows of ``X``; ``y`` is ignored (scikit-learn convention)."""
-        self._check_params()
-        Xn = _validate(X)
-        n = Xn.shape[0]
-        if n == 1:
-            raw = np.zeros(1, dtype=np.intp)
-        elif n <= self.exact_max:
-            raw = self._fit_exact(Xn)
-        else:
-            raw = self._fit_two_stage(Xn)
-        labels = _relabel(raw)
-        labels = self._merge_small(Xn, labels)
-        self.labels_ = labels
-        self.n_clusters_ = int(labels.max()) + 1
-        self.centroids_ = _centroids(Xn, labels, self.n_clusters_)
-        return self
-
-    def fit_predict(self, X: Any, y: Any = None) -> IntArray:
-        return self.fit(X).labels_
-
-    def sweep(self, X: Any, thresholds: Any) -> list[IntArray]:
-        """Labels for each threshold, as ``fit`` with that threshold would give them.
-
-        On the exact path the tree is built once and cut at every threshold (calibration
-        sweeps many); the two-stage path refits. Fitted attributes are left untouched.
-        """
-        cuts = [float(t) for t in thresholds]
-        self._check_params()
-        for t in cuts:
-            if not np.isfinite(t) or t < 0:
-                raise InductionError(f"threshold must be a finite number >= 0, got {t}")
-        Xn = _validate(X)
-        n = Xn.shape[0]
-        if n == 1:
-            return [np.zeros(1, dtype=np.intp) for _ in cuts]
-        if n > self.exact_max:
-            out = []
-            for t in cuts:
-                clone = SenseClusterer(**{**self.get_params(), "threshold": t})
-                out.append(clone.fit(Xn).labels_)
-            return out
-        Z = self._tree(Xn)
-        return [
-            self._merge_small(Xn, _relabel(fcluster(Z, t=t, criterion="distance")))
-            for t in cuts
-        ]
-
-    def get_params(self, deep: bool = True) -> dict[str, Any]:
-        """Constructor parameters (scikit-learn convention)."""
-        return {
-            "threshold": self.threshold,
-            "linkage": self.linkage,
-            "metric": self.metric,
-            "min_cluster_size": self.min_cluster_size,
-            "min_cluster_share": self.min_cluster_share,
-            "exact_max": self.exact_max,
-            "n_micro": self.n_micro,
-            "random_state": self.random_state,
-        }
-
-    def _tree(self, Xn: npt.NDArray[np.float32]) -> npt.NDArray[np.float64]:
-        condensed = condensed_cosine(Xn)
-        if self.linkage == "ward":
-            # Euclidean distance of unit vectors: ||a-b|| = sqrt(2 * cosine distance); in place.
-            np.multiply(condensed, 2.0, out=condensed)
-            np.sqrt(condensed, out=condensed)
-        return _linkage(condensed, self.linkage)
-
-    def _fit_exact(self, Xn: npt.NDArray[np.float32]) -> IntArray:
-        Z = self._tree(Xn)
-        return np.asarray(fcluster(Z, t=self.threshold, criterion="distance"), dtype=np.intp)
-
-    def _fit_two_stage(self, Xn: npt.NDArray[np.float32]) -> IntArray:
-        from sklearn.cluster import KMeans, MiniBatchKMeans
-
-        n = Xn.shape[0]
-        k = min(self.n_micro, n)
-        # MiniBatchKMeans scales to many points; plain KMeans is fine for modest n. One
-        # initialisation: the micro-clusters only need to be tight, not optimal, and on
-        # static vectors of UD French verbs n_init=3 was 5x slower with no better agreement
-        # with the exact partition (benchmarks/bench_clustering.py).
-        km: Any
-        if n > 10 * k:
-            km = MiniBatchKMeans(
-                n_clusters=k, random_state=self.random_state, n_init=1, batch_size=4096
-            )
-        else:
-            km = KMeans(n_clusters=k, random_state=self.random_state, n_init=1)
-        micro = _relabel(km.fit_predict(Xn))
-        m = int(micro.max()) + 1
-        sums = _group_sums(Xn, micro, m)
-        sizes = np.bincount(micro, minlength=m).astype(np.float64)
-        if self.linkage == "ward":
-            # Ward between micro-clusters is approximated on their normalised centroids
-            # (unweighted); only the average linkage path is exact.
-            from scipy.cluster.hierarchy import linkage as scipy_linkage
-
-            cents = sums / np.linalg.norm(sums, axis=1, keepdims=True)
-            Z = scipy_linkage(cents, method="ward")
-            group = np.asarray(fcluster(Z, t=self.threshold, criterion="distance"))
-        else:
-            group = _average_linkage_groups(sums, sizes, float(self.threshold))
-        return np.asarray(group[micro], dtype=np.intp)  # members inherit their micro's cluster
-
-    def _merge_small(self, Xn: npt.NDArray[np.float32], labels: IntArray) -> IntArray:
-        n = labels.size
-        k = int(labels.max()) + 1
-        sizes = np.bincount(labels, minlength=k)
-        floor = max(self.min_cluster_size, self.min_cluster_share * n)
-        large = sizes >= floor
-        if large.all():
-            return labels
-        if not large.any():
-            # No cluster has enough support: the largest becomes the only target.
-            large[int(np.argmax(sizes))] = True
-        cents = _centroids(Xn, labels, k)
-        sim = cents @ cents[large].T
-        target_of_large = np.flatnonzero(large)
-        mapping = np.arange(k)
-        small = np.flatnonzero(~large)
-        mapping[small] = target_of_large[np.argmax(sim[small], axis=1)]
-        return _relabel(mapping[labels])
+def check_common(params: Mapping[str, Any]) -> None:
+    if params["min_cluster_size"] < 1:
+        raise InductionError("min_cluster_size must be >= 1")
+    if not 0.0 <= params["min_cluster_share"] <= 1.0:
+        raise InductionError("min_cluster_share must lie in [0, 1]")
 
 
 def assign_to_centroids(X: Any, centroids: Any) -> IntArray:
@@ -337,7 +218,7 @@ def assign_to_centroids(X: Any, centroids: Any) -> IntArray:
 
     Used for occurrences beyond the sampling cap, which are not part of the clustering itself.
     """
-    Xn = _validate(X)
+    Xn = normalise_rows(X)
     C = np.asarray(centroids, dtype=np.float64)
     if C.ndim != 2 or C.shape[0] == 0:
         raise InductionError("centroids must be a non-empty 2-D array")

@@ -31,10 +31,12 @@ from lexbuild.corpus.occurrences import Occurrence
 from lexbuild.errors import InductionError, ModelLoadError
 
 __all__ = [
+    "REPRESENTATIONS",
     "CacheStats",
     "Representation",
     "TransformerEncoder",
     "VectorCache",
+    "canonical_representation_name",
     "encode_cached",
     "load_representation",
 ]
@@ -494,25 +496,45 @@ def _encode(
     return matrix
 
 
+#: The one name of each representation: CLI choices, README, ``induction.json``,
+#: ``calibration.json`` and sense provenance all use it (it is the representation's ``id``).
+REPRESENTATIONS = ("static-syntactic", "transformer")
+#: Names used by earlier versions, refused with the name that replaced them.
+RENAMED_REPRESENTATIONS = {"static": "static-syntactic", "default": "static-syntactic"}
+
+
+def canonical_representation_name(name: str, origin: str = "representation") -> str:
+    """``name`` if it is a representation's one name; an error naming the right one otherwise."""
+    if name in REPRESENTATIONS:
+        return name
+    if name in RENAMED_REPRESENTATIONS:
+        raise InductionError(
+            f"{origin}: the representation {name!r} is now called "
+            f"{RENAMED_REPRESENTATIONS[name]!r}; use that name"
+        )
+    raise InductionError(
+        f"{origin}: unknown representation {name!r}; expected one of {', '.join(REPRESENTATIONS)}"
+    )
+
+
 def load_representation(
-    kind: str = "static",
+    kind: str = "static-syntactic",
     model: str | Path | None = None,
     **options: Any,
 ) -> Representation:
-    """A representation by name: ``static`` (alias ``default``) or ``transformer``."""
-    if kind in ("static", "default", "static-syntactic"):
+    """A representation by its name: ``static-syntactic`` or ``transformer``."""
+    kind = canonical_representation_name(kind)
+    if kind == "static-syntactic":
         from lexbuild.senses.static import StaticSyntacticVectors
 
         if model is not None:
             options["package"] = str(model)
         return StaticSyntacticVectors(**options)
-    if kind == "transformer":
-        if model is None:
-            raise InductionError(
-                "the transformer representation needs a model: a folder or a local cache id"
-            )
-        return TransformerEncoder(model, **options)
-    raise InductionError(f"unknown representation {kind!r}; expected 'static' or 'transformer'")
+    if model is None:
+        raise InductionError(
+            "the transformer representation needs a model: a folder or a local cache id"
+        )
+    return TransformerEncoder(model, **options)
 
 
 def __getattr__(name: str) -> Any:

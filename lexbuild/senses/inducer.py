@@ -1,0 +1,265 @@
+"""``SenseInducer``: sense induction as a scikit-learn-shaped estimator.
+
+Parameters go to ``__init__`` (the representation, then any field of ``InductionSettings`` by
+name: ``threshold``, ``clusterer``, ``linkage``, ``random_state``, ``cap``, ``examples`` ...;
+plus a calibration file, an executor, a vector cache and a guide); ``fit(occurrences)`` chooses
+the threshold (``lexbuild.senses.threshold``), encodes each verb's occurrences, runs
+``induce_verb`` on every verb through the executor and keeps the result as data in
+``result_`` (an ``InductionResult``) and the threshold choice in ``threshold_``. Nothing is
+printed; callbacks serve progress bars. ``lexbuild.senses.induction_folder`` writes the result.
+
+    inducer = SenseInducer(load_representation("static-syntactic"), threshold=0.6)
+    result = inducer.fit(occurrences).result_
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from collections import defaultdict
+from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
+from dataclasses import dataclass, field, fields
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import numpy.typing as npt
+
+from lexbuild import __version__
+from lexbuild.corpus.occurrences import Occurrence
+from lexbuild.errors import InductionError
+from lexbuild.lexicon.model import Entry
+from lexbuild.senses.calibrate import Calibration
+from lexbuild.senses.examples import corpus_name
+from lexbuild.senses.executor import Executor, InProcessExecutor
+from lexbuild.senses.induce import Assignment, VerbResult, VerbTask, induce_verb
+from lexbuild.senses.settings import InductionSettings
+from lexbuild.senses.threshold import ThresholdChoice, choose_threshold
+from lexbuild.senses.vectors import (
+    CacheStats,
+    Representation,
+    VectorCache,
+    encode_cached,
+    fingerprint,
+)
+
+__all__ = ["InductionResult", "SenseInducer", "induce"]
+
+
+@dataclass
+class InductionResult:
+    """What an induction run produced: entries, centroids, assignments and its provenance."""
+
+    entries: list[Entry]
+    centroids: dict[str, npt.NDArray[np.float32]]
+    assignments: list[Assignment]
+    settings: InductionSettings
+    representation: str
+    model: str | None
+    representation_settings: dict[str, Any]
+    run: str
+    corpus: list[str] = field(default_factory=list)
+    counts: dict[str, int] = field(default_factory=dict)
+    cache: CacheStats = field(default_factory=CacheStats)
+    threshold_source: str = "given"
+
+    def manifest(self) -> dict[str, Any]:
+        """The content of ``induction.json``."""
+        return {
+            "run": self.run,
+            "lexbuild_version": __version__,
+            "representation": self.representation,
+            "model": self.model,
+            "representation_settings": self.representation_settings,
+            "clusterer": self.settings.clusterer,
+            "threshold": self.settings.threshold,
+            "threshold_source": self.threshold_source,
+            "settings": self.settings.to_json(),
+            "corpus": list(self.corpus),
+            "counts": dict(self.counts),
+        }
+
+
+def _run_id(
+    representation: Representation,
+    settings: InductionSettings,
+    by_lemma: Mapping[str, Sequence[Occurrence]],
+) -> str:
+    """A content hash of everything the result depends on (never the time)."""
+    h = hashlib.sha256()
+    h.update(fingerprint(representation).encode())
+    h.update(json.dumps(settings.to_json(), sort_keys=True).encode())
+    for lemma in sorted(by_lemma):
+        h.update(lemma.encode() + b"\x1d")
+        for occ in by_lemma[lemma]:
+            h.update(f"{corpus_name(occ.source)}\x1f{occ.sentence_id}\x1f{occ.token}\x1f".encode())
+            h.update(representation.input_key(occ).encode())
+    return "run-" + h.hexdigest()[:16]
+
+
+class SenseInducer:
+    """Induce the senses of every verb of a corpus (see the module docstring).
+
+    ``settings`` gives the starting values (default ``InductionSettings()``, the one source of
+    every default) and ``params`` override fields of it by name. ``calibration``: a
+    ``calibration.json``, its folder or a ``Calibration``, used when the threshold is
+    ``"calibrate"``. ``executor``: runs the per-verb tasks (default in-process). ``guide``:
+    lemma -> curated senses for guided induction, handed to that verb's task.
+    """
+
+    result_: InductionResult
+    threshold_: ThresholdChoice
+
+    def __init__(
+        self,
+        representation: Representation,
+        *,
+        settings: InductionSettings | None = None,
+        calibration: str | Path | Calibration | None = None,
+        executor: Executor | None = None,
+        cache: VectorCache | None = None,
+        guide: Mapping[str, Any] | None = None,
+        **params: Any,
+    ) -> None:
+        self.representation = representation
+        self.settings = (settings or InductionSettings()).updated(**params)
+        self.calibration = calibration
+        self.executor = executor
+        self.cache = cache
+        self.guide = guide
+
+    def get_params(self, deep: bool = True) -> dict[str, Any]:
+        """Constructor parameters (scikit-learn convention; settings fields by name)."""
+        params = {f.name: getattr(self.settings, f.name) for f in fields(self.settings)}
+        params.update(
+            representation=self.representation,
+            calibration=self.calibration,
+            executor=self.executor,
+            cache=self.cache,
+            guide=self.guide,
+        )
+        return params
+
+    def fit(
+        self,
+        occurrences: Iterable[Occurrence],
+        *,
+        lemmas: Iterable[str] | None = None,
+        corpus: Sequence[str | Path] = (),
+        on_calibrated: Callable[[int], None] | None = None,
+        on_encoded: Callable[[int], None] | None = None,
+        on_verb: Callable[[str, int], None] | None = None,
+    ) -> SenseInducer:
+        """Induce the senses of every verb in ``occurrences`` (or of ``lemmas`` only).
+
+        A calibration run on the corpus (threshold ``"calibrate"``, no calibration given) uses
+        every occurrence given, ``lemmas`` or not. ``on_calibrated(1)`` is called per
+        pseudo-verb scored, ``on_encoded(n)`` as vectors are produced (cached or computed),
+        ``on_verb(lemma, n)`` after each verb is induced.
+        """
+        settings = self.settings
+        occurrences = list(occurrences)
+        wanted = frozenset(lemmas) if lemmas is not None else None
+        by_lemma: dict[str, list[Occurrence]] = defaultdict(list)
+        for occ in occurrences:
+            if wanted is None or occ.lemma in wanted:
+                by_lemma[occ.lemma].append(occ)
+        kept = {
+            lemma: occs
+            for lemma, occs in sorted(by_lemma.items())
+            if len(occs) >= settings.min_occurrences
+        }
+        if not kept:
+            raise InductionError(
+                "no verb to induce: the corpus has no occurrence"
+                + (f" of {', '.join(sorted(wanted))}" if wanted else "")
+                + (
+                    f" seen {settings.min_occurrences}+ times"
+                    if settings.min_occurrences > 1
+                    else ""
+                )
+            )
+        if self.guide is not None and not isinstance(self.guide, Mapping):
+            raise InductionError("guide must map each lemma to its curated senses")
+        stats = CacheStats()
+        choice = choose_threshold(
+            occurrences,
+            self.representation,
+            settings,
+            self.calibration,
+            cache=self.cache,
+            stats=stats,
+            progress=on_calibrated,
+        )
+        resolved = settings.with_threshold(choice.value)
+        run = _run_id(self.representation, resolved, kept)
+        executor = self.executor or InProcessExecutor()
+
+        def tasks() -> Iterator[VerbTask]:
+            # Lazily: one verb's vectors are computed when the executor asks for its task.
+            for lemma, occs in kept.items():
+                vectors = encode_cached(
+                    self.representation, occs, self.cache, stats=stats, progress=on_encoded
+                )
+                yield VerbTask(
+                    lemma=lemma,
+                    occurrences=occs,
+                    vectors=vectors,
+                    settings=resolved,
+                    representation=self.representation.id,
+                    model=self.representation.model,
+                    run=run,
+                    guide=None if self.guide is None else self.guide.get(lemma),
+                )
+
+        results: list[VerbResult] = []
+        for result in executor.map(induce_verb, tasks()):
+            results.append(result)
+            if on_verb is not None:
+                on_verb(result.entry.lemma, len(result.assignments))
+        centroids: dict[str, npt.NDArray[np.float32]] = {}
+        for result in results:
+            centroids.update(result.centroids)
+        entries = [result.entry for result in results]
+        counts = {
+            "verbs": len(entries),
+            "senses": sum(len(e.senses) for e in entries),
+            "occurrences": sum(len(o) for o in kept.values()),
+            "clustered": sum(min(len(o), settings.cap) for o in kept.values()),
+            "skipped_verbs": len(by_lemma) - len(kept),
+        }
+        self.threshold_ = choice
+        self.result_ = InductionResult(
+            entries=entries,
+            centroids=centroids,
+            assignments=[a for result in results for a in result.assignments],
+            settings=resolved,
+            representation=self.representation.id,
+            model=self.representation.model,
+            representation_settings=self.representation.settings,
+            run=run,
+            corpus=[str(p) for p in corpus],
+            counts=counts,
+            cache=stats,
+            threshold_source=choice.source,
+        )
+        return self
+
+
+def induce(
+    occurrences: Iterable[Occurrence],
+    representation: Representation,
+    settings: InductionSettings | None = None,
+    *,
+    cache: VectorCache | None = None,
+    corpus: Sequence[str | Path] = (),
+    lemmas: Iterable[str] | None = None,
+    on_verb: Callable[[str, int], None] | None = None,
+    on_encoded: Callable[[int], None] | None = None,
+    **params: Any,
+) -> InductionResult:
+    """``SenseInducer(representation, settings=settings, ...).fit(occurrences).result_``."""
+    inducer = SenseInducer(representation, settings=settings, cache=cache, **params)
+    return inducer.fit(
+        occurrences, lemmas=lemmas, corpus=corpus, on_encoded=on_encoded, on_verb=on_verb
+    ).result_
