@@ -37,10 +37,10 @@ ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 
 from lexbuild.corpus.occurrences import Occurrence  # noqa: E402
-from lexbuild.senses.clustering import SenseClusterer  # noqa: E402
+from lexbuild.senses.agglomerative import DEFAULT_THRESHOLDS  # noqa: E402
+from lexbuild.senses.agglomerative import AgglomerativeClusterer as SenseClusterer  # noqa: E402
 from lexbuild.senses.evaluation import evaluate_verb  # noqa: E402
 from lexbuild.senses.guide import ASSIGNERS, DEFAULT_MAX_DISTANCE, guided_labels  # noqa: E402
-from lexbuild.senses.agglomerative import DEFAULT_THRESHOLDS  # noqa: E402
 from lexbuild.senses.static import StaticSyntacticVectors  # noqa: E402
 from lexbuild.senses.vectors import VectorCache, encode_cached  # noqa: E402
 

@@ -55,9 +55,14 @@ def format_summary(summary: DemoSummary) -> str:
         )
         lines.append(f"{lemma:<13} {count:>18}  {scored}")
     macro = summary.evaluation.macro
+    blind = summary.unguided.macro
     lines += [
         "",
-        "mean over verbs: " + ", ".join(f"{name} {value:.3f}" for name, value in macro.items()),
+        "mean over verbs    guided  unguided",
+        *(f"  {name:<16}{value:>6.3f}  {blind.get(name, float('nan')):>8.3f}"
+          for name, value in macro.items()),
+        f"guided by {len(summary.guided.get('curated', {}))} curated senses; "
+        f"{len(summary.guided.get('unsupported', []))} without support in the corpus",
         f"merge: {len(summary.merge.matched)} senses matched, {len(summary.merge.senses_added)} "
         f"added, {len(summary.merge.entries_added)} entries added, "
         f"{len(summary.merge.unsupported)} flagged as unsupported",

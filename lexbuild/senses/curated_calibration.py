@@ -172,7 +172,8 @@ def calibrate_guided(
     pseudo_options: dict[str, Any] | None = None,
 ) -> GuidedCalibration:
     """Calibrate on the curated senses of ``guide``; fall back to pseudo-verbs (module doc)."""
-    from lexbuild.senses.calibrate import DEFAULT_THRESHOLDS, calibrate
+    from lexbuild.senses.agglomerative import AVERAGE_THRESHOLDS as DEFAULT_THRESHOLDS
+    from lexbuild.senses.calibrate import calibrate
 
     grid = sorted({round(float(t), 6) for t in (thresholds or DEFAULT_THRESHOLDS)})
     gold = curated_gold(guide, occurrences, parse_missing=parse_missing, language=language)
@@ -264,7 +265,7 @@ def _combine(verb: GoldVerbBlocks, weights: dict[str, float]) -> Any:
 def _sweep_plain(
     matrices: Sequence[Any], golds: Sequence[Sequence[str | None]], grid: Sequence[float]
 ) -> Any:
-    from lexbuild.senses.clustering import SenseClusterer
+    from lexbuild.senses.agglomerative import AgglomerativeClusterer as SenseClusterer
     from lexbuild.senses.evaluation import adjusted_rand
 
     table = np.zeros((len(matrices), len(grid)))

@@ -20,9 +20,10 @@ from __future__ import annotations
 
 import tempfile
 from collections import defaultdict
-from collections.abc import Iterable, Mapping, Sequence
+from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import numpy.typing as npt
@@ -30,6 +31,9 @@ import numpy.typing as npt
 from lexbuild.corpus.occurrences import Occurrence
 from lexbuild.errors import InductionError
 from lexbuild.lexicon.model import Example, Lexicon, Status
+
+if TYPE_CHECKING:
+    from lexbuild.senses.vectors import CacheStats, Representation, VectorCache
 
 __all__ = [
     "ASSIGNERS",
@@ -74,12 +78,25 @@ class CuratedSense:
 
 
 @dataclass(frozen=True)
-class Guide:
-    """The curated senses per verb lemma, and the retired sense ids (which attract nothing)."""
+class Guide(Mapping[str, tuple[CuratedSense, ...]]):
+    """The curated senses per verb lemma (a mapping lemma -> senses, as ``SenseInducer``
+    takes it), the retired sense ids (which attract nothing) and every id in use or ever used
+    (a new sense never takes one)."""
 
     senses: Mapping[str, tuple[CuratedSense, ...]]
     retired: frozenset[str] = frozenset()
     statuses: tuple[str, ...] = ("approved", "reviewed")
+    taken: frozenset[str] = frozenset()
+    source: str = ""
+
+    def __getitem__(self, lemma: str) -> tuple[CuratedSense, ...]:
+        return tuple(self.senses[lemma])
+
+    def __iter__(self) -> Iterator[str]:
+        return iter(sorted(self.senses))
+
+    def __len__(self) -> int:
+        return len(self.senses)
 
     def for_lemma(self, lemma: str) -> tuple[CuratedSense, ...]:
         return tuple(self.senses.get(lemma, ()))
@@ -89,7 +106,7 @@ class Guide:
         return sorted(self.senses)
 
 
-def guide_from_lexicon(lexicon: Lexicon, *, drafts: bool = False) -> Guide:
+def guide_from_lexicon(lexicon: Lexicon, *, drafts: bool = False, source: str = "") -> Guide:
     """The guide of a loaded lexicon: approved and reviewed senses (and drafts when asked)."""
     wanted = {Status.APPROVED, Status.REVIEWED} | ({Status.DRAFT} if drafts else set())
     senses: dict[str, list[CuratedSense]] = defaultdict(list)
@@ -109,6 +126,8 @@ def guide_from_lexicon(lexicon: Lexicon, *, drafts: bool = False) -> Guide:
         senses={lemma: tuple(found) for lemma, found in sorted(senses.items())},
         retired=frozenset(retired),
         statuses=statuses,
+        taken=frozenset(lexicon.all_ids()),
+        source=source,
     )
 
 
@@ -116,7 +135,7 @@ def load_guide(sources: str | Path, *, drafts: bool = False) -> Guide:
     """Read a sources folder (as ``lexbuild check`` does) and return its guide."""
     from lexbuild.lexicon.sources import load_lexicon
 
-    return guide_from_lexicon(load_lexicon(sources).lexicon, drafts=drafts)
+    return guide_from_lexicon(load_lexicon(sources).lexicon, drafts=drafts, source=str(sources))
 
 
 # ------------------------------------------------------------------------------- anchors
@@ -335,6 +354,7 @@ def guided_labels(
     min_cluster_size: int = 3,
     min_cluster_share: float = 0.05,
     random_state: int = 0,
+    make_clusterer: Callable[[float], Any] | None = None,
 ) -> GuidedLabels:
     """Guided labels of a verb's occurrences ``X``.
 
@@ -344,7 +364,7 @@ def guided_labels(
     rest are clustered at ``threshold`` into new senses (fewer rows than ``min_cluster_size``
     left over: they go to their nearest curated sense, a new sense needs evidence).
     """
-    from lexbuild.senses.clustering import SenseClusterer
+    from lexbuild.senses.agglomerative import AgglomerativeClusterer as SenseClusterer
 
     Xn = _normalise(X)
     anchor_labels = [sense for _, sense in anchors]
@@ -358,17 +378,26 @@ def guided_labels(
     rest = np.flatnonzero(labels < 0)
     n_new = 0
     if rest.size >= max(min_cluster_size, 2) or (n_curated == 0 and rest.size):
-        clusterer = SenseClusterer(
-            threshold=threshold,
-            linkage=linkage,
-            min_cluster_size=min_cluster_size,
-            min_cluster_share=min_cluster_share,
-            random_state=random_state,
+        clusterer = (
+            make_clusterer(threshold)
+            if make_clusterer is not None
+            else SenseClusterer(
+                threshold=threshold,
+                linkage=linkage,
+                min_cluster_size=min_cluster_size,
+                min_cluster_share=min_cluster_share,
+                random_state=random_state,
+            )
         )
         if rest.size >= 2:
             clusterer.fit(Xn[rest])
-            labels[rest] = n_curated + clusterer.labels_
-            n_new = int(clusterer.n_clusters_)
+            found = np.asarray(clusterer.labels_, dtype=np.intp)
+            if found.min() < 0:  # a method with noise (HDBSCAN): noise joins its nearest
+                from lexbuild.senses.clustering import attach_noise
+
+                found = attach_noise(Xn[rest], found)
+            labels[rest] = n_curated + found
+            n_new = int(found.max()) + 1
         else:
             labels[rest] = n_curated
             n_new = 1
@@ -387,3 +416,92 @@ def anchor_rows(
 ) -> list[tuple[int | None, int]]:
     """(row, sense number) of each anchor, for ``guided_labels``."""
     return [(a.index, sense_numbers[a.sense]) for a in anchors]
+
+
+# ------------------------------------------------------------------- induction of one verb
+
+
+@dataclass(frozen=True)
+class VerbGuide:
+    """What one verb's induction task needs of the guide (picklable, no model inside)."""
+
+    senses: tuple[str, ...]  # curated sense ids, in the sources' order
+    anchors: tuple[tuple[int | None, int], ...]  # (row of the verb's occurrences, sense number)
+    anchor_vectors: Matrix
+    taken: frozenset[str] = frozenset()  # ids a new sense never takes
+    method: str = DEFAULT_ASSIGNER
+    max_distance: float = DEFAULT_MAX_DISTANCE
+    parsed: int = 0  # anchors parsed from the example's own text
+    not_found: tuple[str, ...] = ()  # examples found neither in the corpus nor by the parser
+
+
+def prepare_verb_guide(
+    curated: Sequence[CuratedSense],
+    occurrences: Sequence[Occurrence],
+    vectors: npt.ArrayLike,
+    representation: Representation,
+    *,
+    taken: Iterable[str] = (),
+    method: str = DEFAULT_ASSIGNER,
+    max_distance: float = DEFAULT_MAX_DISTANCE,
+    parse_missing: bool = True,
+    language: str = "fr",
+    cache: VectorCache | None = None,
+    stats: CacheStats | None = None,
+) -> VerbGuide:
+    """Anchors of one verb: examples found among ``occurrences`` (rows of ``vectors``), the
+    others parsed from their own text and encoded with ``representation``."""
+    from lexbuild.senses.vectors import encode_cached
+
+    number = {sense.id: i for i, sense in enumerate(curated)}
+    found, missing = locate_anchors(curated, occurrences)
+    parsed = parse_examples(missing, curated[0].lemma, language=language) if (
+        parse_missing and missing and curated
+    ) else []
+    M = np.asarray(vectors, dtype=np.float32)
+    rows = [M[a.index] for a in found if a.index is not None]
+    if parsed:
+        extra = encode_cached(representation, [a.occurrence for a in parsed], cache, stats=stats)
+        rows.extend(extra)
+    anchor_vectors = (
+        np.stack(rows).astype(np.float32) if rows else np.zeros((0, M.shape[1]), np.float32)
+    )
+    parsed_ids = {(a.sense, a.occurrence.text) for a in parsed}
+    not_found = tuple(
+        example.id or f"{sense}:{example.text[:30]}"
+        for sense, example in missing
+        if (sense, example.text) not in parsed_ids
+    )
+    return VerbGuide(
+        senses=tuple(number),
+        anchors=tuple((a.index, number[a.sense]) for a in (*found, *parsed)),
+        anchor_vectors=anchor_vectors,
+        taken=frozenset(taken),
+        method=method,
+        max_distance=max_distance,
+        parsed=len(parsed),
+        not_found=not_found,
+    )
+
+
+def cluster_guided(
+    guide: VerbGuide,
+    Xn: npt.NDArray[np.float32],
+    threshold: float,
+    make_clusterer: Callable[[float], Any],
+    *,
+    min_cluster_size: int = 3,
+) -> tuple[IntArray, dict[int, str]]:
+    """Labels of a verb's occurrences and the curated sense id of each curated label."""
+    result = guided_labels(
+        Xn,
+        list(guide.anchors),
+        guide.anchor_vectors,
+        len(guide.senses),
+        threshold=threshold,
+        method=guide.method,
+        max_distance=guide.max_distance,
+        min_cluster_size=min_cluster_size,
+        make_clusterer=make_clusterer,
+    )
+    return result.labels, dict(enumerate(guide.senses))

@@ -70,7 +70,7 @@ def sweep_thresholds(
     min_cluster_share: float = 0.05,
 ) -> npt.NDArray[np.float64]:
     """ARI per verb (rows) and threshold (columns)."""
-    from lexbuild.senses.clustering import SenseClusterer
+    from lexbuild.senses.agglomerative import AgglomerativeClusterer as SenseClusterer
 
     out = np.zeros((len(verbs), len(thresholds)))
     for i, verb in enumerate(verbs):
@@ -139,7 +139,7 @@ def per_verb_cut(
     split badly keeps one sense."""
     from sklearn.metrics import silhouette_score
 
-    from lexbuild.senses.clustering import SenseClusterer
+    from lexbuild.senses.agglomerative import AgglomerativeClusterer as SenseClusterer
 
     M = np.asarray(X, dtype=np.float32)
     clusterer = SenseClusterer(min_cluster_size=min_cluster_size,
