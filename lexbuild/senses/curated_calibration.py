@@ -20,10 +20,10 @@ from __future__ import annotations
 
 import json
 from collections import defaultdict
-from collections.abc import Iterable, Sequence
+from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -43,6 +43,9 @@ from lexbuild.senses.tuning import (
     sweep_thresholds,
 )
 from lexbuild.senses.vectors import CacheStats, Representation, VectorCache, encode_cached
+
+if TYPE_CHECKING:
+    from lexbuild.senses.settings import InductionSettings
 
 __all__ = [
     "CURATED",
@@ -132,9 +135,11 @@ class GuidedCalibration:
     thresholds: list[dict[str, float]] = field(default_factory=list)
     distances: list[dict[str, float]] = field(default_factory=list)
     pseudo: dict[str, Any] | None = None
+    compat: dict[str, Any] = field(default_factory=dict)  # clusterer and its parameters
 
     def to_json(self) -> dict[str, Any]:
         data: dict[str, Any] = {
+            **self.compat,
             "representation": self.representation,
             "model": self.model,
             "representation_settings": self.representation_settings,
@@ -160,6 +165,7 @@ def calibrate_guided(
     occurrences: Sequence[Occurrence],
     representation: Representation,
     guide: Guide,
+    settings: InductionSettings | None = None,
     *,
     thresholds: Sequence[float] | None = None,
     min_senses: int = 6,
@@ -168,15 +174,24 @@ def calibrate_guided(
     language: str = "fr",
     cache: VectorCache | None = None,
     stats: CacheStats | None = None,
-    random_state: int = 0,
-    pseudo_options: dict[str, Any] | None = None,
+    progress: Callable[[int], None] | None = None,
 ) -> GuidedCalibration:
-    """Calibrate on the curated senses of ``guide``; fall back to pseudo-verbs (module doc)."""
-    from lexbuild.senses.agglomerative import AVERAGE_THRESHOLDS as DEFAULT_THRESHOLDS
-    from lexbuild.senses.calibrate import calibrate
+    """Calibrate on the curated senses of ``guide``; fall back to pseudo-verbs (module doc).
 
-    grid = sorted({round(float(t), 6) for t in (thresholds or DEFAULT_THRESHOLDS)})
-    gold = curated_gold(guide, occurrences, parse_missing=parse_missing, language=language)
+    The clusterer, its parameters and ``random_state`` come from ``settings`` (as for
+    ``calibrate``); only agglomerative clustering is tuned on curated senses, another
+    clusterer is calibrated on pseudo-verbs.
+    """
+    from lexbuild.senses.calibrate import calibrate
+    from lexbuild.senses.clustering import get_clusterer
+    from lexbuild.senses.settings import InductionSettings
+
+    settings = settings or InductionSettings()
+    spec = get_clusterer(settings.clusterer)
+    grid = sorted({round(float(t), 6) for t in (thresholds or spec.grid(settings))})
+    compat = {"clusterer": spec.name, "settings": spec.params(settings)}
+    gold = curated_gold(guide, occurrences, parse_missing=parse_missing, language=language,
+                        random_state=settings.random_state)
     multi = [g for g in gold if len({g.senses[r] for r in g.labelled}) >= 2]
     n_senses = sum(len({g.senses[r] for r in g.labelled}) for g in multi)
     counts = {
@@ -188,7 +203,7 @@ def calibrate_guided(
     threshold_rows: list[dict[str, float]] = []
     distance_rows: list[dict[str, float]] = []
     max_distance, distance_evidence = DEFAULT_MAX_DISTANCE, "default"
-    if n_senses >= min_senses:
+    if n_senses >= min_senses and spec.name == "agglomerative":
         blocks_of = getattr(representation, "blocks", None)
         start = dict(getattr(representation, "weights", {}) or {})
         verbs = []
@@ -208,7 +223,7 @@ def calibrate_guided(
         else:
             matrices = [encode_cached(representation, g.occurrences, cache, stats=stats)
                         for g in multi]
-            table = _sweep_plain(matrices, [g.senses for g in multi], grid)
+            table = _sweep_plain(matrices, [g.senses for g in multi], grid, spec, settings)
             vectors = [_labelled(X, g) for X, g in zip(matrices, multi, strict=True)]
         means = table.mean(axis=0)
         best = int(np.argmax(np.round(means, 12)))
@@ -218,10 +233,14 @@ def calibrate_guided(
         max_distance, scores = choose_max_distance(vectors, DISTANCES)
         distance_evidence = CURATED
         distance_rows = [{"max_distance": d, "score": s} for d, s in scores.items()]
+        settings_used = representation.settings
+        if weights is not None and "weights" in settings_used:
+            # The settings induce must run with for this calibration to apply.
+            settings_used = {**settings_used, "weights": dict(sorted(weights.items()))}
         return GuidedCalibration(
             representation=representation.id,
             model=representation.model,
-            representation_settings=representation.settings,
+            representation_settings=settings_used,
             evidence=CURATED,
             threshold=threshold,
             threshold_ari=threshold_ari,
@@ -231,10 +250,11 @@ def calibrate_guided(
             curated=counts,
             thresholds=threshold_rows,
             distances=distance_rows,
+            compat=compat,
         )
     pseudo = calibrate(
-        occurrences, representation, thresholds=grid, cache=cache, stats=stats,
-        random_state=random_state, **(pseudo_options or {}),
+        occurrences, representation, settings, thresholds=grid, cache=cache, stats=stats,
+        progress=progress,
     )
     return GuidedCalibration(
         representation=representation.id,
@@ -248,6 +268,7 @@ def calibrate_guided(
         curated=counts,
         thresholds=[{"threshold": r.threshold, "ari": r.ari} for r in pseudo.thresholds],
         pseudo=pseudo.to_json(),
+        compat=compat,
     )
 
 
@@ -263,15 +284,18 @@ def _combine(verb: GoldVerbBlocks, weights: dict[str, float]) -> Any:
 
 
 def _sweep_plain(
-    matrices: Sequence[Any], golds: Sequence[Sequence[str | None]], grid: Sequence[float]
+    matrices: Sequence[Any],
+    golds: Sequence[Sequence[str | None]],
+    grid: Sequence[float],
+    spec: Any,
+    settings: InductionSettings,
 ) -> Any:
-    from lexbuild.senses.agglomerative import AgglomerativeClusterer as SenseClusterer
     from lexbuild.senses.evaluation import adjusted_rand
 
     table = np.zeros((len(matrices), len(grid)))
     for i, (X, gold) in enumerate(zip(matrices, golds, strict=True)):
         rows = [r for r, sense in enumerate(gold) if sense is not None]
-        for j, labels in enumerate(SenseClusterer().sweep(X, grid)):
+        for j, labels in enumerate(spec.make(settings, grid[0]).sweep(X, grid)):
             table[i, j] = adjusted_rand([gold[r] for r in rows], labels[rows].tolist())
     return table
 
