@@ -85,3 +85,8 @@ class ReleaseError(LexbuildError, RuntimeError):
 
 class UnsafeXMLError(LexbuildError, ValueError):
     """An XML file uses entities, DTD tricks or sizes that lexbuild refuses to read."""
+
+
+class InductionFolderError(InductionError, MergeError, SourceError):
+    """An induction folder cannot be read (file, line and field named); caught as an
+    induction, merge or source error alike."""

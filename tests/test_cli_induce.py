@@ -362,3 +362,34 @@ def test_usage_errors_exit_2(
     args = [a.format(corpus=corpus, tmp=tmp_path) for a in argv]
     assert main(args) == 2
     assert "error:" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("clusterer", ["hdbscan", "affinity-propagation"])
+def test_evaluate_a_corpus_with_another_clusterer(
+    tmp_path: Path, induced: Path, corpus: Path, clusterer: str,
+    capsys: pytest.CaptureFixture[str],
+) -> None:
+    # The same scores as inducing with that clusterer, then evaluating the folder.
+    gold = _gold_by_object(corpus)
+    gold_file = tmp_path / "gold.tsv"
+    gold_file.write_text(
+        "sent_id\ttoken\tsense\n"
+        + "".join(f"{s}\t{t}\t{g}\n" for (s, t), g in sorted(gold.items())),
+        encoding="utf-8",
+    )
+    value = "0.1" if clusterer == "hdbscan" else "-2"
+    common = ["--clusterer", clusterer, "--threshold", value, "--no-cache"]
+    capsys.readouterr()
+    assert main(["evaluate", str(corpus), str(gold_file), "--format", "json", *common]) == 0
+    direct = json.loads(capsys.readouterr().out)
+    folder = tmp_path / "induced"
+    lemma_args = [arg for lemma in LEMMAS for arg in ("--lemma", lemma)]
+    assert main(["induce", str(corpus), "-o", str(folder), *lemma_args, *common]) == 0
+    manifest = json.loads((folder / "induction.json").read_text(encoding="utf-8"))
+    assert manifest["clusterer"] == clusterer
+    capsys.readouterr()
+    assert main(["evaluate", str(folder), str(gold_file), "--format", "json"]) == 0
+    assert json.loads(capsys.readouterr().out) == direct
+    # A folder induced with one clusterer is not scored as another's.
+    assert main(["evaluate", str(induced), str(gold_file), "--clusterer", clusterer]) == 2
+    assert "induced with agglomerative" in capsys.readouterr().err

@@ -36,19 +36,74 @@ def _read_gold(path: str) -> dict[tuple[str, int], str]:
     return read_gold_conllu(files)
 
 
+def _is_induction_folder(path: Path) -> bool:
+    return path.name == "assignments.tsv" or (path / "assignments.tsv").is_file()
+
+
+def _induce_for_gold(args: argparse.Namespace, gold: dict[tuple[str, int], str]) -> Any:
+    """Assignments of the gold verbs of a corpus, induced now with the options given."""
+    from lexbuild.corpus.conllu import resolve_paths
+    from lexbuild.corpus.occurrences import iter_occurrences
+    from lexbuild.errors import InductionError
+    from lexbuild.senses.inducer import SenseInducer
+    from lexbuild.senses.settings import CALIBRATE
+
+    files = resolve_paths([args.induced])
+    if not files:
+        raise InductionError(
+            f"{args.induced} is neither an induction folder (assignments.tsv) nor a CoNLL-U "
+            "corpus"
+        )
+    occurrences = list(iter_occurrences(files, language=args.language))
+    lemmas = sorted({o.lemma for o in occurrences if (o.sentence_id, o.token + 1) in gold})
+    if not lemmas:
+        raise InductionError(f"no verb occurrence of {args.induced} has a gold sense")
+    settings = settings_from_args(
+        args, threshold=CALIBRATE if args.threshold is None else args.threshold
+    )
+    inducer = SenseInducer(
+        representation_from_args(args), settings=settings, cache=open_cache(args)
+    ).fit(occurrences, lemmas=lemmas, corpus=[str(f) for f in files])
+    print(
+        f"lexbuild evaluate: induced {len(lemmas)} verbs with {settings.clusterer}, "
+        f"threshold {inducer.threshold_.value:g} ({inducer.threshold_.source})",
+        file=sys.stderr,
+    )
+    return {
+        (a.sent_id, a.token): (a.lemma, a.sense) for a in inducer.result_.assignments
+    }
+
+
 def run_evaluate(args: argparse.Namespace) -> int:
+    import json
+
     from lexbuild._atomic import atomic_write_text
     from lexbuild.errors import InductionError
     from lexbuild.senses.evaluation import evaluate, report_json, report_markdown
     from lexbuild.senses.induction_folder import read_assignments
 
-    assignments = read_assignments(args.induced)
     gold = _read_gold(args.gold)
     if not gold:
         raise InductionError(
             f"{args.gold}: no gold sense found (Sense=... in the MISC column of verb tokens, "
             "or TSV rows sent_id, token, sense)"
         )
+    induced = Path(args.induced)
+    if _is_induction_folder(induced):
+        folder = induced.parent if induced.name == "assignments.tsv" else induced
+        manifest = folder / "induction.json"
+        if args.clusterer is not None and manifest.is_file():
+            made_with = json.loads(manifest.read_text(encoding="utf-8")).get(
+                "clusterer", "agglomerative"
+            )
+            if made_with != args.clusterer:
+                raise InductionError(
+                    f"{folder} was induced with {made_with}, not {args.clusterer}; give a "
+                    "corpus instead of the folder to induce with another clusterer"
+                )
+        assignments = read_assignments(induced)
+    else:
+        assignments = _induce_for_gold(args, gold)
     report = evaluate(assignments, gold)
     if not report.n_evaluated:
         raise InductionError(
@@ -176,13 +231,26 @@ def register(subparsers: Any) -> None:
         help="score induced senses against gold sense labels",
         description="B-cubed, paired F-score, adjusted Rand index and V-measure per verb and "
         "averaged. GOLD: CoNLL-U with Sense=... in the MISC column of verb tokens, or a TSV "
-        "of sent_id, token id, sense.",
+        "of sent_id, token id, sense. INDUCED: an induction folder, or a CoNLL-U corpus whose "
+        "gold verbs are induced now with --clusterer, --threshold and the representation "
+        "options (to compare methods against gold).",
     )
-    evaluate.add_argument("induced", help="induction folder (reads its assignments.tsv)")
+    evaluate.add_argument(
+        "induced",
+        help="induction folder (reads its assignments.tsv), or CoNLL-U files to induce now",
+    )
     evaluate.add_argument("gold", help="gold CoNLL-U file or folder, or a .tsv file")
     evaluate.add_argument("--format", choices=("markdown", "json"), default="markdown")
     evaluate.add_argument("--output", "-o", help="write the report here instead of stdout")
-    evaluate.set_defaults(handler=run_evaluate)
+    evaluate.add_argument(
+        "--threshold", type=float,
+        help="corpus given: the clusterer's parameter (default: calibrate on the corpus)",
+    )
+    add_clusterer_options(evaluate)
+    add_representation_options(evaluate)
+    # No default: an induction folder records its clusterer, and a --clusterer given must
+    # agree with it; for a corpus, None means the settings' default.
+    evaluate.set_defaults(handler=run_evaluate, clusterer=None)
 
     calibrate = subparsers.add_parser(
         "calibrate",

@@ -137,7 +137,7 @@ def add_clusterer_options(parser: argparse.ArgumentParser) -> None:
 def settings_from_args(args: argparse.Namespace, **changes: Any) -> InductionSettings:
     """The settings of this run: the defaults, with what the command line changed."""
     return DEFAULTS.updated(
-        clusterer=args.clusterer,
+        clusterer=args.clusterer or DEFAULTS.clusterer,
         linkage=args.linkage,
         min_cluster_size=args.min_cluster_size,
         random_state=args.random_state,

@@ -42,6 +42,7 @@ from typing import Any
 from lxml import etree
 
 from lexbuild.errors import ExportError, LexbuildError, SourceError
+from lexbuild.formats.registry import OutputFormat, validate_xml
 from lexbuild.formats.xmlsafe import (
     XmlWriter,
     describe_forbidden,
@@ -67,7 +68,7 @@ from lexbuild.lexicon.model import (
     Status,
 )
 
-__all__ = ["SUPPORTED_VERSIONS", "TEI_NS", "TEIError", "is_tei", "read_tei", "to_tei"]
+__all__ = ["FORMAT", "SUPPORTED_VERSIONS", "TEI_NS", "TEIError", "is_tei", "read_tei", "to_tei"]
 
 SUPPORTED_VERSIONS = ("0.9.4",)
 TEI_NS = "http://www.tei-c.org/ns/1.0"
@@ -648,3 +649,19 @@ def read_tei(source: str | Path | bytes) -> Lexicon:
         raise SourceError(
             f"{name}: not a TEI Lex-0 export lexbuild can read back: {error}"
         ) from None
+
+
+def _write(lexicon: Lexicon, changes: Sequence[str]) -> bytes:
+    return to_tei(lexicon, changes=changes)
+
+
+# The registration (lexbuild.formats.registry). application/tei+xml: RFC 6129.
+FORMAT = OutputFormat(
+    name="tei",
+    title="TEI",
+    suffix=".tei.xml",
+    media_type="application/tei+xml",
+    description=f"TEI Lex-0 {SUPPORTED_VERSIONS[-1]}",
+    write=_write,
+    validate=validate_xml,
+)

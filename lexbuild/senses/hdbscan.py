@@ -2,11 +2,13 @@
 
 Density-based: clusters are the dense regions that persist across density levels, so the number
 of senses is not fixed by a cut. It runs on the cosine distances of the occurrence vectors
-(``metric="precomputed"``). The calibrated parameter is ``cluster_selection_epsilon``: clusters
-closer than this cosine distance are not split further (0 keeps HDBSCAN's own selection).
-The smallest cluster HDBSCAN may report is the smallest sense induction keeps
-(``max(min_cluster_size, min_cluster_share * n)``, at least 2). Points HDBSCAN leaves as noise
-are given to the cluster of nearest centroid: a sense covers every occurrence of its verb.
+(``metric="precomputed"``). The calibrated parameter is the smallest cluster HDBSCAN may report,
+as a fraction of the verb's occurrences (its ``min_cluster_size`` is
+``max(2, min_cluster_size, ceil(fraction * n))``): HDBSCAN's main parameter, and one that scales
+with the verb's frequency. ``cluster_selection_epsilon`` is left at 0: with NumPy 2 any other
+value raises a TypeError inside scikit-learn 1.9 (scikit-learn issue #33219). Points HDBSCAN
+leaves as noise are given to the cluster of nearest centroid: a sense covers every occurrence of
+its verb.
 """
 
 from __future__ import annotations
@@ -30,14 +32,14 @@ from lexbuild.senses.clustering import (
 )
 from lexbuild.senses.settings import InductionSettings
 
-__all__ = ["EPSILONS", "SPEC", "HdbscanClusterer"]
+__all__ = ["FRACTIONS", "SPEC", "HdbscanClusterer"]
 
 IntArray = npt.NDArray[np.intp]
 
-#: Values of ``cluster_selection_epsilon`` (cosine distances) swept by calibration.
-EPSILONS: tuple[float, ...] = (0.0, 0.05, 0.1, 0.15, 0.2, 0.25, 0.3, 0.35, 0.4, 0.5, 0.6)
+#: Smallest-cluster fractions swept by calibration.
+FRACTIONS: tuple[float, ...] = (0.02, 0.03, 0.05, 0.075, 0.1, 0.15, 0.2, 0.25, 0.3, 0.4)
 #: Used when no value is given and calibration is impossible (measured: see README).
-DEFAULT_EPSILON = 0.0
+DEFAULT_FRACTION = 0.03
 
 
 class HdbscanClusterer:
@@ -49,37 +51,36 @@ class HdbscanClusterer:
 
     def __init__(
         self,
-        cluster_selection_epsilon: float = DEFAULT_EPSILON,
+        min_cluster_fraction: float = DEFAULT_FRACTION,
         min_cluster_size: int = 3,
         min_cluster_share: float = 0.05,
         min_samples: int | None = None,
     ) -> None:
-        self.cluster_selection_epsilon = cluster_selection_epsilon
+        self.min_cluster_fraction = min_cluster_fraction
         self.min_cluster_size = min_cluster_size
         self.min_cluster_share = min_cluster_share
         self.min_samples = min_samples
 
     def get_params(self, deep: bool = True) -> dict[str, Any]:
         return {
-            "cluster_selection_epsilon": self.cluster_selection_epsilon,
+            "min_cluster_fraction": self.min_cluster_fraction,
             "min_cluster_size": self.min_cluster_size,
             "min_cluster_share": self.min_cluster_share,
             "min_samples": self.min_samples,
         }
 
-    def _labels(self, Xn: npt.NDArray[np.float32], distances: Any, epsilon: float) -> IntArray:
+    def _labels(self, Xn: npt.NDArray[np.float32], distances: Any, fraction: float) -> IntArray:
         from sklearn.cluster import HDBSCAN
 
-        if not math.isfinite(epsilon) or epsilon < 0:
-            raise InductionError(f"cluster_selection_epsilon must be >= 0, got {epsilon}")
+        if not math.isfinite(fraction) or not 0.0 <= fraction <= 1.0:
+            raise InductionError(f"min_cluster_fraction must lie in [0, 1], got {fraction}")
         n = Xn.shape[0]
-        smallest = max(2, self.min_cluster_size, math.ceil(self.min_cluster_share * n))
+        smallest = max(2, self.min_cluster_size, math.ceil(fraction * n))
         if n <= smallest:
             return np.zeros(n, dtype=np.intp)
         raw = HDBSCAN(
             min_cluster_size=smallest,
             min_samples=self.min_samples,
-            cluster_selection_epsilon=float(epsilon),
             metric="precomputed",
             allow_single_cluster=True,  # one sense is a valid answer for a verb
             copy=True,
@@ -95,20 +96,20 @@ class HdbscanClusterer:
     def fit(self, X: Any, y: Any = None) -> HdbscanClusterer:
         check_common(self.get_params())
         Xn = normalise_rows(X)
-        fitted(self, Xn, self._labels(Xn, self._distances(Xn), self.cluster_selection_epsilon))
+        fitted(self, Xn, self._labels(Xn, self._distances(Xn), self.min_cluster_fraction))
         return self
 
     def sweep(self, X: Any, values: Sequence[float]) -> list[IntArray]:
-        """Labels for each epsilon; the distance matrix is computed once."""
+        """Labels for each fraction; the distance matrix is computed once."""
         check_common(self.get_params())
         Xn = normalise_rows(X)
         distances = self._distances(Xn)
         return [self._labels(Xn, distances, float(v)) for v in values]
 
 
-def _make(settings: InductionSettings, epsilon: float) -> HdbscanClusterer:
+def _make(settings: InductionSettings, fraction: float) -> HdbscanClusterer:
     return HdbscanClusterer(
-        cluster_selection_epsilon=epsilon,
+        min_cluster_fraction=fraction,
         min_cluster_size=settings.min_cluster_size,
         min_cluster_share=settings.min_cluster_share,
     )
@@ -116,10 +117,10 @@ def _make(settings: InductionSettings, epsilon: float) -> HdbscanClusterer:
 
 SPEC = ClustererSpec(
     name="hdbscan",
-    parameter="cluster_selection_epsilon",
+    parameter="min_cluster_fraction",
     description="HDBSCAN (scikit-learn) on cosine distances",
-    default=lambda settings: DEFAULT_EPSILON,
-    grid=lambda settings: EPSILONS,
+    default=lambda settings: DEFAULT_FRACTION,
+    grid=lambda settings: FRACTIONS,
     make=_make,
     params=lambda settings: {
         "min_cluster_size": settings.min_cluster_size,
