@@ -225,18 +225,33 @@ def evaluate(
     )
 
 
+UNDECIDED = "?"  # an annotator's undecidable token: kept in the gold file, left out of scores
+NAMED_COLUMNS = ("sent_id", "token_id", "sense")
+
+
 def read_gold_tsv(path: str | Path) -> dict[Key, str]:
-    """Read ``sent_id<TAB>token id<TAB>sense`` rows; a header row is optional."""
+    """Read ``sent_id<TAB>token id<TAB>sense`` rows; a header row is optional.
+
+    A header naming ``sent_id``, ``token_id`` and ``sense`` picks those columns wherever they
+    stand, other columns aside (the development set's ``file sent_id token_id lemma form sense``).
+    Rows whose sense is ``?`` (undecided) are left out.
+    """
     out: dict[Key, str] = {}
+    columns: tuple[int, ...] = (0, 1, 2)
     with open(path, encoding="utf-8", newline="") as fh:
         for lineno, row in enumerate(csv.reader(fh, delimiter="\t"), start=1):
             if not row or not "".join(row).strip() or row[0].startswith("#"):
                 continue
-            if len(row) < 3:
+            names = [c.strip() for c in row]
+            if lineno == 1 and set(NAMED_COLUMNS) <= set(names):
+                columns = tuple(names.index(n) for n in NAMED_COLUMNS)
+                continue
+            if len(row) <= max(columns):
                 raise CorpusError(
-                    "expected 3 tab-separated columns", SourceLocation.of(path, lineno)
+                    f"expected {max(columns) + 1} tab-separated columns",
+                    SourceLocation.of(path, lineno),
                 )
-            sent_id, token, sense = (c.strip() for c in row[:3])
+            sent_id, token, sense = (row[i].strip() for i in columns)
             try:
                 tok = int(token)
             except ValueError:
@@ -245,6 +260,8 @@ def read_gold_tsv(path: str | Path) -> dict[Key, str]:
                 raise CorpusError(
                     f"token id {token!r} is not an integer", SourceLocation.of(path, lineno)
                 ) from None
+            if sense == UNDECIDED:
+                continue
             out[(sent_id, tok)] = sense
     return out
 

@@ -28,32 +28,34 @@ SAMPLE_SIZE = 50
 RANDOM_STATE = 10
 
 
-def verb_tokens(lemma: str) -> list[tuple[str, str, int, str, str]]:
-    """Every VERB token of ``lemma`` that is not attached as an auxiliary, in treebank order."""
-    found = []
+Listed = tuple[str, str, int, str, str]  # file, sent_id, token id, form, marked sentence
+
+
+def verb_tokens(lemmas: set[str], ud_dir: Path = UD) -> dict[str, list[Listed]]:
+    """Every VERB token of ``lemmas`` not attached as an auxiliary, in treebank order."""
+    found: dict[str, list[Listed]] = {lemma: [] for lemma in lemmas}
     for name in FILES:
-        with open(UD / name, encoding="utf-8") as fh:
+        with open(ud_dir / name, encoding="utf-8") as fh:
             for sentence in conllu.parse_incr(fh):
                 for tok in sentence:
-                    if not isinstance(tok["id"], int):
+                    if not isinstance(tok["id"], int) or tok["lemma"] not in found:
                         continue
-                    if tok["lemma"] != lemma or tok["upos"] != "VERB":
-                        continue
-                    if tok["deprel"].startswith("aux"):
+                    if tok["upos"] != "VERB" or tok["deprel"].startswith("aux"):
                         continue
                     words = [
                         f"[[{t['form']}]]" if t["id"] == tok["id"] else t["form"]
                         for t in sentence
                         if isinstance(t["id"], int)
                     ]
-                    found.append(
-                        (name, sentence.metadata["sent_id"], tok["id"], tok["form"], " ".join(words))
+                    sent_id = sentence.metadata["sent_id"]
+                    found[tok["lemma"]].append(
+                        (name, sent_id, tok["id"], tok["form"], " ".join(words))
                     )
     return found
 
 
-def select(lemma: str) -> list[tuple[str, str, int, str, str]]:
-    tokens = verb_tokens(lemma)
+def sample(tokens: list[Listed]) -> list[Listed]:
+    """All tokens of a rare verb, a fixed random sample of a frequent one, in treebank order."""
     if len(tokens) <= ALL_UP_TO:
         return tokens
     keep = set(random.Random(RANDOM_STATE).sample(range(len(tokens)), SAMPLE_SIZE))
@@ -61,6 +63,7 @@ def select(lemma: str) -> list[tuple[str, str, int, str, str]]:
 
 
 if __name__ == "__main__":
+    listed = verb_tokens(set(sys.argv[1:]))
     for verb in sys.argv[1:]:
-        for i, (name, sent_id, tok_id, form, text) in enumerate(select(verb)):
+        for i, (name, sent_id, tok_id, form, text) in enumerate(sample(listed[verb])):
             print(f"{verb}\t{i}\t{name}\t{sent_id}\t{tok_id}\t{form}\t{text}")
