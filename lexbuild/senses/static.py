@@ -62,8 +62,9 @@ GROUP_NAMES = ("subj", "obj", "obl", "comp")
 #: tried (random pairs: mean ARI 0.352 against 0.331 with a lighter subject and frame, 0.289
 #: without window and frame, 0.086 window only). Pronominal use weighs double: on real polysemy
 #: (the development set's first 14 verbs, tests/devset/fr_senses, and the demo gold) it raised
-#: the mean ARI of the best cut from 0.273 to 0.314 and from 0.369 to 0.520 (benchmarks/bench_guided.py
-#: --tune); the construction cues helped the demo (0.455) but not the development set (0.258),
+#: the mean ARI of the best cut from 0.273 to 0.314 and from 0.369 to 0.520 (weights swept with
+#: lexbuild.senses.tuning); the construction cues helped the demo (0.455) but not the
+#: development set (0.258),
 #: so they stay off unless calibration turns them on.
 _DEFAULT_WEIGHTS: dict[str, float] = {
     "subj": 1.0,
