@@ -291,3 +291,14 @@ def test_calibration_on_curated_senses_and_its_fallback(devset, static, sample_l
         load_lexicon(sample_lexicon_dir).lexicon), settings, parse_missing=False)
     assert fallback.evidence == PSEUDO_VERBS
     assert fallback.to_json()["pseudo_verbs"]
+
+
+def test_rest_beyond_the_cap_is_assigned_to_the_new_senses() -> None:
+    rng = np.random.default_rng(1)
+    centres = np.eye(4, 8, dtype=np.float32)
+    X = np.concatenate([c + 0.05 * rng.standard_normal((30, 8)) for c in centres])
+    X = X.astype(np.float32)
+    result = guided_labels(X, [(0, 0)], X[[0]], 1, threshold=0.5, max_distance=0.5, cap=20)
+    assert result.n_new == 3
+    # scikit-learn's adjusted_rand_score: sampled or not, every group is recovered
+    assert adjusted_rand_score(np.repeat([0, 1, 2, 3], 30), result.labels) == 1.0

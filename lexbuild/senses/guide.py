@@ -355,6 +355,7 @@ def guided_labels(
     min_cluster_share: float = 0.05,
     random_state: int = 0,
     make_clusterer: Callable[[float], Any] | None = None,
+    cap: int | None = None,
 ) -> GuidedLabels:
     """Guided labels of a verb's occurrences ``X``.
 
@@ -390,12 +391,26 @@ def guided_labels(
             )
         )
         if rest.size >= 2:
-            clusterer.fit(Xn[rest])
-            found = np.asarray(clusterer.labels_, dtype=np.intp)
-            if found.min() < 0:  # a method with noise (HDBSCAN): noise joins its nearest
+            # As unguided induction: at most ``cap`` rows clustered, the others assigned to
+            # the nearest new centroid (so guiding never clusters more than not guiding).
+            sample = np.arange(rest.size)
+            if cap is not None and rest.size > cap:
+                rng = np.random.default_rng(random_state)
+                sample = np.sort(rng.choice(rest.size, cap, replace=False))
+            clusterer.fit(Xn[rest[sample]])
+            found_sample = np.asarray(clusterer.labels_, dtype=np.intp)
+            if found_sample.min() < 0:  # a method with noise (HDBSCAN): noise joins its nearest
                 from lexbuild.senses.clustering import attach_noise
 
-                found = attach_noise(Xn[rest], found)
+                found_sample = attach_noise(Xn[rest[sample]], found_sample)
+            found = found_sample
+            if sample.size < rest.size:
+                from lexbuild.senses.clustering import assign_to_centroids, unit_centroids
+
+                k_new = int(found_sample.max()) + 1
+                cents = unit_centroids(Xn[rest[sample]], found_sample, k_new)
+                found = np.asarray(assign_to_centroids(Xn[rest], cents), dtype=np.intp)
+                found[sample] = found_sample
             labels[rest] = n_curated + found
             n_new = int(found.max()) + 1
         else:
@@ -491,6 +506,8 @@ def cluster_guided(
     make_clusterer: Callable[[float], Any],
     *,
     min_cluster_size: int = 3,
+    cap: int | None = None,
+    random_state: int = 0,
 ) -> tuple[IntArray, dict[int, str]]:
     """Labels of a verb's occurrences and the curated sense id of each curated label."""
     result = guided_labels(
@@ -503,5 +520,7 @@ def cluster_guided(
         max_distance=guide.max_distance,
         min_cluster_size=min_cluster_size,
         make_clusterer=make_clusterer,
+        cap=cap,
+        random_state=random_state,
     )
     return result.labels, dict(enumerate(guide.senses))

@@ -110,7 +110,8 @@ def _cluster(
 
         return cluster_guided(
             task.guide, Xn, float(settings.threshold), lambda t: spec.make(settings, t),
-            min_cluster_size=settings.min_cluster_size,
+            min_cluster_size=settings.min_cluster_size, cap=settings.cap,
+            random_state=settings.random_state,
         )
     sample = sample_indices(len(task.occurrences), settings.cap, task.lemma, settings.random_state)
     clusterer = spec.make(settings, float(settings.threshold)).fit(Xn[sample])
