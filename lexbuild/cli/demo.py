@@ -18,9 +18,10 @@ def register(subparsers: Any) -> None:
         "demo",
         help="run the whole job on the shipped demo corpus and sample dictionary",
         description="Parse the demo's raw French text, induce verb senses with the embedded "
-        "default representation, extract frames, merge into a copy of sample_lexicon/, release "
-        "and validate an edition, and print a summary with an evaluation against the demo's "
-        "gold sense labels. Nothing is downloaded.",
+        "default representation guided by the curated senses of sample_lexicon/, extract "
+        "frames, merge into a copy of sample_lexicon/, release and validate an edition, and "
+        "print a summary with guided and unguided scores against the demo's gold sense "
+        "labels. Nothing is downloaded.",
     )
     demo.add_argument("--output", type=Path, default=Path("demo-output"), help="work folder")
     add_schemas_option(demo)
