@@ -468,6 +468,12 @@ def prepare_verb_guide(
     others parsed from their own text and encoded with ``representation``."""
     from lexbuild.senses.vectors import encode_cached
 
+    for sense in curated:
+        if not isinstance(sense, CuratedSense):
+            raise InductionError(
+                f"guide: expected curated senses (lexbuild.senses.guide.CuratedSense, e.g. from "
+                f"load_guide), got {type(sense).__name__} {sense!r}"
+            )
     number = {sense.id: i for i, sense in enumerate(curated)}
     found, missing = locate_anchors(curated, occurrences)
     parsed = parse_examples(missing, curated[0].lemma, language=language) if (
