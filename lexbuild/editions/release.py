@@ -32,17 +32,14 @@ from pathlib import Path
 from typing import Any
 
 from lexbuild._atomic import staging_dir, swap_dir
-from lexbuild.editions.diff import (
-    LexiconDiff,
-    change_lines,
-    count_items,
-    diff_snapshots,
-    summary_lines,
-    tei_snapshot,
-)
-from lexbuild.editions.diff import to_markdown as diff_markdown
+from lexbuild.editions.changes import LexiconDiff
+from lexbuild.editions.diff import diff_snapshots
+from lexbuild.editions.diff_report import change_lines, summary_lines
+from lexbuild.editions.diff_report import to_markdown as diff_markdown
 from lexbuild.errors import ReleaseError
+from lexbuild.formats.tei import tei_snapshot
 from lexbuild.lexicon.model import Lexicon
+from lexbuild.lexicon.snapshot import count_items
 
 __all__ = [
     "CHANGELOG_FILE",

@@ -19,7 +19,6 @@ from scipy.cluster.hierarchy import fcluster
 
 from lexbuild.errors import InductionError
 from lexbuild.senses.clustering import (
-    ClustererSpec,
     check_common,
     fitted,
     group_sums,
@@ -27,6 +26,7 @@ from lexbuild.senses.clustering import (
     normalise_rows,
     relabel,
 )
+from lexbuild.senses.registry import ClustererSpec
 from lexbuild.senses.settings import InductionSettings
 
 __all__ = [
@@ -38,6 +38,8 @@ __all__ = [
 ]
 
 IntArray = npt.NDArray[np.intp]
+#: Constructor defaults come from the one settings object.
+_DEFAULTS = InductionSettings()
 
 #: Cosine distances swept by calibration for average linkage.
 AVERAGE_THRESHOLDS: tuple[float, ...] = tuple(round(0.05 * i, 2) for i in range(2, 20))
@@ -157,11 +159,11 @@ class AgglomerativeClusterer:
         threshold: float = DEFAULT_THRESHOLDS["average"],
         linkage: str = "average",
         metric: str = "cosine",
-        min_cluster_size: int = 3,
-        min_cluster_share: float = 0.05,
-        exact_max: int = 20000,
+        min_cluster_size: int = _DEFAULTS.min_cluster_size,
+        min_cluster_share: float = _DEFAULTS.min_cluster_share,
+        exact_max: int = _DEFAULTS.exact_max,
         n_micro: int = 256,
-        random_state: int | None = 0,
+        random_state: int | None = _DEFAULTS.random_state,
     ) -> None:
         self.threshold = threshold
         self.linkage = linkage

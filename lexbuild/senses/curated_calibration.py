@@ -183,7 +183,7 @@ def calibrate_guided(
     clusterer is calibrated on pseudo-verbs.
     """
     from lexbuild.senses.calibrate import calibrate
-    from lexbuild.senses.clustering import get_clusterer
+    from lexbuild.senses.registry import get_clusterer
     from lexbuild.senses.settings import InductionSettings
 
     settings = settings or InductionSettings()
