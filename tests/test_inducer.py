@@ -135,7 +135,9 @@ def test_too_small_a_corpus_falls_back_to_the_clusterer_default(
 ) -> None:
     few = [o for o in occurrences if o.lemma == "prendre"][:20]
     inducer = SenseInducer(static).fit(few)
-    assert inducer.threshold_.value == 0.7  # agglomerative, average linkage
+    from lexbuild.senses.agglomerative import DEFAULT_THRESHOLDS
+
+    assert inducer.threshold_.value == DEFAULT_THRESHOLDS["average"]
     assert "no calibration possible" in inducer.threshold_.source
     assert inducer.result_.manifest()["threshold_source"] == inducer.threshold_.source
 
@@ -143,8 +145,8 @@ def test_too_small_a_corpus_falls_back_to_the_clusterer_default(
 def test_a_guide_reaches_the_per_verb_task(
     occurrences: list[Occurrence], static: StaticSyntacticVectors
 ) -> None:
-    # Guided induction is not built yet: a guide must not be silently ignored.
-    with pytest.raises(InductionError, match="prendre: guided induction"):
+    # A guide reaches the verb's task: one that is not made of curated senses is an error.
+    with pytest.raises(InductionError, match="expected curated senses"):
         SenseInducer(static, threshold=0.6, guide={"prendre": ["curated"]}).fit(
             occurrences, lemmas=["prendre"]
         )

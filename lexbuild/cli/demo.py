@@ -18,9 +18,10 @@ def register(subparsers: Any) -> None:
         "demo",
         help="run the whole job on the shipped demo corpus and sample dictionary",
         description="Parse the demo's raw French text, induce verb senses with the embedded "
-        "default representation, extract frames, merge into a copy of sample_lexicon/, release "
-        "and validate an edition, and print a summary with an evaluation against the demo's "
-        "gold sense labels. Nothing is downloaded.",
+        "default representation guided by the curated senses of sample_lexicon/, extract "
+        "frames, merge into a copy of sample_lexicon/, release and validate an edition, and "
+        "print a summary with guided and unguided scores against the demo's gold sense "
+        "labels. Nothing is downloaded.",
     )
     demo.add_argument("--output", type=Path, default=Path("demo-output"), help="work folder")
     add_schemas_option(demo)
@@ -55,9 +56,14 @@ def format_summary(summary: DemoSummary) -> str:
         )
         lines.append(f"{lemma:<13} {count:>18}  {scored}")
     macro = summary.evaluation.macro
+    blind = summary.unguided.macro
     lines += [
         "",
-        "mean over verbs: " + ", ".join(f"{name} {value:.3f}" for name, value in macro.items()),
+        "mean over verbs    guided  unguided",
+        *(f"  {name:<16}{value:>6.3f}  {blind.get(name, float('nan')):>8.3f}"
+          for name, value in macro.items()),
+        f"guided by {len(summary.guided.get('curated', {}))} curated senses; "
+        f"{len(summary.guided.get('unsupported', []))} without support in the corpus",
         f"merge: {len(summary.merge.matched)} senses matched, {len(summary.merge.senses_added)} "
         f"added, {len(summary.merge.entries_added)} entries added, "
         f"{len(summary.merge.unsupported)} flagged as unsupported",

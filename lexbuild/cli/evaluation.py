@@ -11,6 +11,7 @@ from typing import Any
 from lexbuild.cli.induce import (
     DEFAULTS,
     add_clusterer_options,
+    add_guide_options,
     add_representation_options,
     open_cache,
     representation_from_args,
@@ -163,6 +164,8 @@ def run_calibrate(args: argparse.Namespace) -> int:
     representation = representation_from_args(args)
     cache = open_cache(args)
     occurrences = list(iter_occurrences(files, language=args.language))
+    if args.guide:
+        return _calibrate_guided(args, occurrences, representation, settings, cache, thresholds)
     options = settings.calibration
     total = (options.pairs + options.matched_pairs + options.triples) * len(names)
     with tqdm(total=total, desc="pseudo-verbs", file=sys.stderr, disable=None) as bar:
@@ -185,6 +188,39 @@ def run_calibrate(args: argparse.Namespace) -> int:
         f"recommended threshold {best.threshold:g} ({best_name}, {calibration.parameter}): "
         f"mean ARI {best.ari:.3f}, {best.clusters_per_verb:.1f} clusters per pseudo-verb, "
         f"{len(calibration.pseudo_verbs)} pseudo-verbs -> {path}"
+    )
+    return 0
+
+
+def _calibrate_guided(
+    args: argparse.Namespace,
+    occurrences: list[Any],
+    representation: Any,
+    settings: Any,
+    cache: Any,
+    thresholds: tuple[float, ...] | None,
+) -> int:
+    from tqdm import tqdm
+
+    from lexbuild.senses.curated_calibration import calibrate_guided, write_guided_calibration
+    from lexbuild.senses.guide import load_guide
+
+    guide = load_guide(args.guide, drafts=args.guide_drafts)
+    with tqdm(desc="calibrating", file=sys.stderr, disable=None) as bar:
+        calibration = calibrate_guided(
+            occurrences, representation, guide, settings, thresholds=thresholds,
+            language=args.language, cache=cache, tune_weights=not args.keep_weights,
+            progress=lambda n: update_bar(bar, n),
+        )
+    path = write_guided_calibration(calibration, args.output)
+    curated = calibration.curated
+    print(
+        f"evidence: {calibration.evidence} ({curated.get('senses', 0)} curated senses with 2+ "
+        f"examples in {curated.get('verbs', 0)} verbs); threshold {calibration.threshold:g} "
+        f"(mean ARI {calibration.threshold_ari:.3f}), assignment distance "
+        f"{calibration.max_distance:g} ({calibration.max_distance_evidence})"
+        + (f", weights {calibration.weights}" if calibration.weights else "")
+        + f" -> {path}"
     )
     return 0
 
@@ -252,6 +288,12 @@ def register(subparsers: Any) -> None:
     calibrate.add_argument("--no-mask", action="store_true",
                            help="leave the verb form visible (tests the representation only)")
     calibrate.add_argument("--no-plot", action="store_true", help="skip calibration.png")
+    add_guide_options(calibrate)
+    calibrate.add_argument(
+        "--keep-weights", action="store_true",
+        help="guided: keep the representation's weights (default: choose them on the curated "
+        "senses)",
+    )
     add_clusterer_options(calibrate)
     add_representation_options(calibrate)
     calibrate.set_defaults(handler=run_calibrate)

@@ -13,6 +13,7 @@ from lexbuild.senses.settings import CALIBRATE, InductionSettings
 
 __all__ = [
     "add_clusterer_options",
+    "add_guide_options",
     "add_representation_options",
     "open_cache",
     "register",
@@ -171,8 +172,15 @@ def run_induce(args: argparse.Namespace) -> int:
         min_occurrences=args.min_occurrences,
     )
     representation = representation_from_args(args)
+    guide = None
+    if args.guide:
+        from lexbuild.senses.guide import load_guide
+
+        guide = load_guide(args.guide, drafts=args.guide_drafts)
+        settings, representation = _guided_settings(args, settings, representation)
     inducer = SenseInducer(
-        representation, settings=settings, calibration=args.calibration, cache=open_cache(args)
+        representation, settings=settings, calibration=args.calibration, cache=open_cache(args),
+        guide=guide,
     )
     # A calibration run on the corpus reads every verb; otherwise only the verbs asked for.
     calibrates = args.threshold is None and not args.calibration
@@ -206,6 +214,13 @@ def run_induce(args: argparse.Namespace) -> int:
     print(f"lexbuild induce: threshold {inducer.threshold_.value:g}, "
           f"{inducer.threshold_.source}", file=sys.stderr)
     write_induction(result, output, overwrite=args.overwrite)
+    if result.guided is not None:
+        print(
+            f"guided by {args.guide}: {len(result.guided['curated'])} curated senses kept their "
+            f"ids; without support in this corpus (kept, never removed): "
+            f"{', '.join(result.guided['unsupported']) or 'none'}",
+            file=sys.stderr,
+        )
     counts = result.counts
     print(
         f"{counts['verbs']} verbs, {counts['senses']} senses from {counts['occurrences']} "
@@ -214,6 +229,45 @@ def run_induce(args: argparse.Namespace) -> int:
         f"computed -> {output}"
     )
     return 0
+
+
+def _guided_settings(
+    args: argparse.Namespace, settings: InductionSettings, representation: Any
+) -> tuple[InductionSettings, Any]:
+    """Assignment settings of guided induction: the options, else a guided calibration file
+    (its assignment distance, and the weights it chose for the embedded default)."""
+    from lexbuild.senses.calibrate import read_calibration
+    from lexbuild.senses.vectors import load_representation
+
+    changes: dict[str, Any] = {}
+    if args.calibration:
+        data = read_calibration(args.calibration)
+        guided = data.get("guided") or {}
+        if "max_distance" in guided:
+            changes["guide_max_distance"] = float(guided["max_distance"])
+        if "assigner" in guided:
+            changes["guide_assigner"] = str(guided["assigner"])
+        weights = data.get("weights")
+        if isinstance(weights, dict) and getattr(representation, "weights", None) is not None:
+            representation = load_representation("static", args.model, weights=weights)
+    if args.max_distance is not None:
+        changes["guide_max_distance"] = args.max_distance
+    if args.assigner is not None:
+        changes["guide_assigner"] = args.assigner
+    return settings.updated(**changes), representation
+
+
+def add_guide_options(parser: argparse.ArgumentParser) -> None:
+    group = parser.add_argument_group("guided induction")
+    group.add_argument(
+        "--guide",
+        metavar="SOURCES",
+        help="sources folder whose approved and reviewed senses guide induction: their "
+        "examples anchor them, occurrences near them keep their ids, the rest become drafts",
+    )
+    group.add_argument(
+        "--guide-drafts", action="store_true", help="draft senses guide too"
+    )
 
 
 def register(subparsers: Any) -> None:
@@ -250,6 +304,17 @@ def register(subparsers: Any) -> None:
         "--min-occurrences", type=int, default=DEFAULTS.min_occurrences, help="skip rarer verbs"
     )
     parser.add_argument("--overwrite", action="store_true", help="replace an existing output")
+    add_guide_options(parser)
+    parser.add_argument(
+        "--max-distance", type=float,
+        help=f"guided: cosine distance within which an occurrence joins a curated sense "
+        f"(default: the calibration's, else {DEFAULTS.guide_max_distance:g})",
+    )
+    parser.add_argument(
+        "--assigner", choices=("centroid", "knn", "propagation"),
+        help=f"guided: how occurrences are scored against curated senses (default "
+        f"{DEFAULTS.guide_assigner})",
+    )
     add_clusterer_options(parser)
     add_representation_options(parser)
     parser.set_defaults(handler=run_induce)

@@ -63,6 +63,7 @@ import time
 from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import numpy.typing as npt
@@ -283,6 +284,29 @@ def _coverage(
     return [len(sentences) for sentences in existing_sentences], shared
 
 
+def _pin_guided(
+    similarity: npt.NDArray[np.float64],
+    induced: Sequence[Sense],
+    existing: Sequence[Sense],
+    guided: Any,
+) -> None:
+    """A guided induction names its curated senses itself: those pairs are matched by id,
+    never guessed; its other (new) senses match no curated or retired sense."""
+    if not isinstance(guided, dict):
+        return
+    curated = set(guided.get("curated") or {})
+    guiding = curated | set(guided.get("unsupported") or [])
+    for j, old in enumerate(existing):
+        if old.id in guiding or old.status is Status.RETIRED:
+            similarity[:, j] = 0.0
+    for i, new in enumerate(induced):
+        if new.id in curated:
+            similarity[i, :] = 0.0
+            for j, old in enumerate(existing):
+                if old.id == new.id:
+                    similarity[i, j] = 1.0
+
+
 def _merge_entry(
     targets: list[Entry],
     induced_entry: Entry,
@@ -313,6 +337,7 @@ def _merge_entry(
             cosine = centroid_cosine(vector, centroids.get(old.id))
             details[i, j] = (share, cosine)
             similarity[i, j] = combined_similarity(share, cosine, settings)
+    _pin_guided(similarity, induced, existing, result.settings.get("guided"))
     pairs = match_senses(similarity, settings.min_similarity)
     matched_of_induced = dict(pairs)
     cited = {example_key(x) for entry in targets for s in entry.senses for x in s.examples}

@@ -13,6 +13,7 @@ numbered by size, largest first. Each sense gets its frames (``valency.frames_fo
 
 from __future__ import annotations
 
+import itertools
 import zlib
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -98,18 +99,26 @@ def _frames(occs: Sequence[Occurrence], parent: str, settings: InductionSettings
     return frames
 
 
-def _cluster(task: VerbTask, Xn: npt.NDArray[np.float32]) -> npt.NDArray[np.intp]:
-    """A cluster label for every occurrence: a sample is clustered, the rest assigned."""
+def _cluster(
+    task: VerbTask, Xn: npt.NDArray[np.float32]
+) -> tuple[npt.NDArray[np.intp], dict[int, str]]:
+    """A cluster label for every occurrence: a sample is clustered, the rest assigned; with a
+    guide, the curated sense id of each label that is a curated sense."""
     settings = task.settings
-    if task.guide is not None:
-        # Guided induction (curated senses assigned first) plugs in here.
-        raise InductionError(f"{task.lemma}: guided induction is not available in this version")
-    sample = sample_indices(len(task.occurrences), settings.cap, task.lemma, settings.random_state)
     spec = get_clusterer(settings.clusterer)
+    if task.guide is not None:
+        from lexbuild.senses.guide import cluster_guided
+
+        return cluster_guided(
+            task.guide, Xn, float(settings.threshold), lambda t: spec.make(settings, t),
+            min_cluster_size=settings.min_cluster_size, cap=settings.cap,
+            random_state=settings.random_state,
+        )
+    sample = sample_indices(len(task.occurrences), settings.cap, task.lemma, settings.random_state)
     clusterer = spec.make(settings, float(settings.threshold)).fit(Xn[sample])
     labels = assign_to_centroids(Xn, clusterer.centroids_)
     labels[sample] = clusterer.labels_  # sampled occurrences keep their own cluster
-    return labels
+    return labels, {}
 
 
 def induce_verb(task: VerbTask) -> VerbResult:
@@ -122,17 +131,20 @@ def induce_verb(task: VerbTask) -> VerbResult:
     norms = np.linalg.norm(X, axis=1, keepdims=True)
     norms[norms == 0] = 1.0
     Xn = (X / norms).astype(np.float32)
-    labels = _cluster(task, Xn)
+    eid = entry_id(task.lemma)
+    labels, curated = _cluster(task, Xn)
+    # New senses never take a curated, retired or otherwise used id.
+    taken = set(getattr(task.guide, "taken", ())) | set(curated.values())
+    fresh = (sense_id(eid, n) for n in itertools.count(1))
     k = int(labels.max()) + 1
     sizes = np.bincount(labels, minlength=k)
     first_seen = [int(np.flatnonzero(labels == c)[0]) if sizes[c] else len(occs) for c in range(k)]
     order = sorted((c for c in range(k) if sizes[c]), key=lambda c: (-sizes[c], first_seen[c]))
-    eid = entry_id(task.lemma)
     senses: list[Sense] = []
     centroids: dict[str, npt.NDArray[np.float32]] = {}
     sense_of_cluster: dict[int, str] = {}
-    for number, cluster in enumerate(order, 1):
-        sid = sense_id(eid, number)
+    for cluster in order:
+        sid = curated.get(cluster) or next(i for i in fresh if i not in taken)
         sense_of_cluster[cluster] = sid
         members = np.flatnonzero(labels == cluster)
         centroid = Xn[members].astype(np.float64).sum(axis=0)

@@ -63,6 +63,7 @@ class InductionResult:
     counts: dict[str, int] = field(default_factory=dict)
     cache: CacheStats = field(default_factory=CacheStats)
     threshold_source: str = "given"
+    guided: dict[str, Any] | None = None  # curated senses used, unsupported ones (guided runs)
 
     def manifest(self) -> dict[str, Any]:
         """The content of ``induction.json``."""
@@ -78,6 +79,7 @@ class InductionResult:
             "settings": self.settings.to_json(),
             "corpus": list(self.corpus),
             "counts": dict(self.counts),
+            **({"guided": self.guided} if self.guided is not None else {}),
         }
 
 
@@ -128,6 +130,31 @@ class SenseInducer:
         self.executor = executor
         self.cache = cache
         self.guide = guide
+
+    def _verb_guide(
+        self,
+        lemma: str,
+        occs: Sequence[Occurrence],
+        vectors: npt.NDArray[np.float32],
+        settings: InductionSettings,
+        stats: CacheStats,
+    ) -> Any:
+        """The guide of one verb for its task (anchors located, uncited examples parsed)."""
+        if self.guide is None:
+            return None
+        from lexbuild.senses.guide import prepare_verb_guide
+
+        curated = tuple(self.guide.get(lemma) or ())
+        if not curated:
+            return None
+        return prepare_verb_guide(
+            curated, occs, vectors, self.representation,
+            taken=getattr(self.guide, "taken", ()),
+            method=settings.guide_assigner,
+            max_distance=settings.guide_max_distance,
+            cache=self.cache,
+            stats=stats,
+        )
 
     def get_params(self, deep: bool = True) -> dict[str, Any]:
         """Constructor parameters (scikit-learn convention; settings fields by name)."""
@@ -214,7 +241,7 @@ class SenseInducer:
                     representation=self.representation.id,
                     model=self.representation.model,
                     run=run,
-                    guide=None if self.guide is None else self.guide.get(lemma),
+                    guide=self._verb_guide(lemma, occs, vectors, resolved, stats),
                 )
 
         results: list[VerbResult] = []
@@ -247,8 +274,39 @@ class SenseInducer:
             counts=counts,
             cache=stats,
             threshold_source=choice.source,
+            guided=(
+                None if self.guide is None else _guided_report(self.guide, entries, kept, wanted)
+            ),
         )
         return self
+
+
+def _guided_report(
+    guide: Mapping[str, Any],
+    entries: Sequence[Entry],
+    kept: Mapping[str, Sequence[Occurrence]],
+    wanted: frozenset[str] | None,
+) -> dict[str, Any]:
+    """Which induced senses are curated ones (merge keeps their ids) and which curated senses
+    found no support in this corpus (reported, never removed)."""
+    induced = {sense.id: sense for entry in entries for sense in entry.senses}
+    curated: dict[str, int] = {}
+    unsupported: list[str] = []
+    for lemma in sorted(guide):
+        if wanted is not None and lemma not in wanted:
+            continue  # a verb this run was not asked to induce
+        for sense in guide.get(lemma) or ():
+            found = induced.get(sense.id)
+            if found is not None and lemma in kept:
+                curated[sense.id] = found.induction.cluster_size if found.induction else 0
+            else:
+                unsupported.append(sense.id)
+    return {
+        "sources": str(getattr(guide, "source", "")),
+        "statuses": list(getattr(guide, "statuses", ())),
+        "curated": dict(sorted(curated.items())),
+        "unsupported": unsupported,
+    }
 
 
 def induce(

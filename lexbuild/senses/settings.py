@@ -69,6 +69,9 @@ class InductionSettings:
     frame_min_count: int = 2
     frame_min_share: float = 0.05
     calibration: CalibrationSettings = field(default_factory=CalibrationSettings)
+    # Guided induction (lexbuild.senses.guide): how occurrences go to curated senses.
+    guide_assigner: str = "centroid"  # "centroid", "knn" or "propagation"
+    guide_max_distance: float = 0.7  # cosine distance; farther occurrences form new senses
 
     def __post_init__(self) -> None:
         if isinstance(self.threshold, str):
@@ -84,6 +87,12 @@ class InductionSettings:
             raise InductionError("examples must be >= 0 and min_occurrences >= 1")
         if self.example_words[0] > self.example_words[1]:
             raise InductionError("example_words must be (shortest, longest)")
+        if self.guide_assigner not in ("centroid", "knn", "propagation"):
+            raise InductionError(
+                f"guide_assigner must be centroid, knn or propagation, got {self.guide_assigner!r}"
+            )
+        if not 0.0 <= self.guide_max_distance <= 2.0:
+            raise InductionError("guide_max_distance must lie in [0, 2] (a cosine distance)")
         if self.min_cluster_size < 1 or not 0.0 <= self.min_cluster_share <= 1.0:
             raise InductionError("min_cluster_size must be >= 1, min_cluster_share in [0, 1]")
 

