@@ -27,12 +27,8 @@ from sklearn.metrics import adjusted_rand_score
 from lexbuild.corpus.occurrences import Occurrence, iter_occurrences
 from lexbuild.senses.clustering import SenseClusterer
 from lexbuild.senses.induce import InductionSettings, induce
-from lexbuild.senses.vectors import (
-    Representation,
-    StaticSyntacticVectors,
-    TransformerEncoder,
-    VectorCache,
-)
+from lexbuild.senses.transformer import TransformerEncoder
+from lexbuild.senses.vectors import Representation, StaticSyntacticVectors, VectorCache
 
 ROOT = Path(__file__).resolve().parent.parent
 UD = ROOT.parent / "shared" / "corpora" / "ud"
