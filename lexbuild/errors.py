@@ -85,3 +85,7 @@ class ReleaseError(LexbuildError, RuntimeError):
 
 class UnsafeXMLError(LexbuildError, ValueError):
     """An XML file uses entities, DTD tricks or sizes that lexbuild refuses to read."""
+
+
+class PieceAlignmentError(ModelLoadError):
+    """A tokenizer's word pieces cannot be mapped back to the words they came from."""
