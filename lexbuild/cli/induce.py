@@ -21,10 +21,10 @@ def add_representation_options(parser: argparse.ArgumentParser) -> None:
     group = parser.add_argument_group("representation")
     group.add_argument(
         "--representation",
-        choices=("static", "default", "transformer"),
+        choices=("static", "default", "transformer", "substitutes"),
         default="static",
-        help="occurrence vectors: the embedded static syntactic default, or a transformer "
-        "encoder (needs --model)",
+        help="occurrence vectors: the embedded static syntactic default, a transformer "
+        "encoder, or a masked language model's substitutes at the verb (both need --model)",
     )
     group.add_argument(
         "--model",
@@ -36,7 +36,8 @@ def add_representation_options(parser: argparse.ArgumentParser) -> None:
     group.add_argument(
         "--layers",
         default="-4,-3,-2,-1",
-        help="transformer: hidden states averaged (0 = embeddings; default the last four)",
+        help="transformer: hidden states averaged (0 = embeddings; default the last four), or "
+        "'auto': the mix chosen by calibration on pseudo-verbs",
     )
     group.add_argument("--batch-size", type=int, default=32, help="transformer batch size")
     group.add_argument(
@@ -61,7 +62,9 @@ def representation_from_args(args: argparse.Namespace) -> Any:
 
     if args.representation == "transformer":
         try:
-            layers = tuple(int(x) for x in args.layers.split(",") if x.strip())
+            layers: Any = "auto" if args.layers.strip() == "auto" else tuple(
+                int(x) for x in args.layers.split(",") if x.strip()
+            )
         except ValueError:
             raise InductionError(
                 f"--layers {args.layers!r}: expected comma-separated integers, e.g. -4,-3,-2,-1"
@@ -74,6 +77,13 @@ def representation_from_args(args: argparse.Namespace) -> Any:
             max_length=args.max_length,
             num_threads=args.threads,
             quantize=args.quantize,
+        )
+    if args.representation == "substitutes":
+        if not args.model:
+            raise InductionError("--representation substitutes needs --model DIR (masked LM)")
+        return load_representation(
+            "substitutes", args.model, batch_size=args.batch_size, max_length=args.max_length,
+            num_threads=args.threads,
         )
     return load_representation("static", args.model)
 
@@ -96,7 +106,15 @@ def _threshold(args: argparse.Namespace, representation: Any, occurrences: list[
     from lexbuild.senses.calibrate import calibrate, read_calibration
     from lexbuild.senses.induce import DEFAULT_THRESHOLD
 
-    if args.threshold is not None:
+    auto_layers = getattr(representation, "needs_layer_choice", False)
+    if args.calibration and auto_layers:
+        data = read_calibration(args.calibration)
+        if "layers" not in data:
+            raise InductionError(
+                f"{args.calibration}: no layer choice recorded; calibrate with --layers auto"
+            )
+        representation.use_layers(data["layers"]["chosen"])
+    if args.threshold is not None and not getattr(representation, "needs_layer_choice", False):
         return float(args.threshold)
     if args.calibration:
         data = read_calibration(args.calibration)
@@ -109,6 +127,13 @@ def _threshold(args: argparse.Namespace, representation: Any, occurrences: list[
                 f"({representation.model}); calibrate again or pass --threshold"
             )
         return float(data["recommended"]["threshold"])
+    if auto_layers:  # the layer mix comes from calibration, whatever the threshold
+        calibration = calibrate(occurrences, representation, per_verb=100, cache=args.cache_obj)
+        print(f"lexbuild induce: layers {calibration.representation_settings['layers']} "
+              "chosen on pseudo-verbs", file=sys.stderr)
+        if args.threshold is not None:
+            return float(args.threshold)
+        return float(calibration.recommended.threshold)
     try:
         calibration = calibrate(occurrences, representation, per_verb=100, cache=args.cache_obj)
     except InductionError as error:

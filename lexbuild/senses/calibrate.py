@@ -81,6 +81,8 @@ class Calibration:
     settings: dict[str, Any] = field(default_factory=dict)
     # Per pseudo-verb ARI at each threshold (same order as ``thresholds``).
     per_verb_ari: dict[str, list[float]] = field(default_factory=dict)
+    # The layer mix chosen for a transformer with layers "auto" (transformer.choose_layers).
+    layers: dict[str, Any] | None = None
 
     def to_json(self) -> dict[str, Any]:
         return {
@@ -94,6 +96,7 @@ class Calibration:
                 "ari": self.recommended.ari,
             },
             "pseudo_verbs": self.pseudo_verbs,
+            **({"layers": self.layers} if self.layers is not None else {}),
         }
 
 
@@ -242,6 +245,15 @@ def calibrate(
         min_count=min_count, random_state=random_state,
     )
     placeholder = representation.placeholder
+    layers = None
+    if getattr(representation, "needs_layer_choice", False):
+        layers = _choose_layers(
+            representation, by_lemma, pseudo_verbs, grid, per_verb=per_verb,
+            placeholder=placeholder, mask=mask, random_state=random_state,
+            clusterer=SenseClusterer(linkage=linkage, min_cluster_size=min_cluster_size,
+                                     min_cluster_share=min_cluster_share,
+                                     random_state=random_state),
+        )
     scores: dict[float, list[Any]] = {t: [] for t in grid}
     per_verb_ari: dict[str, list[float]] = {}
     described: list[dict[str, Any]] = []
@@ -309,7 +321,30 @@ def calibrate(
             "random_state": random_state,
         },
         per_verb_ari=per_verb_ari,
+        layers=layers,
     )
+
+
+def _choose_layers(
+    representation: Representation,
+    by_lemma: Mapping[str, Sequence[Occurrence]],
+    pseudo_verbs: Sequence[PseudoVerb],
+    grid: Sequence[float],
+    *,
+    clusterer: SenseClusterer,
+    **conflation: Any,
+) -> dict[str, Any]:
+    """The transformer's layer mix, scored on the same pseudo-verbs and thresholds."""
+    from lexbuild.senses.transformer import TransformerEncoder, choose_layers
+
+    assert isinstance(representation, TransformerEncoder)
+    samples = [conflate(by_lemma, pseudo, **conflation) for pseudo in pseudo_verbs]
+
+    def sweep(X: Any, gold: Sequence[str]) -> list[float]:
+        return [evaluate_verb(list(gold), labels.tolist(), "layers").ari
+                for labels in clusterer.sweep(X, grid)]
+
+    return choose_layers(representation, samples, sweep, grid).to_json()
 
 
 # ------------------------------------------------------------------------------ output

@@ -415,7 +415,7 @@ def encode_cached(
     if cache is None:
         matrix = _encode(representation, occurrences, progress)
         stats.computed += len(occurrences)
-        return matrix
+        return _reweight(representation, matrix)
     space = fingerprint(representation)
     keys = [representation.input_key(occ) for occ in occurrences]
     found = cache.get_many(space, keys)
@@ -434,16 +434,24 @@ def encode_cached(
         computed.update(fresh)
         stats.computed += len(part)
     vectors = {**found, **computed}
-    return np.stack([vectors[key] for key in keys]).astype(np.float32, copy=False)
+    matrix = np.stack([vectors[key] for key in keys]).astype(np.float32, copy=False)
+    return _reweight(representation, matrix)
+
+
+def _reweight(representation: Representation, matrix: Matrix) -> Matrix:
+    """A representation whose weights depend on the verb's occurrences (substitutes: TF-IDF)
+    caches raw rows and reweights them here, once all of the verb's rows are together."""
+    reweight = getattr(representation, "reweight", None)
+    return matrix if reweight is None else np.asarray(reweight(matrix), dtype=np.float32)
 
 
 def _encode(
     representation: Representation, occurrences: Sequence[Occurrence], progress: Progress | None
 ) -> Matrix:
-    from lexbuild.senses.transformer import TransformerEncoder
+    import inspect
 
-    if isinstance(representation, TransformerEncoder):
-        matrix = representation.encode(occurrences, progress=progress)
+    if "progress" in inspect.signature(representation.encode).parameters:
+        matrix = representation.encode(occurrences, progress=progress)  # type: ignore[call-arg]
     else:
         matrix = representation.encode(occurrences)
         if progress is not None:
@@ -462,7 +470,8 @@ def load_representation(
     model: str | Path | None = None,
     **options: Any,
 ) -> Representation:
-    """A representation by name: ``static`` (alias ``default``) or ``transformer``."""
+    """A representation by name: ``static`` (alias ``default``), ``transformer`` or
+    ``substitutes`` (a masked language model's substitutes; lexbuild.senses.substitutes)."""
     if kind in ("static", "default", "static-syntactic"):
         if model is not None:
             options["package"] = str(model)
@@ -475,7 +484,18 @@ def load_representation(
         from lexbuild.senses.transformer import TransformerEncoder
 
         return TransformerEncoder(model, **options)
-    raise InductionError(f"unknown representation {kind!r}; expected 'static' or 'transformer'")
+    if kind == "substitutes":
+        if model is None:
+            raise InductionError(
+                "the substitutes representation needs a model with a masked-LM head: a folder "
+                "or a local cache id"
+            )
+        from lexbuild.senses.substitutes import SubstituteVectors
+
+        return SubstituteVectors(model, **options)
+    raise InductionError(
+        f"unknown representation {kind!r}; expected 'static', 'transformer' or 'substitutes'"
+    )
 
 
 def __getattr__(name: str) -> Any:
