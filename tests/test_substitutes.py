@@ -18,7 +18,7 @@ from lexbuild.cli import main
 from lexbuild.corpus.occurrences import Occurrence, iter_occurrences
 from lexbuild.senses.substitutes import SubstituteVectors, _bucket
 from lexbuild.senses.vectors import VectorCache, encode_cached, fingerprint, load_representation
-from tests.tiny_models import build_tiny_model, ud_texts
+from tests.tiny_models import session_tiny_model
 
 torch = pytest.importorskip("torch")
 transformers = pytest.importorskip("transformers")
@@ -26,8 +26,7 @@ transformers = pytest.importorskip("transformers")
 
 @pytest.fixture(scope="module")
 def masked_lm(tmp_path_factory: pytest.TempPathFactory, ud_dir: Path) -> Path:
-    texts = ud_texts(ud_dir / "fr_sequoia-ud-dev.conllu", 300)
-    return build_tiny_model("camembert", tmp_path_factory.mktemp("mlm") / "camembert", texts)
+    return session_tiny_model("camembert", tmp_path_factory.getbasetemp(), ud_dir)
 
 
 @pytest.fixture(scope="module")

@@ -24,7 +24,7 @@ import pytest
 from lexbuild.corpus.occurrences import Occurrence, iter_occurrences
 from lexbuild.errors import PieceAlignmentError
 from lexbuild.senses.transformer import PieceAligner, TransformerEncoder
-from tests.tiny_models import FAMILIES, build_tiny_model, ud_texts
+from tests.tiny_models import FAMILIES, session_tiny_model
 
 torch = pytest.importorskip("torch")
 transformers = pytest.importorskip("transformers")
@@ -45,9 +45,8 @@ CONVENTIONS = {
 @pytest.fixture(scope="session")
 def family_folders(tmp_path_factory: pytest.TempPathFactory, ud_dir: Path) -> dict[str, Path]:
     """One tiny model per family, built once per test session."""
-    base = tmp_path_factory.mktemp("families")
-    texts = ud_texts(ud_dir / "fr_sequoia-ud-dev.conllu", SENTENCES)
-    return {family: build_tiny_model(family, base / family, texts) for family in FAMILIES}
+    base = tmp_path_factory.getbasetemp()
+    return {family: session_tiny_model(family, base, ud_dir) for family in FAMILIES}
 
 
 @pytest.fixture(scope="module")
@@ -162,3 +161,31 @@ def test_a_tokenizer_that_cannot_map_pieces_back_is_refused() -> None:
     tok = PreTrainedTokenizerFast(tokenizer_object=backend, unk_token="<unk>", pad_token="<pad>")
     with pytest.raises(PieceAlignmentError, match="cannot be mapped back to words"):
         PieceAligner(tok, "brevenn-model")
+
+
+def test_cli_refuses_such_a_tokenizer_with_exit_2(
+    tmp_path: Path, family_folders: dict[str, Path], ud_dir: Path,
+    capsys: pytest.CaptureFixture[str],
+) -> None:
+    import shutil
+
+    from tokenizers import Tokenizer, models, pre_tokenizers, trainers
+    from transformers import PreTrainedTokenizerFast
+
+    from lexbuild.cli import main
+
+    folder = tmp_path / "odd-model"
+    shutil.copytree(family_folders["bert"], folder)
+    for name in ("tokenizer.json", "tokenizer_config.json", "vocab.txt"):
+        (folder / name).unlink(missing_ok=True)
+    backend = Tokenizer(models.BPE(unk_token="[UNK]"))
+    backend.pre_tokenizer = pre_tokenizers.Split(" ", behavior="merged_with_next")
+    backend.train_from_iterator(["le pêcheur répare ses huîtres"] * 10, trainers.BpeTrainer(
+        vocab_size=60, special_tokens=["[UNK]", "[PAD]", "[CLS]", "[SEP]", "[MASK]"]))
+    PreTrainedTokenizerFast(tokenizer_object=backend, unk_token="[UNK]", pad_token="[PAD]",
+                            cls_token="[CLS]", sep_token="[SEP]").save_pretrained(folder)
+    code = main(["induce", str(ud_dir / "fr_sequoia-ud-dev.conllu"), "--output",
+                 str(tmp_path / "out"), "--representation", "transformer", "--model",
+                 str(folder), "--threshold", "0.5", "--no-cache"])
+    assert code == 2
+    assert "cannot be mapped back to words" in capsys.readouterr().err

@@ -275,3 +275,15 @@ def build_tiny_model(
     _randomise(model, torch)
     model.save_pretrained(folder)
     return folder
+
+
+_SESSION_MODELS: dict[str, Path] = {}
+
+
+def session_tiny_model(family: str, base: Path, ud_dir: Path) -> Path:
+    """``build_tiny_model`` once per process for tests (tokenizer trained on the first 300
+    sentences of UD French-Sequoia dev); ``base`` is a session temporary folder."""
+    if family not in _SESSION_MODELS:
+        texts = ud_texts(ud_dir / "fr_sequoia-ud-dev.conllu", 300)
+        _SESSION_MODELS[family] = build_tiny_model(family, base / "tiny-models" / family, texts)
+    return _SESSION_MODELS[family]

@@ -37,6 +37,9 @@ from lexbuild.senses.vectors import Matrix, Progress, _digest
 
 __all__ = ["SubstituteVectors"]
 
+#: Lemmatising pipelines, loaded once per process (the lemmatiser alone is kept).
+_PIPELINES: dict[str, Any] = {}
+
 
 def _bucket(lemma: str, buckets: int) -> int:
     digest = hashlib.blake2b(lemma.encode("utf-8"), digest_size=8).digest()
@@ -125,18 +128,21 @@ class SubstituteVectors:
     # -- lemmas
     @cached_property
     def _nlp(self) -> Any:
-        if not self.lemmatizer_package:
+        package = self.lemmatizer_package
+        if not package:
             return None
-        try:
-            import spacy
+        if package not in _PIPELINES:
+            try:
+                import spacy
 
-            nlp = spacy.load(self.lemmatizer_package, exclude=[
-                "parser", "ner", "tok2vec", "morphologizer", "senter", "attribute_ruler",
-                "tagger", "transformer",
-            ])
-            return nlp if "lemmatizer" in nlp.pipe_names else None
-        except (ImportError, OSError):
-            return None  # no pipeline: lower-cased forms stand for lemmas
+                nlp = spacy.load(package, exclude=[
+                    "parser", "ner", "tok2vec", "morphologizer", "senter", "attribute_ruler",
+                    "tagger", "transformer",
+                ])
+                _PIPELINES[package] = nlp if "lemmatizer" in nlp.pipe_names else None
+            except (ImportError, OSError):
+                _PIPELINES[package] = None  # no pipeline: lower-cased forms stand for lemmas
+        return _PIPELINES[package]
 
     @property
     def _lemmatizer_name(self) -> str:
