@@ -150,3 +150,16 @@ def test_layers_auto_is_recorded_and_reproducible(tmp_path: Path, masked_lm: Pat
     ]) == 0
     manifest = json.loads((out / "induction.json").read_text(encoding="utf-8"))
     assert chosen == manifest["representation_settings"]["layers"]
+
+
+def test_layers_auto_without_a_calibration_calibrates_or_says_why(
+    tmp_path: Path, masked_lm: Path, ud_dir: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # UD French-Sequoia dev has one verb with 30+ occurrences: no pseudo-verb can be built.
+    code = main([
+        "induce", str(ud_dir / "fr_sequoia-ud-dev.conllu"), "--output", str(tmp_path / "out"),
+        "--representation", "transformer", "--model", str(masked_lm), "--layers", "auto",
+        "--threshold", "0.5", "--no-cache",
+    ])
+    assert code == 2
+    assert "--layers auto" in capsys.readouterr().err

@@ -128,7 +128,15 @@ def _threshold(args: argparse.Namespace, representation: Any, occurrences: list[
             )
         return float(data["recommended"]["threshold"])
     if auto_layers:  # the layer mix comes from calibration, whatever the threshold
-        calibration = calibrate(occurrences, representation, per_verb=100, cache=args.cache_obj)
+        try:
+            calibration = calibrate(
+                occurrences, representation, per_verb=100, cache=args.cache_obj
+            )
+        except InductionError as error:
+            raise InductionError(
+                f"--layers auto: {error}; or choose the layers with 'lexbuild calibrate "
+                "--layers auto' on a larger corpus and pass --calibration"
+            ) from None
         print(f"lexbuild induce: layers {calibration.representation_settings['layers']} "
               "chosen on pseudo-verbs", file=sys.stderr)
         if args.threshold is not None:
