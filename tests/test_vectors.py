@@ -16,12 +16,11 @@ import pytest
 
 from lexbuild.corpus.occurrences import Occurrence, iter_occurrences
 from lexbuild.errors import InductionError, ModelLoadError
+from lexbuild.senses.transformer import TransformerEncoder, _window_bounds
 from lexbuild.senses.vectors import (
     CacheStats,
     StaticSyntacticVectors,
-    TransformerEncoder,
     VectorCache,
-    _window_bounds,
     encode_cached,
     fingerprint,
     load_representation,

@@ -43,9 +43,10 @@ def add_representation_options(parser: argparse.ArgumentParser) -> None:
         "--representation",
         type=_representation_name,
         default="static-syntactic",
-        metavar="{static-syntactic,transformer}",
+        metavar="{static-syntactic,transformer,substitutes}",
         help="occurrence vectors: static-syntactic (the embedded default: syntactic context "
-        "from static word vectors) or transformer (a transformer encoder, needs --model)",
+        "from static word vectors), transformer (a transformer encoder) or substitutes (a masked "
+        "language model's substitutes at the verb); the last two need --model",
     )
     group.add_argument(
         "--model",
@@ -57,7 +58,8 @@ def add_representation_options(parser: argparse.ArgumentParser) -> None:
     group.add_argument(
         "--layers",
         default="-4,-3,-2,-1",
-        help="transformer: hidden states averaged (0 = embeddings; default the last four)",
+        help="transformer: hidden states averaged (0 = embeddings; default the last four), or "
+        "'auto': the mix chosen by calibration on pseudo-verbs",
     )
     group.add_argument("--batch-size", type=int, default=32, help="transformer batch size")
     group.add_argument(
@@ -82,7 +84,9 @@ def representation_from_args(args: argparse.Namespace) -> Any:
 
     if args.representation == "transformer":
         try:
-            layers = tuple(int(x) for x in args.layers.split(",") if x.strip())
+            layers: Any = "auto" if args.layers.strip() == "auto" else tuple(
+                int(x) for x in args.layers.split(",") if x.strip()
+            )
         except ValueError:
             raise InductionError(
                 f"--layers {args.layers!r}: expected comma-separated integers, e.g. -4,-3,-2,-1"
@@ -95,6 +99,13 @@ def representation_from_args(args: argparse.Namespace) -> Any:
             max_length=args.max_length,
             num_threads=args.threads,
             quantize=args.quantize,
+        )
+    if args.representation == "substitutes":
+        if not args.model:
+            raise InductionError("--representation substitutes needs --model DIR (masked LM)")
+        return load_representation(
+            "substitutes", args.model, batch_size=args.batch_size, max_length=args.max_length,
+            num_threads=args.threads,
         )
     return load_representation("static-syntactic", args.model)
 
@@ -249,7 +260,7 @@ def _guided_settings(
             changes["guide_assigner"] = str(guided["assigner"])
         weights = data.get("weights")
         if isinstance(weights, dict) and getattr(representation, "weights", None) is not None:
-            representation = load_representation("static", args.model, weights=weights)
+            representation = load_representation("static-syntactic", args.model, weights=weights)
     if args.max_distance is not None:
         changes["guide_max_distance"] = args.max_distance
     if args.assigner is not None:

@@ -87,6 +87,8 @@ class Calibration:
     per_verb_ari: dict[str, list[float]] = field(default_factory=dict)
     clusterer: str = "agglomerative"
     parameter: str = "distance threshold"
+    # The layer mix chosen for a transformer with layers "auto" (transformer.choose_layers).
+    layers: dict[str, Any] | None = None
 
     def to_json(self) -> dict[str, Any]:
         return {
@@ -102,6 +104,7 @@ class Calibration:
                 "ari": self.recommended.ari,
             },
             "pseudo_verbs": self.pseudo_verbs,
+            **({"layers": self.layers} if self.layers is not None else {}),
         }
 
 
@@ -230,7 +233,7 @@ def _pseudo_verb_vectors(
     settings: InductionSettings,
     cache: VectorCache | None,
     stats: CacheStats | None,
-) -> list[_Scored]:
+) -> tuple[list[_Scored], dict[str, Any] | None]:
     options = settings.calibration
     by_lemma: dict[str, list[Occurrence]] = defaultdict(list)
     for occ in occurrences:
@@ -241,6 +244,16 @@ def _pseudo_verb_vectors(
         triples=options.triples, min_count=options.min_count,
         random_state=settings.random_state,
     )
+    layers = None
+    if getattr(representation, "needs_layer_choice", False):
+        spec = get_clusterer(settings.clusterer)
+        grid = sorted({round(float(t), 6) for t in (options.thresholds or spec.grid(settings))})
+        layers = _choose_layers(
+            representation, by_lemma, pseudo_verbs, grid,
+            clusterer=spec.make(settings, grid[0]), per_verb=options.per_verb,
+            placeholder=representation.placeholder, mask=options.mask,
+            random_state=settings.random_state,
+        )
     out = []
     for pseudo in pseudo_verbs:
         occs, gold = conflate(
@@ -252,7 +265,7 @@ def _pseudo_verb_vectors(
             random_state=settings.random_state,
         )
         out.append(_Scored(pseudo, encode_cached(representation, occs, cache, stats=stats), gold))
-    return out
+    return out, layers
 
 
 def _sweep(
@@ -260,6 +273,7 @@ def _sweep(
     representation: Representation,
     settings: InductionSettings,
     progress: Callable[[int], None] | None,
+    layers: dict[str, Any] | None = None,
 ) -> Calibration:
     spec = get_clusterer(settings.clusterer)
     values = settings.calibration.thresholds or spec.grid(settings)
@@ -320,6 +334,7 @@ def _sweep(
         per_verb_ari=per_verb_ari,
         clusterer=spec.name,
         parameter=spec.parameter,
+        layers=layers,
     )
 
 
@@ -359,8 +374,8 @@ def calibrate(
     ``progress`` is called with 1 after each pseudo-verb is scored.
     """
     settings = _settings(settings, thresholds, options)
-    scored = _pseudo_verb_vectors(occurrences, representation, settings, cache, stats)
-    return _sweep(scored, representation, settings, progress)
+    scored, layers = _pseudo_verb_vectors(occurrences, representation, settings, cache, stats)
+    return _sweep(scored, representation, settings, progress, layers)
 
 
 def compare_clusterers(
@@ -386,9 +401,9 @@ def compare_clusterers(
         )
     for name in clusterers:
         get_clusterer(name)  # an unknown name fails before any encoding
-    scored = _pseudo_verb_vectors(occurrences, representation, settings, cache, stats)
+    scored, layers = _pseudo_verb_vectors(occurrences, representation, settings, cache, stats)
     return {
-        name: _sweep(scored, representation, settings.updated(clusterer=name), progress)
+        name: _sweep(scored, representation, settings.updated(clusterer=name), progress, layers)
         for name in clusterers
     }
 
@@ -397,6 +412,28 @@ def best_clusterer(calibrations: dict[str, Calibration]) -> str:
     """The method whose recommended value has the best mean ARI (ties: the first listed)."""
     names = list(calibrations)
     return max(names, key=lambda n: (round(calibrations[n].recommended.ari, 12), -names.index(n)))
+
+
+def _choose_layers(
+    representation: Representation,
+    by_lemma: Mapping[str, Sequence[Occurrence]],
+    pseudo_verbs: Sequence[PseudoVerb],
+    grid: Sequence[float],
+    *,
+    clusterer: Any,
+    **conflation: Any,
+) -> dict[str, Any]:
+    """The transformer's layer mix, scored on the same pseudo-verbs and thresholds."""
+    from lexbuild.senses.transformer import TransformerEncoder, choose_layers
+
+    assert isinstance(representation, TransformerEncoder)
+    samples = [conflate(by_lemma, pseudo, **conflation) for pseudo in pseudo_verbs]
+
+    def sweep(X: Any, gold: Sequence[str]) -> list[float]:
+        return [evaluate_verb(list(gold), labels.tolist(), "layers").ari
+                for labels in clusterer.sweep(X, grid)]
+
+    return choose_layers(representation, samples, sweep, grid).to_json()
 
 
 # ------------------------------------------------------------------------------ output

@@ -86,14 +86,24 @@ def choose_threshold(
     stats: CacheStats | None = None,
     progress: Callable[[int], None] | None = None,
 ) -> ThresholdChoice:
-    """Apply the policy of the module docstring."""
-    if not settings.calibrates:
+    """Apply the policy of the module docstring.
+
+    A transformer with ``layers="auto"`` takes its layer mix from the calibration as well: the
+    one recorded in the calibration given, else the one a calibration run now chooses (even when
+    the threshold itself is given).
+    """
+    choose_layers = getattr(representation, "needs_layer_choice", False)
+    if not settings.calibrates and not (choose_layers and calibration is None):
+        if choose_layers:
+            _use_recorded_layers(calibration, representation)
         return ThresholdChoice(float(settings.threshold), "given")
     if isinstance(calibration, Calibration):
+        _use_recorded_layers(calibration, representation)
         value = check_calibration(calibration.to_json(), representation, settings)
         return ThresholdChoice(value, "the given calibration", calibration)
     if calibration is not None:
         data = read_calibration(calibration)
+        _use_recorded_layers(data, representation, origin=str(calibration))
         value = check_calibration(data, representation, settings, origin=str(calibration))
         return ThresholdChoice(value, f"calibration file {calibration}")
     spec = get_clusterer(settings.clusterer)
@@ -102,13 +112,43 @@ def choose_threshold(
             occurrences, representation, settings, cache=cache, stats=stats, progress=progress
         )
     except InductionError as error:
+        if choose_layers:
+            raise InductionError(
+                f"--layers auto: {error}; or choose the layers with 'lexbuild calibrate "
+                "--layers auto' on a larger corpus and pass --calibration"
+            ) from None
         fallback = spec.default(settings)
         return ThresholdChoice(
             fallback, f"default of {spec.name} (no calibration possible: {error})"
         )
     best = calibrated.recommended
+    if not settings.calibrates:  # calibrated for the layers only
+        return ThresholdChoice(float(settings.threshold), "given", calibrated)
     return ThresholdChoice(
         best.threshold,
         f"calibrated on {len(calibrated.pseudo_verbs)} pseudo-verbs (mean ARI {best.ari:.3f})",
         calibrated,
     )
+
+
+def _use_recorded_layers(
+    calibration: str | Path | Calibration | dict[str, Any] | None,
+    representation: Representation,
+    origin: str = "the calibration",
+) -> None:
+    """Set the layer mix a calibration chose on a transformer whose layers are "auto"."""
+    if not getattr(representation, "needs_layer_choice", False) or calibration is None:
+        return
+    if isinstance(calibration, Calibration):
+        data: dict[str, Any] = calibration.to_json()
+    elif isinstance(calibration, dict):
+        data = calibration
+    else:
+        data = read_calibration(calibration)
+        origin = str(calibration)
+    layers = data.get("layers")
+    if not isinstance(layers, dict) or "chosen" not in layers:
+        raise InductionError(
+            f"{origin}: no layer choice recorded; calibrate with --layers auto"
+        )
+    representation.use_layers(layers["chosen"])  # type: ignore[attr-defined]
