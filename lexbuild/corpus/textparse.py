@@ -61,8 +61,8 @@ Agreement with gold trees (``benchmarks/parse_agreement.py``, measured once, 202
     ====================================  =====  =====  =====  =====  =====
 
     Frames (whole frame per gold verb token; slots with obliques decided by corpus evidence,
-    lexbuild.corpus.argumenthood), measured 2026-12-03: GSD test 0.581, slot F1 0.755; GSD dev
-    0.552, slot F1 0.735 (README, "Arguments and adjuncts").
+    lexbuild.corpus.argumenthood), measured 2026-12-03: GSD test 0.586, slot F1 0.756; GSD dev
+    0.566, slot F1 0.741 (README, "Arguments and adjuncts").
 
     By relation (P / R / F1): nsubj .835/.765/.798, obj .740/.734/.737, obl:arg
     .398/.500/.443, obl:mod .474/.371/.416, xcomp .658/.670/.664, ccomp .622/.479/.541,
