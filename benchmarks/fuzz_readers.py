@@ -20,6 +20,24 @@ Every input ends in one of four ways, counted per reader:
 
 Exit status 1 when any crash or hang was seen. ``--keep DIR`` saves each crashing or hanging
 input there, to replay it by hand.
+
+Measured on 2026-12-03 (``--inputs 10000 --random-state 0``, one reader per process on a shared
+2-core machine; 130,000 inputs, 0 crashes, 0 hangs):
+
+    reader                 clean errors  accepted  crashes  hangs
+    conllu                         9212       788        0      0
+    conllu-gz                      9449       551        0      0
+    conllu-xz                      9454       546        0      0
+    yaml-entry                     8791      1209        0      0
+    yaml-metadata                  8195      1805        0      0
+    tei-diff                       8355      1645        0      0
+    tei-read                       8531      1469        0      0
+    induction-json                 8157      1843        0      0
+    induction-assignments          6885      3115        0      0
+    calibration                    8677      1323        0      0
+    gold-tsv                       5245      4755        0      0
+    gold-conllu                    6001      3999        0      0
+    lmf-validate                   8448      1552        0      0
 """
 
 from __future__ import annotations

@@ -8,6 +8,7 @@ from __future__ import annotations
 import glob as _glob
 import gzip
 import lzma
+import operator
 import re
 import zlib
 from collections.abc import Iterable, Iterator
@@ -140,6 +141,9 @@ _DIGITS = "(ASCII digits, no leading zero, 9 at most)"
 _HEAD = re.compile(rf"(?:0|{_NUMBER})\Z")
 # Control characters have no place in a field; a carriage return would break TSV output.
 _CONTROL = re.compile(r"[\x00-\x08\x0a-\x1f\x7f]")
+# The same, searched once over a whole sentence joined by line feeds (one call, not one a line).
+_CONTROL_IN_BLOCK = re.compile(r"[\x00-\x08\x0b-\x1f\x7f]")
+_second = operator.itemgetter(1)
 
 
 def _column(cols: list[str], index: int) -> int:
@@ -274,6 +278,15 @@ def _build(block: list[tuple[int, str]], stem: str, number: int, source: str) ->
     covered = 0  # last word id covered by a multiword range so far
     range_line = 0
     last_empty = (0, 0)
+    if _CONTROL_IN_BLOCK.search("\n".join(map(_second, block))) is not None:
+        for lineno, line in block:  # comments may hold anything but line breaks
+            if line[0] != "#" and _CONTROL.search(line) is not None:
+                cols = line.split("\t")
+                if len(cols) != _NCOLS:
+                    raise _Bad(
+                        f"expected {_NCOLS} tab-separated columns, found {len(cols)}", lineno
+                    )
+                raise _field_defect(cols, line, lineno) or _Bad("control character", lineno)
     for lineno, line in block:
         if line[0] == "#":
             key, sep, value = line[1:].partition("=")
@@ -282,7 +295,8 @@ def _build(block: list[tuple[int, str]], stem: str, number: int, source: str) ->
         cols = line.split("\t")
         if len(cols) != _NCOLS:
             raise _Bad(f"expected {_NCOLS} tab-separated columns, found {len(cols)}", lineno)
-        if "" in cols or _CONTROL.search(line) is not None or " " in line:
+        # An empty field is two tabs in a row, or a tab at either end (substring tests are fast).
+        if "\t\t" in line or line[0] == "\t" or line[-1] == "\t" or " " in line:
             defect = _field_defect(cols, line, lineno)
             if defect is not None:
                 raise defect
