@@ -171,14 +171,13 @@ def conllu_deep(depth: int) -> bytes:
 def build_readers(ud: Path, schemas: Path | None) -> dict[str, Reader]:
     """Every reader, with its seed read from the shared data and the sample lexicon."""
     from lexbuild.editions.diff import tei_snapshot
-    from lexbuild.editions.merge import read_induction, write_centroids
     from lexbuild.formats.lmf import to_lmf
     from lexbuild.formats.tei import read_tei, to_tei
     from lexbuild.formats.validate import validate_bytes
     from lexbuild.lexicon.sources import load_entry, load_lexicon
     from lexbuild.senses.calibrate import read_calibration
     from lexbuild.senses.evaluation import read_gold_conllu, read_gold_tsv
-    from lexbuild.senses.induce import read_assignments
+    from lexbuild.senses.induction_folder import read_assignments, read_induction, write_centroids
 
     conllu = _ud_slice(ud)
     lexicon = load_lexicon(SAMPLE).lexicon

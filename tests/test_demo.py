@@ -42,11 +42,14 @@ def test_demo_runs_offline_and_is_reproducible(
             assert merged_senses[sense.id].gloss == sense.gloss
             assert merged_senses[sense.id].status == sense.status
 
-    # The induced senses agree with the demo's gold labels well above chance (ARI 0): the
-    # embedded default measured a mean ARI of 0.298 over the 13 verbs (threshold calibrated on
-    # the demo corpus: 0.75); the floor leaves margin.
-    mean_ari = float(summary.split("mean over verbs:")[1].split("ari ")[1].split(",")[0])
-    assert mean_ari > 0.25
+    # The induced senses agree with the demo's gold labels well above chance (ARI 0), and the
+    # guide (sample_lexicon's curated senses) helps: measured 0.551 guided, 0.528 unguided over
+    # the 13 verbs; the floors leave margin.
+    table = summary.split("mean over verbs")[1].splitlines()
+    ari_row = next(line.split() for line in table if line.split()[:1] == ["ari"])
+    guided_ari, unguided_ari = float(ari_row[1]), float(ari_row[2])
+    assert guided_ari > 0.40
+    assert unguided_ari > 0.25
 
     # A second run on the same inputs gives byte-identical artefacts.
     assert main(["demo", "--output", str(output), "--schemas", str(schemas_dir)]) == 0

@@ -15,7 +15,7 @@ from pathlib import Path
 import yaml
 
 from lexbuild.senses.evaluation import UNDECIDED, bcubed, evaluate, read_gold_tsv
-from lexbuild.senses.induce import read_assignments
+from lexbuild.senses.induction_folder import read_assignments
 
 HERE = Path(__file__).resolve().parent
 
