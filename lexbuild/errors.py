@@ -85,3 +85,7 @@ class ReleaseError(LexbuildError, RuntimeError):
 
 class UnsafeXMLError(LexbuildError, ValueError):
     """An XML file uses entities, DTD tricks or sizes that lexbuild refuses to read."""
+
+
+class ClusterError(LexbuildError, RuntimeError):
+    """The Dask cluster cannot be reached, or a task failed there after its retries."""

@@ -75,6 +75,9 @@ def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) ->
         help="on a malformed sentence: stop (raise) or skip it and report it at the end",
     )
     parser.add_argument("--output", metavar="FILE", help="write here (atomically), not stdout")
+    from lexbuild.distributed import add_cluster_options
+
+    add_cluster_options(parser)
     parser.set_defaults(handler=run_frames)
 
 
@@ -109,6 +112,8 @@ def run_frames(args: argparse.Namespace) -> int:
     thresholds = FrameThresholds(
         min_count=args.min_count, min_share=args.min_share, merge_optional=not args.no_optional
     )
+    if args.workers is not None or args.scheduler is not None:
+        return _run_frames_distributed(args, thresholds)
     errors: list[CorpusError] = []
     stats: dict[str, list[int]] = {}
     occurrences = iter_occurrences(
@@ -120,6 +125,35 @@ def run_frames(args: argparse.Namespace) -> int:
         include_auxiliaries=args.include_aux,
     )
     table = count_frames(_with_progress(occurrences, stats), thresholds)
+    text = format_table(table, stats, args.format, len(errors), thresholds)
+    if args.output:
+        atomic_write_text(args.output, text)
+    else:
+        sys.stdout.write(text)
+    _report_errors(errors, sys.stderr)
+    return 1 if errors else 0
+
+
+def _run_frames_distributed(args: argparse.Namespace, thresholds: FrameThresholds) -> int:
+    """``frames`` with shards of the corpus read on a Dask cluster (same output)."""
+    from tqdm import tqdm
+
+    from lexbuild._atomic import atomic_write_text
+    from lexbuild.corpus.sharded import count_frames_sharded
+    from lexbuild.distributed import executor_from_args
+
+    with tqdm(unit=" shards", file=sys.stderr, disable=None, desc="frames") as bar:
+        with executor_from_args(args, on_done=bar.update) as executor:
+            assert executor is not None
+            table, stats, errors = count_frames_sharded(
+                args.corpus,
+                executor,
+                thresholds,
+                language=args.language,
+                lemmas=args.lemma,
+                on_error=args.on_error,
+                include_auxiliaries=args.include_aux,
+            )
     text = format_table(table, stats, args.format, len(errors), thresholds)
     if args.output:
         atomic_write_text(args.output, text)
