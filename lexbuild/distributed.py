@@ -1,4 +1,4 @@
-"""The Dask back-end: ``--workers N`` (a local cluster) or ``--scheduler ADDRESS`` (an existing one).
+"""The Dask back-end: ``--workers N`` (a local cluster) or ``--scheduler ADDRESS`` (a cluster).
 
 ``open_executor`` gives an executor for the stages' tasks: ``None`` when neither option is
 given (the stage runs in this process and Dask is never imported), else a ``DaskExecutor``
@@ -128,9 +128,10 @@ def open_executor(
     scheduler: str | None = None,
     *,
     on_done: Callable[[int], None] | None = None,
-    timeout: float = CONNECT_TIMEOUT,
+    timeout: float | None = None,
 ) -> Iterator[DaskExecutor | None]:
     """A Dask executor for ``--workers``/``--scheduler``; ``None`` (one process) without them."""
+    timeout = CONNECT_TIMEOUT if timeout is None else timeout
     if workers is None and scheduler is None:
         yield None
         return

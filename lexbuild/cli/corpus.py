@@ -142,18 +142,20 @@ def _run_frames_distributed(args: argparse.Namespace, thresholds: FrameThreshold
     from lexbuild.corpus.sharded import count_frames_sharded
     from lexbuild.distributed import executor_from_args
 
-    with tqdm(unit=" shards", file=sys.stderr, disable=None, desc="frames") as bar:
-        with executor_from_args(args, on_done=bar.update) as executor:
-            assert executor is not None
-            table, stats, errors = count_frames_sharded(
-                args.corpus,
-                executor,
-                thresholds,
-                language=args.language,
-                lemmas=args.lemma,
-                on_error=args.on_error,
-                include_auxiliaries=args.include_aux,
-            )
+    with (
+        tqdm(unit=" shards", file=sys.stderr, disable=None, desc="frames") as bar,
+        executor_from_args(args, on_done=lambda n: bar.update(n)) as executor,
+    ):
+        assert executor is not None
+        table, stats, errors = count_frames_sharded(
+            args.corpus,
+            executor,
+            thresholds,
+            language=args.language,
+            lemmas=args.lemma,
+            on_error=args.on_error,
+            include_auxiliaries=args.include_aux,
+        )
     text = format_table(table, stats, args.format, len(errors), thresholds)
     if args.output:
         atomic_write_text(args.output, text)

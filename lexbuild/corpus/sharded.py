@@ -17,7 +17,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from lexbuild.corpus.occurrences import Occurrence, extract_occurrences, profile_for
-from lexbuild.corpus.shards import Shard, iter_shard_sentences, plan_shards
+from lexbuild.corpus.shards import SHARD_BYTES, Shard, iter_shard_sentences, plan_shards
 from lexbuild.corpus.valency import FrameCount, FrameThresholds, select_frames
 from lexbuild.errors import CorpusError
 from lexbuild.lexicon.model import Slot, format_frame
@@ -101,7 +101,7 @@ def _jobs(
     spill: str | None = None,
     shard_bytes: int | None = None,
 ) -> list[CorpusPass]:
-    shards = plan_shards(paths) if shard_bytes is None else plan_shards(paths, shard_bytes=shard_bytes)
+    shards = plan_shards(paths, shard_bytes=shard_bytes or SHARD_BYTES)
     wanted = frozenset(lemmas) if lemmas is not None else None
     return [
         CorpusPass(shard, language, wanted, on_error, include_auxiliaries, spill, index)
@@ -112,7 +112,7 @@ def _jobs(
 def count_frames_sharded(
     paths: Iterable[str | Path],
     executor: Executor,
-    thresholds: FrameThresholds = FrameThresholds(),
+    thresholds: FrameThresholds | None = None,
     *,
     language: str = "fr",
     lemmas: Iterable[str] | None = None,
@@ -126,6 +126,7 @@ def count_frames_sharded(
     The same table as ``count_frames`` over ``iter_occurrences`` in one process; the first
     malformed sentence in reading order raises ``CorpusError`` (``on_error="raise"``).
     """
+    thresholds = thresholds or FrameThresholds()
     jobs = _jobs(
         paths, language=language, lemmas=lemmas, on_error=on_error,
         include_auxiliaries=include_auxiliaries, shard_bytes=shard_bytes,

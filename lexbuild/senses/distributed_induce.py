@@ -176,7 +176,7 @@ def _portable(representation: Representation) -> Representation:
     # A fresh copy without what this process loaded (vector tables, models): workers load
     # their own once per process.
     if dataclasses.is_dataclass(representation) and not isinstance(representation, type):
-        return dataclasses.replace(representation)  # type: ignore[return-value]
+        return dataclasses.replace(representation)
     return representation
 
 
