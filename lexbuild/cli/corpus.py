@@ -139,13 +139,17 @@ def _run_frames_distributed(args: argparse.Namespace, thresholds: FrameThreshold
     from tqdm import tqdm
 
     from lexbuild._atomic import atomic_write_text
+    from lexbuild.corpus.conllu import resolve_paths
     from lexbuild.corpus.sharded import count_frames_sharded
     from lexbuild.distributed import executor_from_args
 
-    with (
-        tqdm(unit=" shards", file=sys.stderr, disable=None, desc="frames") as bar,
-        executor_from_args(args, on_done=lambda n: bar.update(n)) as executor,
-    ):
+    resolve_paths(args.corpus)  # a missing file is reported before a cluster starts
+    bar = tqdm(unit=" shards", file=sys.stderr, disable=None, desc="frames")
+
+    def advance(n: int) -> None:
+        bar.update(n)  # fed by Dask: a shard's task finished on a worker
+
+    with bar, executor_from_args(args, on_done=advance) as executor:
         assert executor is not None
         table, stats, errors = count_frames_sharded(
             args.corpus,
