@@ -28,7 +28,7 @@ from lexbuild.errors import CorpusError, SourceLocation
 __all__ = ["Shard", "iter_shard_sentences", "plan_shards"]
 
 #: Bytes per shard: large enough that a task's start-up is negligible, small enough to spread.
-SHARD_BYTES = 32 * 1024 * 1024
+SHARD_BYTES = 16 * 1024 * 1024
 
 
 @dataclass(frozen=True)
