@@ -86,7 +86,7 @@ def run_demo(
     from lexbuild.demo_corpus import corpus_files, gold_labels_for, read_gold
     from lexbuild.editions.merge import merge_induction
     from lexbuild.editions.release import release
-    from lexbuild.formats.validate import validate_file
+    from lexbuild.formats.registry import ValidationContext, all_formats
     from lexbuild.lexicon.model import Status
     from lexbuild.lexicon.sources import load_lexicon, write_meta
     from lexbuild.senses.evaluation import evaluate
@@ -150,8 +150,11 @@ def run_demo(
     )
     # The published files, read back from disk as any user would check them.
     problems = sum(
-        len(validate_file(path, schemas_dir=schemas_dir))
-        for path in sorted(second.folder.glob("*.xml"))
+        len(output_format.validate(
+            (second.folder / output_format.file_name).read_bytes(),
+            ValidationContext(schemas_dir=schemas_dir, name=output_format.file_name),
+        ))
+        for output_format in all_formats()
     )
     senses_per_verb = {
         entry.lemma: sum(1 for s in entry.senses if s.status is not Status.RETIRED)

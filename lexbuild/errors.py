@@ -89,3 +89,8 @@ class UnsafeXMLError(LexbuildError, ValueError):
 
 class ClusterError(LexbuildError, RuntimeError):
     """The Dask cluster cannot be reached, or a task failed there after its retries."""
+
+
+class InductionFolderError(InductionError, MergeError, SourceError):
+    """An induction folder cannot be read (file, line and field named); caught as an
+    induction, merge or source error alike."""

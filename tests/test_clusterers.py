@@ -17,8 +17,9 @@ from sklearn.metrics.pairwise import cosine_similarity
 
 from lexbuild.errors import InductionError
 from lexbuild.senses.affinity import AffinityPropagationClusterer
-from lexbuild.senses.clustering import CLUSTERERS, Clusterer, get_clusterer
+from lexbuild.senses.clustering import Clusterer
 from lexbuild.senses.hdbscan import HdbscanClusterer
+from lexbuild.senses.registry import CLUSTERERS, get_clusterer
 from lexbuild.senses.settings import InductionSettings
 
 NO_MERGE: dict[str, Any] = {"min_cluster_size": 1, "min_cluster_share": 0.0}

@@ -22,7 +22,10 @@ def test_demo_runs_offline_and_is_reproducible(
     assert sorted(p.name for p in (output / "editions").iterdir()) == ["edition-1", "edition-2"]
     edition = output / "editions" / "edition-2"
     first = {path.name: path.read_bytes() for path in sorted(edition.iterdir())}
-    assert set(first) == {"changelog.md", "lexicon.lmf.xml", "lexicon.tei.xml", "manifest.json"}
+    assert set(first) == {
+        "changelog.md", "lexicon.lmf.xml", "lexicon.ontolex.ttl", "lexicon.tei.xml",
+        "manifest.json",
+    }
     # Published TEI Lex-0 RelaxNG + Schematron and LMF DTD rev. 16 (../shared/schemas).
     for name in ("lexicon.tei.xml", "lexicon.lmf.xml"):
         assert validate_file(edition / name, schemas_dir=schemas_dir) == []

@@ -27,15 +27,10 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from lexbuild.editions.merge import (
-    CENTROIDS_FILE,
-    InducedFolder,
     MergeSettings,
     match_senses,
     merge_induction,
     merge_lexicon,
-    read_centroids,
-    read_induction,
-    write_centroids,
 )
 from lexbuild.errors import SourceError
 from lexbuild.lexicon import ids, sources
@@ -51,6 +46,13 @@ from lexbuild.lexicon.model import (
     Status,
 )
 from lexbuild.senses.agglomerative import AgglomerativeClusterer as SenseClusterer
+from lexbuild.senses.induction_folder import (
+    CENTROIDS_FILE,
+    InducedFolder,
+    read_centroids,
+    read_induction,
+    write_centroids,
+)
 
 PROJECT = Path(__file__).resolve().parent.parent
 CORPUS = "brevenn"
@@ -703,9 +705,10 @@ def test_fallback_swap_and_recovery(
     tmp_path: Path, monkeypatch: pytest.MonkeyPatch, sample_lexicon_dir: Path
 ) -> None:
     """Where renameat2 is missing: two renames, and a crash between them is undone."""
+    import lexbuild._atomic as atomic_module
     import lexbuild.editions.merge as merge_module
 
-    monkeypatch.setattr(merge_module, "_exchange", lambda a, b: False)
+    monkeypatch.setattr(atomic_module, "exchange_dirs", lambda a, b: False)
     induced = build_induction(tmp_path / "ind", "r", {"hisser": [InducedSense(["h.1"])]})
     src = tmp_path / "src"
     shutil.copytree(sample_lexicon_dir, src)
@@ -714,7 +717,7 @@ def test_fallback_swap_and_recovery(
     assert sorted(p.name for p in tmp_path.iterdir()) == ["ind", "src"]
     # a crash after the first rename: the sources sit in the backup folder
     before = tree_digest(src)
-    backup = tmp_path / ".src.merge-backup"
+    backup = tmp_path / ".src.swap-backup"
     os.rename(src, backup)
     assert merge_module.recover_interrupted(src)
     assert tree_digest(src) == before and not backup.exists()

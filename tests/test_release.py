@@ -53,7 +53,7 @@ def test_same_sources_give_identical_bytes(tmp_path: Path, schemas_dir: Path) ->
     assert first == second
     assert sorted(first) == sorted(
         f"edition-{n}/{name}" for n in (1, 2)
-        for name in (CHANGELOG_FILE, LMF_FILE, MANIFEST_FILE, TEI_FILE)
+        for name in (CHANGELOG_FILE, LMF_FILE, MANIFEST_FILE, TEI_FILE, "lexicon.ontolex.ttl")
     )
 
 

@@ -17,7 +17,7 @@ from lexbuild.cli.induce import (
     settings_from_args,
     update_bar,
 )
-from lexbuild.senses.clustering import CLUSTERERS
+from lexbuild.senses.registry import CLUSTERERS
 
 __all__ = ["register"]
 

@@ -8,7 +8,7 @@ import sys
 from pathlib import Path
 from typing import Any
 
-from lexbuild.senses.clustering import CLUSTERERS
+from lexbuild.senses.registry import CLUSTERERS
 from lexbuild.senses.settings import CALIBRATE, InductionSettings
 
 __all__ = [

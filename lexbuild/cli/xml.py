@@ -1,4 +1,5 @@
-"""``lexbuild export`` and ``lexbuild validate``: publish the sources as XML, check XML files.
+"""``lexbuild export`` and ``lexbuild validate``: publish the sources in a registered format
+(``lexbuild.formats.registry``: TEI Lex-0, LMF, OntoLex-Lemon), check published files.
 
 ``export`` refuses to write anything while the sources have check errors or the export does not
 validate (published schemas + the lexicon's extra schemas); each validation problem is shown
@@ -13,19 +14,21 @@ from pathlib import Path
 from typing import Any
 
 from lexbuild.cli.common import EXIT_FINDINGS, EXIT_OK, add_schemas_option
+from lexbuild.formats.registry import FORMAT_MODULES
 
 
 def register(subparsers: Any) -> None:
     export = subparsers.add_parser(
         "export",
-        help="write the sources as TEI Lex-0 or LMF, validated",
-        description="Check the sources, export them as TEI Lex-0 or LMF rev. 16, validate the "
-        "result against the published schemas (and the lexicon's extra schemas), then write it "
+        help="write the sources as TEI Lex-0, LMF or OntoLex-Lemon, validated",
+        description="Check the sources, export them as TEI Lex-0, LMF rev. 16 or OntoLex-Lemon "
+        "(Turtle), validate the result against the published schemas (and the lexicon's extra "
+        "schemas; OntoLex-Lemon: the project's SHACL shapes), then write it "
         "atomically. Exit 0 when written, 1 when check errors or validation problems stopped "
         "the export (nothing is written), 2 on a usage or I/O error.",
     )
     export.add_argument("sources", type=Path, help="folder holding lexicon.yaml and entries/")
-    export.add_argument("--format", choices=("tei", "lmf"), required=True)
+    export.add_argument("--format", choices=tuple(FORMAT_MODULES), required=True)
     export.add_argument("--output", type=Path, required=True, help="file to write")
     add_schemas_option(export)
     export.add_argument(
@@ -50,11 +53,13 @@ def register(subparsers: Any) -> None:
 
     validate = subparsers.add_parser(
         "validate",
-        help="validate TEI Lex-0 or LMF files against the published schemas",
-        description="Recognise each file's format (TEI Lex-0 or LMF rev. 16) and validate it "
-        "against the published schemas. With --sources, the lexicon's extra schemas apply too "
-        "and problems are traced back to the YAML file and line. Exit 0 when every file is "
-        "valid, 1 when a problem was found, 2 on a usage or I/O error.",
+        help="validate TEI Lex-0, LMF or OntoLex-Lemon files",
+        description="Recognise each file's format (TEI Lex-0 or LMF rev. 16 by the root "
+        "element, OntoLex-Lemon by the .ttl ending) and validate it against the published "
+        "schemas (OntoLex-Lemon: the project's SHACL shapes). With --sources, the lexicon's "
+        "extra schemas apply too and problems are traced back to the YAML file and line. "
+        "Exit 0 when every file is valid, 1 when a problem was found, 2 on a usage or I/O "
+        "error.",
     )
     validate.add_argument("files", type=Path, nargs="+", metavar="FILE")
     add_schemas_option(validate)
@@ -68,8 +73,8 @@ def register(subparsers: Any) -> None:
 def run_export(args: argparse.Namespace) -> int:
     from lexbuild._atomic import atomic_write_bytes
     from lexbuild.errors import SourceError
+    from lexbuild.formats.registry import ValidationContext, get_format
     from lexbuild.formats.validate import findings_text as xml_findings_text
-    from lexbuild.formats.validate import validate_bytes
     from lexbuild.lexicon.checks import (
         check_lexicon,
         findings_text,
@@ -87,33 +92,34 @@ def run_export(args: argparse.Namespace) -> int:
         print(f"lexbuild export: nothing written to {args.output}", file=sys.stderr)
         return EXIT_FINDINGS
     lexicon = loaded.lexicon
-    if args.format == "tei":
-        from lexbuild.formats.tei import to_tei
-
-        data = to_tei(lexicon, changes=args.change)
-    else:
-        from lexbuild.formats.lmf import to_lmf
-
-        data = to_lmf(lexicon)
-    problems_found = validate_bytes(
+    output_format = get_format(args.format)
+    data = output_format.write(lexicon, args.change)
+    problems_found = output_format.validate(
         data,
-        schemas_dir=args.schemas,
-        extra_schemas=lexicon.meta.extra_schemas,
-        name=f"{args.output} (not written)",
-        source_map=loaded.source_map,
-        base_dir=loaded.root,
+        ValidationContext(
+            schemas_dir=args.schemas,
+            extra_schemas=tuple(lexicon.meta.extra_schemas),
+            name=f"{args.output} (not written)",
+            source_map=loaded.source_map,
+            base_dir=loaded.root,
+        ),
     )
     if problems_found:
         sys.stdout.write(xml_findings_text(problems_found))
         print(f"lexbuild export: nothing written to {args.output}", file=sys.stderr)
         return EXIT_FINDINGS
     atomic_write_bytes(args.output, data)
-    print(f"{args.output}: {args.format.upper()} export of {len(lexicon.entries)} entries, valid")
+    print(
+        f"{args.output}: {output_format.title} export of {len(lexicon.entries)} entries, valid"
+    )
     return EXIT_OK
 
 
 def run_validate(args: argparse.Namespace) -> int:
-    from lexbuild.formats.validate import XmlFinding, findings_json, findings_text, validate_file
+    from lexbuild.errors import UnsafeXMLError
+    from lexbuild.formats.registry import ValidationContext, format_for_file
+    from lexbuild.formats.validate import XmlFinding, findings_json, findings_text
+    from lexbuild.formats.xmlsafe import DEFAULT_MAX_BYTES
 
     source_map = None
     extra_schemas: list[Any] = []
@@ -127,12 +133,21 @@ def run_validate(args: argparse.Namespace) -> int:
         base_dir = loaded.root
     findings: list[XmlFinding] = []
     for path in args.files:
-        findings += validate_file(
-            path,
-            schemas_dir=args.schemas,
-            source_map=source_map,
-            extra_schemas=extra_schemas,
-            base_dir=base_dir,
+        output_format = format_for_file(path)
+        size = path.stat().st_size
+        if size > DEFAULT_MAX_BYTES:
+            raise UnsafeXMLError(
+                f"{path}: {size} bytes is over the limit of {DEFAULT_MAX_BYTES} bytes"
+            )
+        findings += output_format.validate(
+            path.read_bytes(),
+            ValidationContext(
+                schemas_dir=args.schemas,
+                extra_schemas=tuple(extra_schemas),
+                name=str(path),
+                source_map=source_map,
+                base_dir=base_dir,
+            ),
         )
     if args.format == "json":
         sys.stdout.write(findings_json(findings))

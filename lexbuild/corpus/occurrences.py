@@ -21,6 +21,7 @@ The slot rules are listed at the head of the extraction section below.
 
 from __future__ import annotations
 
+import unicodedata
 from collections.abc import Iterable, Iterator
 from dataclasses import dataclass, field
 from functools import lru_cache
@@ -467,7 +468,8 @@ def extract_occurrences(
         ordered = tuple(sorted(arguments.values(), key=lambda a: slot_sort_key(a.slot)))
         result.append(
             Occurrence(
-                lemma=token.lemma,
+                # NFC once, here where the lemma enters the pipeline (sources do the same).
+                lemma=unicodedata.normalize("NFC", token.lemma),
                 sentence_id=sentence.id,
                 source=sentence.source,
                 text=sentence.text,
@@ -513,10 +515,12 @@ def iter_occurrences(
 ) -> Iterator[Occurrence]:
     """Stream the verb occurrences of a corpus, optionally only those of some lemmas."""
     profile = profile_for(language)
-    wanted = frozenset(lemmas) if lemmas is not None else None
+    wanted = None if lemmas is None else frozenset(unicodedata.normalize("NFC", x) for x in lemmas)
     for sentence in iter_sentences(paths, on_error=on_error, errors=errors):
         # Skip whole sentences without a wanted lemma: extraction costs far more than this.
-        if wanted is not None and not any(t.lemma in wanted for t in sentence.tokens):
+        if wanted is not None and not any(
+            unicodedata.normalize("NFC", t.lemma) in wanted for t in sentence.tokens
+        ):
             continue
         for occurrence in extract_occurrences(
             sentence, profile, include_auxiliaries=include_auxiliaries

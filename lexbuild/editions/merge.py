@@ -1,7 +1,9 @@
 """Bring an induction result into the curated YAML sources without losing an editor's work.
 
 Inputs: an induction folder (``induction.json``, ``entries/*.yaml``, ``centroids.npz``,
-``assignments.tsv``; see ``lexbuild.senses.induce``) and a sources folder.
+``assignments.tsv``; read by ``lexbuild.senses.induction_folder``) and a sources folder. The
+similarity and the one-to-one matching live in ``lexbuild.editions.matching``, the report in
+``lexbuild.editions.merge_report``, the folder swap in ``lexbuild._atomic``.
 
 Matching. For each induced verb, the induced senses are matched one-to-one to the existing
 senses of the entries with the same lemma and part of speech, by the Hungarian method
@@ -42,36 +44,39 @@ Flags with those three prefixes are the merge's own: each merge recomputes them 
 it touches; other flags are left alone.
 
 Atomicity: the whole sources folder is copied to a staging sibling, updated there, and swapped in
-with one ``renameat2(RENAME_EXCHANGE)`` where the system has it (Linux); elsewhere two renames
-with a backup folder that ``recover_interrupted`` puts back. An interrupted merge leaves the
-sources untouched or fully merged; a staging folder ``.<name>.*.partial`` may be left behind and
-can be deleted. One merge at a time: an advisory lock (``flock``) on the sources folder refuses
-a second concurrent merge and dies with its process. ``LEXBUILD_MERGE_PAUSE`` (seconds) sleeps
-after each staged file: a test hook to interrupt a merge half-way.
+by ``_atomic.swap_dir``: one ``renameat2(RENAME_EXCHANGE)`` where the system has it (Linux);
+elsewhere two renames with a backup folder that ``recover_interrupted`` puts back. An
+interrupted merge leaves the sources untouched or fully merged; a staging folder
+``.<name>.*.partial`` may be left behind and can be deleted. One merge at a time: an advisory
+lock (``flock``) on the sources folder refuses a second concurrent merge and dies with its
+process. ``LEXBUILD_MERGE_PAUSE`` (seconds) sleeps after each staged file: a test hook to
+interrupt a merge half-way.
 """
 
 from __future__ import annotations
 
 import contextlib
-import csv
-import ctypes
-import errno
-import io
-import json
 import os
 import shutil
 import time
-import zipfile
-from collections.abc import Iterable, Iterator, Mapping, Sequence
-from dataclasses import asdict, dataclass, field
+from collections.abc import Iterator, Mapping, Sequence
+from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
 
 import numpy as np
 import numpy.typing as npt
 
-from lexbuild._atomic import atomic_write_bytes, staging_dir
-from lexbuild.errors import MergeError, SourceError, SourceLocation
+from lexbuild._atomic import recover_swap, staging_dir, swap_dir
+from lexbuild.editions.matching import (
+    MergeSettings,
+    combined_similarity,
+    example_key,
+    match_senses,
+    sentence_of,
+)
+from lexbuild.editions.matching import cosine as centroid_cosine
+from lexbuild.editions.merge_report import MergeReport, SenseMatch
+from lexbuild.errors import MergeError, SourceLocation
 from lexbuild.lexicon import ids
 from lexbuild.lexicon.model import (
     Corpus,
@@ -83,25 +88,25 @@ from lexbuild.lexicon.model import (
     Sense,
     Status,
 )
-from lexbuild.lexicon.sources import load_entry
+from lexbuild.senses.induction_folder import (
+    CENTROIDS_FILE,
+    InducedFolder,
+    read_centroids,
+    read_induction,
+    write_centroids,
+)
 
 __all__ = [
-    "CENTROIDS_FILE",
     "FLAG_PREFIXES",
-    "InducedFolder",
     "MergeReport",
     "MergeSettings",
     "SenseMatch",
     "match_senses",
     "merge_induction",
     "merge_lexicon",
-    "read_centroids",
-    "read_induction",
     "recover_interrupted",
-    "write_centroids",
 ]
 
-CENTROIDS_FILE = "centroids.npz"
 PAUSE_ENV = "LEXBUILD_MERGE_PAUSE"
 UNSUPPORTED = "unsupported:"
 SPLIT_FROM = "split-from:"
@@ -110,286 +115,6 @@ FLAG_PREFIXES = (UNSUPPORTED, SPLIT_FROM, MERGE_INTO)
 
 Vector = npt.NDArray[np.float32]
 Sentence = tuple[str, str]  # (corpus, sentence id)
-
-
-@dataclass(frozen=True)
-class MergeSettings:
-    min_similarity: float = 0.5  # below it an induced sense is not the same as an existing one
-    example_weight: float = 0.5  # weight of shared examples vs centroid cosine, both known
-    max_examples: int = 5  # example candidates are added while a sense has fewer than this
-    split_min_examples: int = 1  # shared examples needed to report a split or merge branch
-
-    def __post_init__(self) -> None:
-        if not 0.0 <= self.example_weight <= 1.0:
-            raise MergeError(f"example_weight must be in [0, 1], got {self.example_weight}")
-        if self.max_examples < 0 or self.split_min_examples < 1:
-            raise MergeError("max_examples must be >= 0 and split_min_examples >= 1")
-
-
-# --------------------------------------------------------------------------- induction folder
-
-
-@dataclass
-class InducedFolder:
-    """An induction folder read into memory."""
-
-    settings: dict[str, Any]
-    entries: list[Entry]
-    centroids: dict[str, Vector]
-    assignments: dict[str, set[Sentence]]  # induced sense id -> clustered sentences
-
-    @property
-    def run(self) -> str:
-        return str(self.settings.get("run") or self.settings.get("run_id") or "unknown")
-
-
-def read_centroids(path: str | Path) -> dict[str, Vector]:
-    """Sense id -> float32 vector from an ``.npz`` file (empty when the file is absent)."""
-    where = Path(path)
-    if not where.is_file():
-        return {}
-    try:
-        with np.load(where, allow_pickle=False) as data:
-            return {key: np.asarray(data[key], dtype=np.float32) for key in data.files}
-    except (OSError, ValueError, zipfile.BadZipFile) as error:
-        raise SourceError(f"cannot read centroids: {error}", SourceLocation(str(where))) from None
-
-
-def write_centroids(path: str | Path, centroids: Mapping[str, Vector]) -> None:
-    """Deterministic ``.npz`` (sorted keys, fixed zip timestamps), written atomically."""
-    buffer = io.BytesIO()
-    with zipfile.ZipFile(buffer, "w", compression=zipfile.ZIP_STORED) as archive:
-        for key in sorted(centroids):
-            info = zipfile.ZipInfo(f"{key}.npy", date_time=(1980, 1, 1, 0, 0, 0))
-            array = io.BytesIO()
-            np.lib.format.write_array(array, np.asarray(centroids[key], dtype=np.float32))
-            archive.writestr(info, array.getvalue())
-    atomic_write_bytes(path, buffer.getvalue())
-
-
-_ASSIGNMENT_HEADER = ("lemma", "sense", "corpus", "sent_id", "token")
-
-
-def _read_assignments(path: Path) -> dict[str, set[Sentence]]:
-    """Induced sense id -> clustered (corpus, sentence) pairs, from a TSV in csv quoting."""
-    found: dict[str, set[Sentence]] = {}
-    if not path.is_file():
-        return found
-    with path.open(encoding="utf-8", newline="") as handle:
-        reader = csv.reader(handle, delimiter="\t")
-        try:
-            for cells in reader:
-                number = reader.line_num
-                if number == 1:
-                    if tuple(cells) != _ASSIGNMENT_HEADER:
-                        raise SourceError(
-                            f"header must be {' '.join(_ASSIGNMENT_HEADER)} (tab-separated), "
-                            f"got {' '.join(cells)!r}",
-                            SourceLocation(str(path), 1),
-                        )
-                    continue
-                if not cells:
-                    continue
-                if len(cells) != len(_ASSIGNMENT_HEADER):
-                    raise SourceError(
-                        f"expected {len(_ASSIGNMENT_HEADER)} tab-separated fields "
-                        f"({', '.join(_ASSIGNMENT_HEADER)}), got {len(cells)}",
-                        SourceLocation(str(path), number),
-                    )
-                found.setdefault(cells[1], set()).add((cells[2], cells[3]))
-        except csv.Error as error:
-            raise SourceError(f"bad TSV: {error}",
-                              SourceLocation(str(path), reader.line_num)) from None
-    return found
-
-
-def read_induction(folder: str | Path) -> InducedFolder:
-    """Read an induction folder; errors name the file (and line for the TSV)."""
-    root = Path(folder)
-    settings_path = root / "induction.json"
-    if not settings_path.is_file():
-        raise MergeError(
-            f"{root} is not an induction folder: induction.json is missing (run "
-            "`lexbuild induce` to make one)",
-            SourceLocation(str(settings_path)),
-        )
-    try:
-        settings = json.loads(settings_path.read_text(encoding="utf-8"))
-    except (ValueError, UnicodeDecodeError) as error:
-        raise MergeError(f"invalid JSON: {error}", SourceLocation(str(settings_path))) from None
-    if not isinstance(settings, dict):
-        raise MergeError("expected a JSON object", SourceLocation(str(settings_path)))
-    entries = [load_entry(path) for path in sorted((root / "entries").glob("*.yaml"))]
-    return InducedFolder(
-        settings=settings,
-        entries=entries,
-        centroids=read_centroids(root / CENTROIDS_FILE),
-        assignments=_read_assignments(root / "assignments.tsv"),
-    )
-
-
-# ------------------------------------------------------------------------------ the report
-
-
-@dataclass(frozen=True)
-class SenseMatch:
-    entry: str
-    induced: str
-    sense: str
-    similarity: float
-    shared_examples: float | None
-    cosine: float | None
-
-
-@dataclass
-class MergeReport:
-    run: str
-    dry_run: bool = False
-    entries_added: list[str] = field(default_factory=list)
-    entries_skipped: list[dict[str, str]] = field(default_factory=list)
-    matched: list[SenseMatch] = field(default_factory=list)
-    senses_added: list[dict[str, str]] = field(default_factory=list)
-    unsupported: list[str] = field(default_factory=list)
-    frames_added: list[dict[str, str]] = field(default_factory=list)
-    frequencies_refreshed: list[dict[str, Any]] = field(default_factory=list)
-    examples_added: list[dict[str, str]] = field(default_factory=list)
-    splits: list[dict[str, Any]] = field(default_factory=list)
-    merges: list[dict[str, Any]] = field(default_factory=list)
-    corpora_declared: list[str] = field(default_factory=list)
-    corpora_undeclared: list[str] = field(default_factory=list)
-    files_written: list[str] = field(default_factory=list)
-
-    def as_dict(self) -> dict[str, Any]:
-        data = asdict(self)
-        data["summary"] = {
-            key: len(value) for key, value in data.items() if isinstance(value, list)
-        }
-        return data
-
-    def to_json(self) -> str:
-        return json.dumps(self.as_dict(), ensure_ascii=False, indent=2, sort_keys=True) + "\n"
-
-    def to_markdown(self) -> str:
-        title = "Merge report (dry run: nothing written)" if self.dry_run else "Merge report"
-        lines = [f"# {title}", "", f"Induction run: `{self.run}`", "", "## Summary", ""]
-        lines += ["| item | count |", "|---|---:|"]
-        summary = self.as_dict()["summary"]
-        lines += [f"| {key.replace('_', ' ')} | {count} |" for key, count in summary.items()]
-
-        def section(name: str, rows: Iterable[str]) -> None:
-            items = list(rows)
-            if items:
-                lines.extend(["", f"## {name}", "", *items])
-
-        section("Entries added", (f"- `{e}`" for e in self.entries_added))
-        section(
-            "Entries skipped",
-            (f"- `{row['entry']}`: {row['reason']}" for row in self.entries_skipped),
-        )
-        section(
-            "Senses matched",
-            (
-                f"- `{m.induced}` -> `{m.sense}` (similarity {m.similarity:.3f}; shared "
-                f"examples {_fmt(m.shared_examples)}, centroid cosine {_fmt(m.cosine)})"
-                for m in self.matched
-            ),
-        )
-        section(
-            "Senses added (draft)",
-            (f"- `{row['sense']}` from induced `{row['induced']}`" for row in self.senses_added),
-        )
-        section(
-            "Senses no longer supported (flagged, kept)",
-            (f"- `{sense}`" for sense in self.unsupported),
-        )
-        section(
-            "Proposed splits (for the editor to confirm)",
-            (
-                f"- `{row['sense']}` -> " + ", ".join(f"`{s}`" for s in row["into"])
-                for row in self.splits
-            ),
-        )
-        section(
-            "Proposed merges (for the editor to confirm)",
-            (
-                ", ".join(f"`{s}`" for s in row["senses"]) + f" -> `{row['into']}`"
-                for row in self.merges
-            ),
-        )
-        section(
-            "Frames added",
-            (f"- `{row['frame']}` `{row['pattern']}`" for row in self.frames_added),
-        )
-        section(
-            "Frequencies refreshed",
-            (
-                f"- `{row['frame']}`: {row['old']} -> {row['new']}"
-                for row in self.frequencies_refreshed
-            ),
-        )
-        section(
-            "Example candidates added",
-            (f"- `{row['example']}` ({row['source']})" for row in self.examples_added),
-        )
-        section("Corpora declared in lexicon.yaml",
-                (f"- `{name}`" for name in self.corpora_declared))
-        section("Corpora cited but not declarable (not an XML name)",
-                (f"- `{name}`" for name in self.corpora_undeclared))
-        section("Files written", (f"- {name}" for name in self.files_written))
-        return "\n".join(lines) + "\n"
-
-
-def _fmt(value: float | None) -> str:
-    return "n/a" if value is None else f"{value:.3f}"
-
-
-# ------------------------------------------------------------------------------- matching
-
-
-def _sentences(example: Example) -> Sentence | None:
-    return (example.source.corpus, example.source.sentence) if example.source else None
-
-
-def _example_key(example: Example) -> tuple[str, str]:
-    ref = _sentences(example)
-    return ref if ref is not None else ("", example.text)
-
-
-def _cosine(a: Vector | None, b: Vector | None) -> float | None:
-    if a is None or b is None or a.shape != b.shape:
-        return None
-    norm = float(np.linalg.norm(a) * np.linalg.norm(b))
-    return float(np.dot(a, b) / norm) if norm > 0 else None
-
-
-def _similarity(
-    shared: float | None, cosine: float | None, settings: MergeSettings
-) -> float:
-    if shared is not None and cosine is not None:
-        w = settings.example_weight
-        return w * shared + (1 - w) * cosine
-    if shared is not None:
-        return shared
-    if cosine is not None:
-        return cosine
-    return 0.0
-
-
-def match_senses(similarity: npt.NDArray[np.float64], minimum: float) -> list[tuple[int, int]]:
-    """One-to-one pairs (row, column) maximising the total similarity, each >= ``minimum``.
-
-    Pairs under the minimum are cut before the assignment (their similarity set to a value that
-    no pair prefers), so that a weak pair never displaces a strong one elsewhere.
-    """
-    from scipy.optimize import linear_sum_assignment
-
-    if similarity.size == 0:
-        return []
-    weights = np.where(similarity >= minimum, similarity, 0.0)
-    rows, cols = linear_sum_assignment(weights, maximize=True)
-    return sorted(
-        (int(r), int(c)) for r, c in zip(rows, cols, strict=True) if similarity[r, c] >= minimum
-    )
 
 
 # -------------------------------------------------------------------------------- merging
@@ -477,7 +202,7 @@ def _candidates(
     for example in induced.examples:
         if have + len(added) >= settings.max_examples:
             break
-        key = _example_key(example)
+        key = example_key(example)
         if key in cited:
             continue
         cited.add(key)
@@ -541,13 +266,13 @@ def _coverage(
     seen: dict[Sentence, int] = {}
     for sense in induced:
         sentences = set(result.assignments.get(sense.id, set()))
-        sentences.update(ref for ref in map(_sentences, sense.examples) if ref is not None)
+        sentences.update(ref for ref in map(sentence_of, sense.examples) if ref is not None)
         clustered.append(sentences)
         for sentence in sentences:
             seen[sentence] = seen.get(sentence, 0) + 1
     usable = {sentence for sentence, count in seen.items() if count == 1}
     existing_sentences = [
-        {ref for ref in map(_sentences, sense.examples) if ref is not None} & usable
+        {ref for ref in map(sentence_of, sense.examples) if ref is not None} & usable
         for sense in existing
     ]
     shared = np.zeros((len(induced), len(existing)), dtype=np.int64)
@@ -584,12 +309,12 @@ def _merge_entry(
             vector = result.centroids.get(new.id)
         for j, old in enumerate(existing):
             share = shared[i, j] / covered[j] if covered[j] else None
-            cosine = _cosine(vector, centroids.get(old.id))
+            cosine = centroid_cosine(vector, centroids.get(old.id))
             details[i, j] = (share, cosine)
-            similarity[i, j] = _similarity(share, cosine, settings)
+            similarity[i, j] = combined_similarity(share, cosine, settings)
     pairs = match_senses(similarity, settings.min_similarity)
     matched_of_induced = dict(pairs)
-    cited = {_example_key(x) for entry in targets for s in entry.senses for x in s.examples}
+    cited = {example_key(x) for entry in targets for s in entry.senses for x in s.examples}
     updated = list(existing)
     result_id: dict[int, str] = {}
     for i, j in pairs:
@@ -659,9 +384,10 @@ def merge_lexicon(
     lexicon: Lexicon,
     centroids: Mapping[str, Vector],
     result: InducedFolder,
-    settings: MergeSettings = MergeSettings(),
+    settings: MergeSettings | None = None,
 ) -> tuple[Lexicon, dict[str, Vector], MergeReport]:
     """The merged lexicon, the sources' new centroid table, and the report (pure function)."""
+    settings = settings or MergeSettings()
     report = MergeReport(run=result.run)
     pools = _Pools(lexicon.all_ids())
     retired = set(lexicon.meta.retired_ids)
@@ -751,46 +477,9 @@ def _declare_corpora(
 # ----------------------------------------------------------------------------- on disk
 
 
-def _backup_name(sources: Path) -> Path:
-    return sources.with_name(f".{sources.name}.merge-backup")
-
-
 def recover_interrupted(sources: str | Path) -> bool:
-    """Put the sources back after a crash inside the two-rename fallback swap."""
-    root = Path(sources)
-    backup = _backup_name(root)
-    if backup.is_dir() and not root.exists():
-        os.rename(backup, root)
-        return True
-    if backup.is_dir() and root.is_dir():  # the swap completed; only the cleanup was lost
-        shutil.rmtree(backup)
-    return False
-
-
-def _exchange(a: Path, b: Path) -> bool:
-    """Atomically swap two folders (Linux renameat2 RENAME_EXCHANGE); False if unsupported."""
-    try:
-        libc = ctypes.CDLL(None, use_errno=True)
-        renameat2 = libc.renameat2
-    except (OSError, AttributeError):
-        return False
-    at_fdcwd, rename_exchange = -100, 2
-    if renameat2(at_fdcwd, os.fsencode(a), at_fdcwd, os.fsencode(b), rename_exchange) == 0:
-        return True
-    code = ctypes.get_errno()
-    if code in (errno.ENOSYS, errno.EINVAL, errno.EOPNOTSUPP):
-        return False
-    raise OSError(code, f"cannot swap {a} and {b}: {os.strerror(code)}")
-
-
-def _swap_in(stage: Path, sources: Path) -> None:
-    if _exchange(stage, sources):
-        shutil.rmtree(stage)  # now holds the old sources
-        return
-    backup = _backup_name(sources)
-    os.rename(sources, backup)
-    os.rename(stage, sources)
-    shutil.rmtree(backup)
+    """Put the sources back after a crash inside the folder swap (``_atomic.recover_swap``)."""
+    return recover_swap(sources)
 
 
 def _pause() -> None:
@@ -803,10 +492,11 @@ def merge_induction(
     induced: str | Path,
     sources: str | Path,
     *,
-    settings: MergeSettings = MergeSettings(),
+    settings: MergeSettings | None = None,
     dry_run: bool = False,
 ) -> MergeReport:
     """Merge the induction folder ``induced`` into the sources folder ``sources``."""
+    settings = settings or MergeSettings()
     root = Path(sources)
     recover_interrupted(root)
     with _merge_lock(root):
@@ -880,7 +570,7 @@ def _merge_locked(
         if centroids_changed:
             write_centroids(stage / CENTROIDS_FILE, centroids)
             _pause()
-        _swap_in(stage, root)
+        swap_dir(stage, root)
     with contextlib.suppress(FileNotFoundError):
         shutil.rmtree(stage)
     return report

@@ -3,8 +3,9 @@
 ``release(sources, edition=N, output=DIR)``:
 
 1. load the sources and run the consistency checks: any error stops the release;
-2. export TEI Lex-0 and LMF and validate both against the published schemas (plus the project's
-   ``extra_schemas``): any problem stops the release;
+2. write every registered format (``lexbuild.formats.registry``: TEI Lex-0, LMF, OntoLex-Lemon)
+   and validate each (published schemas plus the project's ``extra_schemas``; OntoLex-Lemon:
+   the project's SHACL shapes): any problem stops the release;
 3. compare with the previous edition in ``DIR`` (the highest number below N, read back from its
    TEI file) with ``lexbuild.editions.diff``: the change log goes to ``changelog.md`` and, as
    summary and change lines, into the TEI header's ``revisionDesc``;
@@ -12,7 +13,8 @@
    the published schemas, and the induction settings and model identifiers recorded in the
    sources' senses.
 
-Layout: ``DIR/edition-N/{lexicon.tei.xml, lexicon.lmf.xml, changelog.md, manifest.json}``. The
+Layout: ``DIR/edition-N/{lexicon.tei.xml, lexicon.lmf.xml, lexicon.ontolex.ttl, changelog.md,
+manifest.json}``. The
 edition folder is written in a staging sibling and renamed into place at the end: it appears
 whole or not at all, and a failed release leaves earlier editions as they were. Nothing depends
 on the clock: the date is ``--date`` or the sources' ``release_date``, so the same sources give
@@ -29,18 +31,15 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from lexbuild._atomic import replace_dir_atomically, staging_dir
-from lexbuild.editions.diff import (
-    LexiconDiff,
-    change_lines,
-    count_items,
-    diff_snapshots,
-    summary_lines,
-    tei_snapshot,
-)
-from lexbuild.editions.diff import to_markdown as diff_markdown
+from lexbuild._atomic import staging_dir, swap_dir
+from lexbuild.editions.changes import LexiconDiff
+from lexbuild.editions.diff import diff_snapshots
+from lexbuild.editions.diff_report import change_lines, summary_lines
+from lexbuild.editions.diff_report import to_markdown as diff_markdown
 from lexbuild.errors import ReleaseError
+from lexbuild.formats.tei import tei_snapshot
 from lexbuild.lexicon.model import Lexicon
+from lexbuild.lexicon.snapshot import count_items
 
 __all__ = [
     "CHANGELOG_FILE",
@@ -57,7 +56,7 @@ __all__ = [
 ]
 
 EDITION_PREFIX = "edition-"
-TEI_FILE = "lexicon.tei.xml"
+TEI_FILE = "lexicon.tei.xml"  # the TEI format's file name: earlier editions are read from it
 LMF_FILE = "lexicon.lmf.xml"
 CHANGELOG_FILE = "changelog.md"
 MANIFEST_FILE = "manifest.json"
@@ -157,11 +156,9 @@ def release(
 ) -> ReleaseResult:
     """Check, export, validate and publish ``output/edition-<edition>``; see the module doc."""
     from lexbuild import __version__
-    from lexbuild.formats.lmf import to_lmf
+    from lexbuild.formats.registry import ValidationContext, all_formats
     from lexbuild.formats.schemastore import checksums
-    from lexbuild.formats.tei import SUPPORTED_VERSIONS as TEI_VERSIONS
     from lexbuild.formats.tei import to_tei
-    from lexbuild.formats.validate import validate_bytes
     from lexbuild.lexicon.checks import Severity, check_lexicon, has_errors
     from lexbuild.lexicon.sources import load_lexicon
 
@@ -208,22 +205,21 @@ def release(
     else:
         changelog = _first_changelog(edition, counts)
         tei_changes = [changelog.splitlines()[-1]]
-    tei = to_tei(lexicon, changes=tei_changes)
-    lmf = to_lmf(lexicon)
+    published = {
+        output_format.file_name: (output_format, output_format.write(lexicon, tei_changes))
+        for output_format in all_formats()
+    }
 
     problems: list[str] = []
-    for name, data in ((TEI_FILE, tei), (LMF_FILE, lmf)):
-        problems += [
-            str(finding)
-            for finding in validate_bytes(
-                data,
-                schemas_dir=schemas_dir,
-                extra_schemas=meta.extra_schemas,
-                name=name,
-                source_map=loaded.source_map,
-                base_dir=loaded.root,
-            )
-        ]
+    for name, (output_format, data) in published.items():
+        context = ValidationContext(
+            schemas_dir=schemas_dir,
+            extra_schemas=tuple(meta.extra_schemas),
+            name=name,
+            source_map=loaded.source_map,
+            base_dir=loaded.root,
+        )
+        problems += [str(finding) for finding in output_format.validate(data, context)]
     if problems:
         raise ReleaseRefused(
             f"{len(problems)} validation problem(s); nothing was published:\n"
@@ -232,10 +228,10 @@ def release(
         )
 
     artefacts = {
-        TEI_FILE: (tei, f"TEI Lex-0 {TEI_VERSIONS[-1]}"),
-        LMF_FILE: (lmf, "LMF (ISO 24613:2008, DTD rev. 16)"),
-        CHANGELOG_FILE: (changelog.encode("utf-8"), "change log (Markdown)"),
+        name: (data, output_format.description)
+        for name, (output_format, data) in published.items()
     }
+    artefacts[CHANGELOG_FILE] = (changelog.encode("utf-8"), "change log (Markdown)")
     manifest: dict[str, Any] = {
         "manifest": MANIFEST_FORMAT,
         "title": meta.title,
@@ -261,5 +257,5 @@ def release(
             json.dumps(manifest, indent=2, sort_keys=True, ensure_ascii=False) + "\n",
             encoding="utf-8",
         )
-        replace_dir_atomically(stage, target)
+        swap_dir(stage, target, replace=False)  # an edition is never overwritten
     return ReleaseResult(target, edition, previous, manifest, changes, warnings)

@@ -27,14 +27,18 @@ constrain them); the others are this project's conventions. All ids are unique i
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from typing import Any
 
 from lexbuild.errors import ExportError, LexbuildError
+from lexbuild.formats.registry import OutputFormat, validate_xml
 from lexbuild.formats.xmlsafe import XmlWriter, describe_forbidden, forbidden_character
 from lexbuild.lexicon.ids import DocumentIds
 from lexbuild.lexicon.model import Entry, Frame, Function, Lexicon, LexiconMeta, Realisation
 
-__all__ = ["DTD_FILE", "DTD_VERSION", "SUPPORTED_VERSIONS", "LMFError", "is_lmf", "to_lmf"]
+__all__ = [
+    "DTD_FILE", "DTD_VERSION", "FORMAT", "SUPPORTED_VERSIONS", "LMFError", "is_lmf", "to_lmf"
+]
 
 DTD_VERSION = "16"
 SUPPORTED_VERSIONS = (DTD_VERSION,)
@@ -232,3 +236,20 @@ def to_lmf(lexicon: Lexicon) -> bytes:
     out.close("Lexicon")
     out.close("LexicalResource")
     return out.text().encode("utf-8")
+
+
+def _write(lexicon: Lexicon, changes: Sequence[str]) -> bytes:
+    return to_lmf(lexicon)  # LMF has no change log
+
+
+# The registration (lexbuild.formats.registry). application/xml: RFC 7303 (LMF has no media
+# type of its own).
+FORMAT = OutputFormat(
+    name="lmf",
+    title="LMF",
+    suffix=".lmf.xml",
+    media_type="application/xml",
+    description="LMF (ISO 24613:2008, DTD rev. 16)",
+    write=_write,
+    validate=validate_xml,
+)

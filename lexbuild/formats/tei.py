@@ -41,7 +41,8 @@ from typing import Any
 
 from lxml import etree
 
-from lexbuild.errors import ExportError, LexbuildError, SourceError
+from lexbuild.errors import ExportError, LexbuildError, SourceError, SourceLocation
+from lexbuild.formats.registry import OutputFormat, validate_xml
 from lexbuild.formats.xmlsafe import (
     XmlWriter,
     describe_forbidden,
@@ -66,8 +67,12 @@ from lexbuild.lexicon.model import (
     SourceRef,
     Status,
 )
+from lexbuild.lexicon.snapshot import EntryView, SenseView, Snapshot
 
-__all__ = ["SUPPORTED_VERSIONS", "TEI_NS", "TEIError", "is_tei", "read_tei", "to_tei"]
+__all__ = [
+    "FORMAT", "SUPPORTED_VERSIONS", "TEI_NS", "TEIError", "is_tei", "read_tei", "tei_snapshot",
+    "to_tei",
+]
 
 SUPPORTED_VERSIONS = ("0.9.4",)
 TEI_NS = "http://www.tei-c.org/ns/1.0"
@@ -647,4 +652,173 @@ def read_tei(source: str | Path | bytes) -> Lexicon:
             raise
         raise SourceError(
             f"{name}: not a TEI Lex-0 export lexbuild can read back: {error}"
+        ) from None
+
+
+def _write(lexicon: Lexicon, changes: Sequence[str]) -> bytes:
+    return to_tei(lexicon, changes=changes)
+
+
+# The registration (lexbuild.formats.registry). application/tei+xml: RFC 6129.
+FORMAT = OutputFormat(
+    name="tei",
+    title="TEI",
+    suffix=".tei.xml",
+    media_type="application/tei+xml",
+    description=f"TEI Lex-0 {SUPPORTED_VERSIONS[-1]}",
+    write=_write,
+    validate=validate_xml,
+)
+
+
+# ------------------------------------------------------------------------- snapshot reader
+# The compared view of a TEI export (lexbuild.lexicon.snapshot), read in one pass without the
+# typed model: what makes a diff of two large editions fast (benchmarks/bench_diff.py).
+
+def tei_snapshot(source: str | Path | bytes) -> Snapshot:
+    """The compared view of one of our TEI Lex-0 exports, read straight from the XML.
+
+    Parsed with ``xmlsafe.parse_untrusted`` (no entities, no DTD, no network, size limit). It
+    reads the same values as ``lexbuild.formats.tei.read_tei`` without building the typed model,
+    in one pass over the elements it needs, which is what makes a diff of two large editions fast;
+    ``tests/test_diff.py`` checks that both readings agree.
+    """
+    from lexbuild.formats.xmlsafe import parse_untrusted
+
+    name = "<bytes>" if isinstance(source, bytes) else str(source)
+    root = parse_untrusted(source).getroot()
+    if root.tag != _T + "TEI":
+        raise SourceError(f"the root element is {root.tag}, not a TEI element",
+                          SourceLocation(name))
+    reader = _TeiWalk(name)
+    for body in root.iterfind(f"{_T}text/{_T}body"):
+        reader.walk(body)
+    return reader.entries
+
+
+
+
+def _text(element: Any) -> str:
+    if element is None:
+        return ""
+    if len(element):  # mixed content (an example's quote): every text node, as read_tei does
+        return "".join(element.itertext())
+    return element.text or ""
+
+
+def _strip_ref(value: str | None, prefix: str) -> str:
+    return (value or "").strip().removeprefix("#").removeprefix(prefix)
+
+
+class _TeiWalk:
+    """One document-order pass over entries, senses, frames and examples (see tei_snapshot)."""
+
+    def __init__(self, name: str) -> None:
+        self.name = name
+        self.status_prefix = STATUS_PREFIX
+        self.entries: Snapshot = {}
+
+    def walk(self, body: Any) -> None:
+        t = _T
+        entry_tag, sense_tag, cit_tag = t + "entry", t + "sense", t + "cit"
+        gram_tag, usg_tag, idno_tag = t + "gram", t + "usg", t + "idno"
+        def_tag, orth_tag = t + "def", t + "orth"
+        entry: Any = None
+        senses: dict[str, SenseView] = {}
+        sense: Any = None  # top-level sense element being read
+        frames: dict[str, int | None] = {}
+        keys: list[str] = []
+        frame_id = ""
+        pattern: str | None = None
+        frequency: int | None = None
+        cit: Any = None
+        corpus: str | None = None
+        sentence: str | None = None
+        lemma = ""
+        gloss = ""
+
+        def end_cit() -> None:
+            nonlocal cit, corpus, sentence
+            if cit is not None:
+                if corpus is None and sentence is None and cit.find(t + "bibl") is None:
+                    keys.append("text:" + _text(cit.find(t + "quote")))
+                else:
+                    keys.append(f"{corpus or ''}#{sentence or ''}")
+            cit, corpus, sentence = None, None, None
+
+        def end_frame() -> None:
+            nonlocal pattern, frequency
+            if pattern is not None:
+                frames.setdefault(pattern, frequency)
+            pattern, frequency = None, None
+
+        def end_sense() -> None:
+            nonlocal sense, frames, keys, gloss
+            end_cit()
+            end_frame()
+            if sense is not None:
+                sense_id = sense.get(_XML_ID) or ""
+                status = _strip_ref(sense.get("ana"), self.status_prefix) or Status.DRAFT.value
+                senses[sense_id] = SenseView(sense_id, gloss, status, frames, frozenset(keys))
+            sense, frames, keys, gloss = None, {}, [], ""
+
+        def end_entry() -> None:
+            nonlocal entry, senses, lemma
+            end_sense()
+            if entry is not None:
+                entry_id = entry.get(_XML_ID) or ""
+                self.entries[entry_id] = EntryView(entry_id, lemma, senses)
+            entry, senses, lemma = None, {}, ""
+
+        for element in body.iter(entry_tag, sense_tag, cit_tag, gram_tag, usg_tag, idno_tag,
+                                 def_tag, orth_tag):
+            tag = element.tag
+            if tag == idno_tag:
+                kind = element.get("type")
+                if cit is not None and kind == "corpus":
+                    corpus = _text(element)
+                elif cit is not None and kind == "sentence":
+                    sentence = _text(element)
+            elif tag == cit_tag:
+                end_cit()
+                cit = element
+            elif tag == gram_tag:
+                if element.get("type") == "construction" and sense is not None:
+                    pattern = _text(element)
+            elif tag == usg_tag:
+                if (
+                    element.get("type") == "frequency"
+                    and _strip_ref(element.get("corresp"), "") == frame_id
+                ):
+                    frequency = _count(element, self.name)
+            elif tag == sense_tag:
+                end_cit()
+                if element.getparent() is entry:
+                    end_sense()
+                    sense = element
+                else:  # a frame's sub-sense
+                    end_frame()
+                    frame_id = element.get(_XML_ID) or ""
+            elif tag == def_tag:
+                if element.getparent() is sense:
+                    gloss = _text(element)
+            elif tag == orth_tag:
+                parent = element.getparent()
+                if parent is not None and parent.get("type") == "lemma" and (
+                    parent.getparent() is entry
+                ):
+                    lemma = _text(element)
+            else:  # entry
+                end_entry()
+                entry = element
+        end_entry()
+
+
+def _count(usg: Any, name: str) -> int:
+    try:
+        return int(usg.get("value", "0"))
+    except ValueError:
+        raise SourceError(
+            f"usg/@value={usg.get('value')!r} is not a whole number",
+            SourceLocation(name, usg.sourceline or 0),
         ) from None

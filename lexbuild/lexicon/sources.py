@@ -15,6 +15,7 @@ import json
 import os
 import re
 import typing
+import unicodedata
 from collections.abc import Iterator
 from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass, field
@@ -419,7 +420,7 @@ def _load_entry(path: Path, source_map: SourceMap, data: Any = None) -> Entry:
             entry = None
     if entry is not None and entry.id == path.stem:
         source_map.add_loaded_entry(entry, str(path))
-        return entry
+        return _nfc_lemma(entry)
     # Re-read with positions, to report the problem at its line.
     return _load_entry_located(path, _read_text(path, str(path)), source_map)
 
@@ -436,7 +437,14 @@ def _load_entry_located(path: Path, text: str, source_map: SourceMap) -> Entry:
             f"{entry.id}.yaml or change the id to {key!r}",
             source_map.locate(key, ("id",)),
         )
-    return entry
+    return _nfc_lemma(entry)
+
+
+def _nfc_lemma(entry: Entry) -> Entry:
+    """Lemmas are NFC-normalised once, here at reading (and in corpus occurrences), so that a
+    decomposed lemma from another source compares equal to the composed one."""
+    lemma = unicodedata.normalize("NFC", entry.lemma)
+    return entry if lemma == entry.lemma else entry.model_copy(update={"lemma": lemma})
 
 
 def load_entry(path: str | Path) -> Entry:

@@ -22,18 +22,20 @@ import numpy.typing as npt
 
 from lexbuild.errors import InductionError
 from lexbuild.senses.clustering import (
-    ClustererSpec,
     attach_noise,
     check_common,
     fitted,
     merge_small_clusters,
     normalise_rows,
 )
+from lexbuild.senses.registry import ClustererSpec
 from lexbuild.senses.settings import InductionSettings
 
 __all__ = ["PREFERENCES", "SPEC", "AffinityPropagationClusterer"]
 
 IntArray = npt.NDArray[np.intp]
+#: Constructor defaults come from the one settings object.
+_DEFAULTS = InductionSettings()
 
 #: Preferences (cosine similarity scale, so at most 1) swept by calibration.
 PREFERENCES: tuple[float, ...] = (
@@ -55,9 +57,9 @@ class AffinityPropagationClusterer:
         preference: float = DEFAULT_PREFERENCE,
         damping: float = 0.9,
         max_iter: int = 400,
-        min_cluster_size: int = 3,
-        min_cluster_share: float = 0.05,
-        random_state: int | None = 0,
+        min_cluster_size: int = _DEFAULTS.min_cluster_size,
+        min_cluster_share: float = _DEFAULTS.min_cluster_share,
+        random_state: int | None = _DEFAULTS.random_state,
     ) -> None:
         self.preference = preference
         self.damping = damping

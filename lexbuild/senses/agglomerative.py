@@ -19,7 +19,6 @@ from scipy.cluster.hierarchy import fcluster
 
 from lexbuild.errors import InductionError
 from lexbuild.senses.clustering import (
-    ClustererSpec,
     check_common,
     fitted,
     group_sums,
@@ -27,6 +26,7 @@ from lexbuild.senses.clustering import (
     normalise_rows,
     relabel,
 )
+from lexbuild.senses.registry import ClustererSpec
 from lexbuild.senses.settings import InductionSettings
 
 __all__ = [
@@ -38,17 +38,19 @@ __all__ = [
 ]
 
 IntArray = npt.NDArray[np.intp]
+#: Constructor defaults come from the one settings object.
+_DEFAULTS = InductionSettings()
 
 #: Cosine distances swept by calibration for average linkage.
 AVERAGE_THRESHOLDS: tuple[float, ...] = tuple(round(0.05 * i, 2) for i in range(2, 20))
 #: Ward heights swept for Ward linkage: they grow with the square root of cluster sizes, so the
 #: grid is wider and coarser than the cosine one.
 WARD_THRESHOLDS: tuple[float, ...] = (
-    0.5, 1.0, 1.5, 2.0, 3.0, 4.0, 5.0, 6.0, 8.0, 10.0, 12.0, 15.0, 20.0, 25.0, 30.0
+    0.5, 1.0, 1.5, 2.0, 2.5, 3.0, 3.5, 4.0, 5.0, 6.0, 8.0, 10.0
 )
 #: Cut used when no threshold is given and calibration is impossible: the best mean ARI on
-#: French UD pseudo-verbs (``lexbuild calibrate`` on Sequoia train, see README).
-DEFAULT_THRESHOLDS = {"average": 0.7, "ward": 6.0}
+#: French UD pseudo-verbs (``lexbuild calibrate`` on the five French files, see README).
+DEFAULT_THRESHOLDS = {"average": 0.7, "ward": 3.0}
 
 _LINKAGES = ("average", "ward")
 # Rows of the similarity block computed at once: bounds the temporary to ~64 MB of float32.
@@ -156,11 +158,11 @@ class AgglomerativeClusterer:
         threshold: float = DEFAULT_THRESHOLDS["average"],
         linkage: str = "average",
         metric: str = "cosine",
-        min_cluster_size: int = 3,
-        min_cluster_share: float = 0.05,
-        exact_max: int = 20000,
+        min_cluster_size: int = _DEFAULTS.min_cluster_size,
+        min_cluster_share: float = _DEFAULTS.min_cluster_share,
+        exact_max: int = _DEFAULTS.exact_max,
         n_micro: int = 256,
-        random_state: int | None = 0,
+        random_state: int | None = _DEFAULTS.random_state,
     ) -> None:
         self.threshold = threshold
         self.linkage = linkage

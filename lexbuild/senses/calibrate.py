@@ -29,8 +29,8 @@ import numpy as np
 from lexbuild._atomic import atomic_write_bytes, atomic_write_text
 from lexbuild.corpus.occurrences import Argument, Occurrence
 from lexbuild.errors import InductionError
-from lexbuild.senses.clustering import get_clusterer
 from lexbuild.senses.evaluation import evaluate_verb
+from lexbuild.senses.registry import get_clusterer
 from lexbuild.senses.settings import CalibrationSettings, InductionSettings
 from lexbuild.senses.vectors import CacheStats, Representation, VectorCache, encode_cached
 
@@ -47,6 +47,11 @@ __all__ = [
     "read_calibration",
     "write_calibration",
 ]
+
+#: Defaults come from the one settings object.
+_DEFAULTS = InductionSettings()
+_OPTIONS = _DEFAULTS.calibration
+
 
 @dataclass(frozen=True)
 class PseudoVerb:
@@ -106,11 +111,11 @@ class Calibration:
 def build_pseudo_verbs(
     counts: Mapping[str, int],
     *,
-    pairs: int = 20,
-    matched_pairs: int = 10,
-    triples: int = 5,
-    min_count: int = 30,
-    random_state: int = 0,
+    pairs: int = _OPTIONS.pairs,
+    matched_pairs: int = _OPTIONS.matched_pairs,
+    triples: int = _OPTIONS.triples,
+    min_count: int = _OPTIONS.min_count,
+    random_state: int = _DEFAULTS.random_state,
 ) -> list[PseudoVerb]:
     """Pseudo-verbs from the verbs seen at least ``min_count`` times (fixed by random_state)."""
     frequent = sorted((lemma for lemma, n in counts.items() if n >= min_count),
@@ -188,10 +193,10 @@ def conflate(
     by_lemma: Mapping[str, Sequence[Occurrence]],
     pseudo: PseudoVerb,
     *,
-    per_verb: int = 200,
+    per_verb: int = _OPTIONS.per_verb,
     placeholder: str = "X",
-    mask: bool = True,
-    random_state: int = 0,
+    mask: bool = _OPTIONS.mask,
+    random_state: int = _DEFAULTS.random_state,
 ) -> tuple[list[Occurrence], list[str]]:
     """The pseudo-verb's occurrences (at most ``per_verb`` of each verb) and gold labels."""
     occurrences: list[Occurrence] = []

@@ -6,32 +6,22 @@ vectors). ``sweep(X, values)`` gives the labels ``fit`` would give for each valu
 method's calibrated parameter, so that calibration can share work between values.
 
 A method is one module defining a ``ClustererSpec`` named ``SPEC`` plus one line in
-``CLUSTERERS`` below (name -> module). Modules are imported only when their method is used, so
-a method's heavy dependencies cost nothing to the others.
+``CLUSTERERS`` (``lexbuild.senses.registry``, name -> module).
 """
 
 from __future__ import annotations
 
-import importlib
-from collections.abc import Callable, Mapping, Sequence
-from dataclasses import dataclass
-from typing import TYPE_CHECKING, Any, Protocol, runtime_checkable
+from collections.abc import Mapping, Sequence
+from typing import Any, Protocol, runtime_checkable
 
 import numpy as np
 import numpy.typing as npt
 
 from lexbuild.errors import InductionError
 
-if TYPE_CHECKING:
-    from lexbuild.senses.settings import InductionSettings
-
 __all__ = [
-    "CLUSTERERS",
     "Clusterer",
-    "ClustererSpec",
     "assign_to_centroids",
-    "clusterer_names",
-    "get_clusterer",
     "merge_small_clusters",
     "normalise_rows",
     "relabel",
@@ -40,14 +30,6 @@ __all__ = [
 
 FloatArray = npt.NDArray[np.floating[Any]]
 IntArray = npt.NDArray[np.intp]
-
-#: Registered clustering methods: CLI name -> module defining ``SPEC``.
-CLUSTERERS: dict[str, str] = {
-    "agglomerative": "lexbuild.senses.agglomerative",
-    "hdbscan": "lexbuild.senses.hdbscan",
-    "affinity-propagation": "lexbuild.senses.affinity",
-}
-
 
 @runtime_checkable
 class Clusterer(Protocol):
@@ -60,43 +42,6 @@ class Clusterer(Protocol):
     def fit(self, X: Any, y: Any = None) -> Any: ...
 
     def sweep(self, X: Any, values: Sequence[float]) -> list[IntArray]: ...
-
-
-@dataclass(frozen=True)
-class ClustererSpec:
-    """A registered method.
-
-    ``parameter``: the name of its calibrated parameter, in the method's own terms.
-    ``default(settings)``: the value used when no threshold is given and calibration is not
-    possible; ``grid(settings)``: the values calibration sweeps. ``make(settings, value)``: a
-    clusterer with that value. ``params(settings)``: the settings its result depends on, which a
-    calibration file must match before its recommendation is used.
-    """
-
-    name: str
-    parameter: str
-    description: str
-    default: Callable[[InductionSettings], float]
-    grid: Callable[[InductionSettings], tuple[float, ...]]
-    make: Callable[[InductionSettings, float], Clusterer]
-    params: Callable[[InductionSettings], dict[str, Any]]
-
-
-def clusterer_names() -> tuple[str, ...]:
-    return tuple(CLUSTERERS)
-
-
-def get_clusterer(name: str) -> ClustererSpec:
-    """The spec of a registered method; an unknown name is an error naming the known ones."""
-    module = CLUSTERERS.get(name)
-    if module is None:
-        raise InductionError(
-            f"unknown clusterer {name!r}; expected one of {', '.join(CLUSTERERS)}"
-        )
-    spec = importlib.import_module(module).SPEC
-    if not isinstance(spec, ClustererSpec) or spec.name != name:
-        raise InductionError(f"{module}.SPEC does not define the clusterer {name!r}")
-    return spec
 
 
 # ----------------------------------------------------------------------- shared helpers

@@ -13,9 +13,11 @@ from lexbuild.corpus.occurrences import Occurrence
 from lexbuild.corpus.valency import match_frame
 from lexbuild.lexicon.ids import example_id
 from lexbuild.lexicon.model import ArgumentSpan, Example, Frame, SourceRef
+from lexbuild.senses.settings import InductionSettings
 
 __all__ = ["choose_examples", "corpus_name"]
 
+_DEFAULTS = InductionSettings()
 _TERMINAL = (".", "!", "?", "…", "»", '"', "”", ")")
 
 
@@ -58,8 +60,8 @@ def choose_examples(
     frames: Sequence[Frame],
     parent_id: str,
     *,
-    k: int = 3,
-    words: tuple[int, int] = (6, 40),
+    k: int = _DEFAULTS.examples,
+    words: tuple[int, int] = _DEFAULTS.example_words,
 ) -> list[Example]:
     """Up to ``k`` examples of one sense for a dictionary.
 

@@ -23,18 +23,20 @@ import numpy.typing as npt
 from lexbuild.errors import InductionError
 from lexbuild.senses.agglomerative import condensed_cosine
 from lexbuild.senses.clustering import (
-    ClustererSpec,
     attach_noise,
     check_common,
     fitted,
     merge_small_clusters,
     normalise_rows,
 )
+from lexbuild.senses.registry import ClustererSpec
 from lexbuild.senses.settings import InductionSettings
 
 __all__ = ["FRACTIONS", "SPEC", "HdbscanClusterer"]
 
 IntArray = npt.NDArray[np.intp]
+#: Constructor defaults come from the one settings object.
+_DEFAULTS = InductionSettings()
 
 #: Smallest-cluster fractions swept by calibration.
 FRACTIONS: tuple[float, ...] = (0.02, 0.03, 0.05, 0.075, 0.1, 0.15, 0.2, 0.25, 0.3, 0.4)
@@ -52,8 +54,8 @@ class HdbscanClusterer:
     def __init__(
         self,
         min_cluster_fraction: float = DEFAULT_FRACTION,
-        min_cluster_size: int = 3,
-        min_cluster_share: float = 0.05,
+        min_cluster_size: int = _DEFAULTS.min_cluster_size,
+        min_cluster_share: float = _DEFAULTS.min_cluster_share,
         min_samples: int | None = None,
     ) -> None:
         self.min_cluster_fraction = min_cluster_fraction

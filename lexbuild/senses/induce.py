@@ -26,8 +26,9 @@ from lexbuild.corpus.valency import FrameThresholds, frames_for
 from lexbuild.errors import InductionError
 from lexbuild.lexicon.ids import entry_id, sense_id
 from lexbuild.lexicon.model import Entry, Frame, Induction, Sense, Status
-from lexbuild.senses.clustering import assign_to_centroids, get_clusterer
+from lexbuild.senses.clustering import assign_to_centroids
 from lexbuild.senses.examples import choose_examples, corpus_name
+from lexbuild.senses.registry import get_clusterer
 from lexbuild.senses.settings import InductionSettings
 
 __all__ = [

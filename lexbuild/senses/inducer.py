@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import hashlib
 import json
+import unicodedata
 from collections import defaultdict
 from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field, fields
@@ -159,7 +160,11 @@ class SenseInducer:
         """
         settings = self.settings
         occurrences = list(occurrences)
-        wanted = frozenset(lemmas) if lemmas is not None else None
+        wanted = (
+            frozenset(unicodedata.normalize("NFC", lemma) for lemma in lemmas)
+            if lemmas is not None
+            else None
+        )
         by_lemma: dict[str, list[Occurrence]] = defaultdict(list)
         for occ in occurrences:
             if wanted is None or occ.lemma in wanted:

@@ -13,29 +13,52 @@ from __future__ import annotations
 import csv
 import io
 import json
-import os
-import shutil
 import zipfile
-from collections.abc import Sequence
+from collections.abc import Iterator, Mapping, Sequence
+from dataclasses import dataclass
 from pathlib import Path
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import numpy.typing as npt
 
-from lexbuild._atomic import atomic_write_bytes, atomic_write_text, staging_dir
-from lexbuild.errors import InductionError, SourceLocation
-from lexbuild.lexicon.sources import ENTRIES_DIR, dump_entry
-from lexbuild.senses.induce import Assignment
-from lexbuild.senses.inducer import InductionResult
+from lexbuild._atomic import atomic_write_bytes, atomic_write_text, staging_dir, swap_dir
+from lexbuild.errors import InductionError, InductionFolderError, SourceLocation
+from lexbuild.lexicon.model import Entry
+from lexbuild.lexicon.sources import ENTRIES_DIR, dump_entry, load_entry
 
-__all__ = ["ASSIGNMENTS_HEADER", "read_assignments", "write_induction"]
+if TYPE_CHECKING:
+    from lexbuild.senses.induce import Assignment
+    from lexbuild.senses.inducer import InductionResult
 
+__all__ = [
+    "ASSIGNMENTS_FILE",
+    "ASSIGNMENTS_HEADER",
+    "CENTROIDS_FILE",
+    "MANIFEST_FILE",
+    "InducedFolder",
+    "read_assignments",
+    "read_centroids",
+    "read_induction",
+    "write_centroids",
+    "write_induction",
+]
+
+MANIFEST_FILE = "induction.json"
+CENTROIDS_FILE = "centroids.npz"
+ASSIGNMENTS_FILE = "assignments.tsv"
 ASSIGNMENTS_HEADER = ("lemma", "sense", "corpus", "sent_id", "token")
 
+Vector = npt.NDArray[np.float32]
+Sentence = tuple[str, str]  # (corpus, sentence id)
 
 
-def _npz_bytes(arrays: dict[str, npt.NDArray[np.float32]]) -> bytes:
-    """``numpy.savez`` content with fixed zip timestamps (numpy stamps the current time)."""
+# ------------------------------------------------------------------------------ centroids
+
+
+def centroids_bytes(arrays: Mapping[str, npt.ArrayLike]) -> bytes:
+    """``numpy.savez`` content with sorted keys and fixed zip timestamps (numpy stamps the
+    current time): the same centroids give the same bytes."""
     buffer = io.BytesIO()
     with zipfile.ZipFile(buffer, "w", compression=zipfile.ZIP_STORED) as archive:
         for key in sorted(arrays):
@@ -47,6 +70,28 @@ def _npz_bytes(arrays: dict[str, npt.NDArray[np.float32]]) -> bytes:
     return buffer.getvalue()
 
 
+def write_centroids(path: str | Path, centroids: Mapping[str, npt.ArrayLike]) -> None:
+    """Deterministic ``.npz``, written atomically."""
+    atomic_write_bytes(path, centroids_bytes(centroids))
+
+
+def read_centroids(path: str | Path) -> dict[str, Vector]:
+    """Sense id -> float32 vector from an ``.npz`` file (empty when the file is absent)."""
+    where = Path(path)
+    if not where.is_file():
+        return {}
+    try:
+        with np.load(where, allow_pickle=False) as data:
+            return {key: np.asarray(data[key], dtype=np.float32) for key in data.files}
+    except (OSError, ValueError, zipfile.BadZipFile) as error:
+        raise InductionFolderError(
+            f"cannot read centroids: {error}", SourceLocation(str(where))
+        ) from None
+
+
+# ---------------------------------------------------------------------------- assignments
+
+
 def _assignments_tsv(assignments: Sequence[Assignment]) -> str:
     buffer = io.StringIO()
     writer = csv.writer(buffer, delimiter="\t", lineterminator="\n", quoting=csv.QUOTE_MINIMAL)
@@ -54,6 +99,107 @@ def _assignments_tsv(assignments: Sequence[Assignment]) -> str:
     for a in assignments:
         writer.writerow((a.lemma, a.sense, a.corpus, a.sent_id, a.token))
     return buffer.getvalue()
+
+
+def _assignment_rows(path: Path) -> Iterator[tuple[int, list[str]]]:
+    """(line number, cells) of each data row; the header and the column count checked."""
+    with path.open(encoding="utf-8", newline="") as handle:
+        reader = csv.reader(handle, delimiter="\t")
+        try:
+            for cells in reader:
+                number = reader.line_num
+                if number == 1:
+                    if tuple(cells) != ASSIGNMENTS_HEADER:
+                        raise InductionFolderError(
+                            f"expected the header {' '.join(ASSIGNMENTS_HEADER)} "
+                            f"(tab-separated), got {' '.join(cells)!r}",
+                            SourceLocation.of(path, 1),
+                        )
+                    continue
+                if not cells:
+                    continue
+                if len(cells) != len(ASSIGNMENTS_HEADER):
+                    raise InductionFolderError(
+                        f"expected {len(ASSIGNMENTS_HEADER)} tab-separated fields "
+                        f"({', '.join(ASSIGNMENTS_HEADER)}), got {len(cells)}",
+                        SourceLocation.of(path, number),
+                    )
+                yield number, cells
+        except csv.Error as error:
+            raise InductionFolderError(
+                f"bad TSV: {error}", SourceLocation.of(path, reader.line_num)
+            ) from None
+
+
+def read_assignments(folder: str | Path) -> dict[tuple[str, int], tuple[str, str]]:
+    """``(sent_id, token) -> (lemma, sense)`` from an induction folder's ``assignments.tsv``."""
+    path = Path(folder)
+    if path.is_dir():
+        path = path / ASSIGNMENTS_FILE
+    out: dict[tuple[str, int], tuple[str, str]] = {}
+    for number, (lemma, sense, _corpus, sent_id, token) in _assignment_rows(path):
+        try:
+            out[(sent_id, int(token))] = (lemma, sense)
+        except ValueError:
+            raise InductionFolderError(
+                f"field 'token': {token!r} is not an integer", SourceLocation.of(path, number)
+            ) from None
+    return out
+
+
+def sentences_by_sense(path: str | Path) -> dict[str, set[Sentence]]:
+    """Induced sense id -> the (corpus, sentence) pairs clustered into it (empty if absent)."""
+    where = Path(path)
+    found: dict[str, set[Sentence]] = {}
+    if not where.is_file():
+        return found
+    for _, cells in _assignment_rows(where):
+        found.setdefault(cells[1], set()).add((cells[2], cells[3]))
+    return found
+
+
+# ---------------------------------------------------------------------------------- folder
+
+
+@dataclass
+class InducedFolder:
+    """An induction folder read into memory."""
+
+    settings: dict[str, Any]
+    entries: list[Entry]
+    centroids: dict[str, Vector]
+    assignments: dict[str, set[Sentence]]  # induced sense id -> clustered sentences
+
+    @property
+    def run(self) -> str:
+        return str(self.settings.get("run") or self.settings.get("run_id") or "unknown")
+
+
+def read_induction(folder: str | Path) -> InducedFolder:
+    """Read an induction folder; errors name the file (and line for the TSV)."""
+    root = Path(folder)
+    settings_path = root / MANIFEST_FILE
+    if not settings_path.is_file():
+        raise InductionFolderError(
+            f"{root} is not an induction folder: {MANIFEST_FILE} is missing (run "
+            "`lexbuild induce` to make one)",
+            SourceLocation(str(settings_path)),
+        )
+    try:
+        settings = json.loads(settings_path.read_text(encoding="utf-8"))
+    except (ValueError, UnicodeDecodeError) as error:
+        raise InductionFolderError(
+            f"invalid JSON: {error}", SourceLocation(str(settings_path))
+        ) from None
+    if not isinstance(settings, dict):
+        raise InductionFolderError("expected a JSON object", SourceLocation(str(settings_path)))
+    entries = [load_entry(path) for path in sorted((root / ENTRIES_DIR).glob("*.yaml"))]
+    return InducedFolder(
+        settings=settings,
+        entries=entries,
+        centroids=read_centroids(root / CENTROIDS_FILE),
+        assignments=sentences_by_sense(root / ASSIGNMENTS_FILE),
+    )
 
 
 def write_induction(
@@ -67,50 +213,12 @@ def write_induction(
         )
     with staging_dir(target) as stage:
         atomic_write_text(
-            stage / "induction.json",
+            stage / MANIFEST_FILE,
             json.dumps(result.manifest(), indent=2, ensure_ascii=False, sort_keys=True) + "\n",
         )
         for entry in result.entries:
             atomic_write_text(stage / ENTRIES_DIR / f"{entry.id}.yaml", dump_entry(entry))
-        atomic_write_bytes(stage / "centroids.npz", _npz_bytes(result.centroids))
-        atomic_write_text(stage / "assignments.tsv", _assignments_tsv(result.assignments))
-        old: Path | None = None
-        if target.exists():
-            old = target.with_name(f".{target.name}.old-{os.getpid()}")
-            os.rename(target, old)
-        os.rename(stage, target)
-        if old is not None:
-            shutil.rmtree(old, ignore_errors=True)
+        atomic_write_bytes(stage / CENTROIDS_FILE, centroids_bytes(result.centroids))
+        atomic_write_text(stage / ASSIGNMENTS_FILE, _assignments_tsv(result.assignments))
+        swap_dir(stage, target)
     return target
-
-
-def read_assignments(folder: str | Path) -> dict[tuple[str, int], tuple[str, str]]:
-    """``(sent_id, token) -> (lemma, sense)`` from an induction folder's ``assignments.tsv``."""
-    path = Path(folder)
-    if path.is_dir():
-        path = path / "assignments.tsv"
-    out: dict[tuple[str, int], tuple[str, str]] = {}
-    with open(path, encoding="utf-8", newline="") as handle:
-        reader = csv.reader(handle, delimiter="\t")
-        header = next(reader, None)
-        if header is None or tuple(header) != ASSIGNMENTS_HEADER:
-            raise InductionError(
-                f"expected the header {' '.join(ASSIGNMENTS_HEADER)} (tab-separated)",
-                SourceLocation.of(path, 1),
-            )
-        for lineno, row in enumerate(reader, start=2):
-            if not row:
-                continue
-            if len(row) != len(ASSIGNMENTS_HEADER):
-                raise InductionError(
-                    f"expected {len(ASSIGNMENTS_HEADER)} columns, found {len(row)}",
-                    SourceLocation.of(path, lineno),
-                )
-            lemma, sense, _corpus, sent_id, token = row
-            try:
-                out[(sent_id, int(token))] = (lemma, sense)
-            except ValueError:
-                raise InductionError(
-                    f"field 'token': {token!r} is not an integer", SourceLocation.of(path, lineno)
-                ) from None
-    return out

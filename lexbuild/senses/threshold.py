@@ -21,7 +21,7 @@ from typing import Any
 from lexbuild.corpus.occurrences import Occurrence
 from lexbuild.errors import InductionError
 from lexbuild.senses.calibrate import Calibration, calibrate, read_calibration
-from lexbuild.senses.clustering import get_clusterer
+from lexbuild.senses.registry import get_clusterer
 from lexbuild.senses.settings import InductionSettings
 from lexbuild.senses.vectors import CacheStats, Representation, VectorCache
 
