@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import hashlib
 import pickle
+import unicodedata
 from collections import Counter
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from dataclasses import dataclass, field
@@ -51,8 +52,11 @@ class CorpusPass:
         sentences = iter_shard_sentences(
             self.shard, on_error="skip" if self.on_error == "skip" else "raise", errors=errors
         )
+        # The loop of ``iter_occurrences`` over one shard's sentences.
         for sentence in sentences:
-            if wanted is not None and not any(t.lemma in wanted for t in sentence.tokens):
+            if wanted is not None and not any(
+                unicodedata.normalize("NFC", t.lemma) in wanted for t in sentence.tokens
+            ):
                 continue
             for occurrence in extract_occurrences(
                 sentence, profile, include_auxiliaries=self.include_auxiliaries
@@ -102,7 +106,7 @@ def _jobs(
     shard_bytes: int | None = None,
 ) -> list[CorpusPass]:
     shards = plan_shards(paths, shard_bytes=shard_bytes or SHARD_BYTES)
-    wanted = frozenset(lemmas) if lemmas is not None else None
+    wanted = None if lemmas is None else frozenset(unicodedata.normalize("NFC", x) for x in lemmas)
     return [
         CorpusPass(shard, language, wanted, on_error, include_auxiliaries, spill, index)
         for index, shard in enumerate(shards)

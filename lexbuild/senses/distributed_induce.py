@@ -23,6 +23,7 @@ import socket
 import sqlite3
 import tempfile
 import threading
+import unicodedata
 from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -226,7 +227,7 @@ def induce_on_executor(
             on_stage(name)
 
     settings = settings or InductionSettings()
-    wanted = frozenset(lemmas) if lemmas is not None else None
+    wanted = None if lemmas is None else frozenset(unicodedata.normalize("NFC", x) for x in lemmas)
     calibrates = settings.calibrates and calibration is None
     if cache is not None:
         merge_vector_shards(cache)  # what an interrupted run left
