@@ -16,6 +16,7 @@ from collections import Counter
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import IO
 
 from lexbuild.corpus.occurrences import Occurrence, extract_occurrences, profile_for
 from lexbuild.corpus.shards import SHARD_BYTES, Shard, iter_shard_sentences, plan_shards
@@ -168,6 +169,10 @@ def _verb_file(folder: str, index: int, lemma: str) -> Path:
     return Path(folder) / f"{index:06d}" / f"{digest}.pkl"
 
 
+#: Per-verb files a shard task keeps open at once (well under the usual limit of 1024).
+_OPEN_FILES = 256
+
+
 @dataclass
 class SpilledShard:
     counts: dict[str, int] = field(default_factory=dict)  # occurrences per lemma
@@ -184,23 +189,29 @@ def spill_shard(job: CorpusPass) -> SpilledShard:
     assert job.spill is not None
     result = SpilledShard()
     errors: list[CorpusError] = []
-    handles: dict[str, object] = {}
+    handles: dict[str, IO[bytes]] = {}
     folder = Path(job.spill) / f"{job.index:06d}"
     folder.mkdir(parents=True, exist_ok=True)
     try:
         for position, occurrence in enumerate(job.occurrences(errors)):
-            handle = handles.get(occurrence.lemma)
+            lemma = occurrence.lemma
+            handle = handles.get(lemma)
             if handle is None:
-                handle = handles[occurrence.lemma] = _verb_file(
-                    job.spill, job.index, occurrence.lemma
-                ).open("wb")
-            pickle.dump((position, occurrence), handle, protocol=pickle.HIGHEST_PROTOCOL)  # type: ignore[arg-type]
-            result.counts[occurrence.lemma] = result.counts.get(occurrence.lemma, 0) + 1
+                if len(handles) >= _OPEN_FILES:  # a shard may hold thousands of verbs
+                    for other in handles.values():
+                        other.close()
+                    handles.clear()
+                # Truncated when first met in this shard (a rerun), appended to afterwards.
+                path = _verb_file(job.spill, job.index, lemma)
+                handle = path.open("ab" if lemma in result.counts else "wb")
+                handles[lemma] = handle
+            pickle.dump((position, occurrence), handle, protocol=pickle.HIGHEST_PROTOCOL)
+            result.counts[lemma] = result.counts.get(lemma, 0) + 1
     except CorpusError as error:
         result.failure = str(error)
     finally:
         for handle in handles.values():
-            handle.close()  # type: ignore[attr-defined]
+            handle.close()
     result.errors = [str(error) for error in errors]
     return result
 
