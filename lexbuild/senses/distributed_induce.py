@@ -5,7 +5,8 @@
 2. The threshold is chosen as in one process (a calibration on the corpus streams the spilled
    occurrences back in corpus order; a given threshold or calibration file reads nothing).
 3. One task per verb, on the workers: read that verb's occurrences, encode them in batches
-   through the vector cache, cluster them (``induce_verb``). Results come back in lemma order.
+   through the vector cache, cluster them (``induce_verb``). The largest verbs are submitted
+   first (the longest tasks must not start last); results are put back in lemma order.
 
 The result is the ``InductionResult`` ``SenseInducer.fit`` gives in one process, byte for byte
 once written. The vector cache stays safe with many workers: each worker thread writes its
@@ -291,12 +292,14 @@ def induce_on_executor(
                 run=run,
                 guide=None if guide is None else guide.get(lemma),
             )
-            for lemma in kept
+            # Largest verbs first, so that none of them starts last and keeps one worker busy
+            # alone at the end; results are put back in lemma order below.
+            for lemma in sorted(kept, key=lambda lemma: (-spilled.counts[lemma], lemma))
         )
-        results: list[VerbResult] = []
+        by_lemma: dict[str, VerbResult] = {}
         stage("clustering")
         for result, verb_stats in executor.map(induce_spilled_verb, tasks):
-            results.append(result)
+            by_lemma[result.entry.lemma] = result
             stats.hits += verb_stats.hits
             stats.computed += verb_stats.computed
             if on_verb is not None:
@@ -306,6 +309,7 @@ def induce_on_executor(
             shutil.rmtree(folder, ignore_errors=True)
         if cache is not None:
             merge_vector_shards(cache)
+    results = [by_lemma[lemma] for lemma in kept]
     centroids: dict[str, npt.NDArray[np.float32]] = {}
     for result in results:
         centroids.update(result.centroids)
