@@ -95,6 +95,10 @@ class MalformedXMLError(LexbuildError, ValueError):
     """An XML file read back is not well-formed (syntax, encoding, depth or text size limits)."""
 
 
+class ClusterError(LexbuildError, RuntimeError):
+    """The Dask cluster cannot be reached, or a task failed there after its retries."""
+
+
 class InductionFolderError(InductionError, MergeError, SourceError):
     """An induction folder cannot be read (file, line and field named); caught as an
     induction, merge or source error alike."""

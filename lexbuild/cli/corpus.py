@@ -124,6 +124,9 @@ def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) ->
         help="on a malformed sentence: stop (raise) or skip it and report it at the end",
     )
     parser.add_argument("--output", metavar="FILE", help="write here (atomically), not stdout")
+    from lexbuild.distributed import add_cluster_options
+
+    add_cluster_options(parser)
     parser.set_defaults(handler=run_frames)
 
 
@@ -167,6 +170,10 @@ def run_frames(args: argparse.Namespace) -> int:
         significance=args.significance,
         noise_rate=args.noise_rate,
     )
+    if args.workers is not None or args.scheduler is not None:
+        if args.explain:
+            raise CorpusError("--explain runs in one process: drop --workers/--scheduler")
+        return _run_frames_distributed(args, thresholds)
     errors: list[CorpusError] = []
     stats: dict[str, list[int]] = {}
     decision = None
@@ -242,6 +249,42 @@ def _verdict_json(v: Verdict) -> dict[str, object]:
         "p_value": float(f"{v.p_value:.4g}"),
         "evidence": {name: round(value, 4) for name, value in v.evidence},
     }
+
+
+def _run_frames_distributed(args: argparse.Namespace, thresholds: FrameThresholds) -> int:
+    """``frames`` with shards of the corpus read on a Dask cluster (same output)."""
+    from tqdm import tqdm
+
+    from lexbuild._atomic import atomic_write_text
+    from lexbuild.corpus.conllu import resolve_paths
+    from lexbuild.corpus.sharded import count_frames_sharded
+    from lexbuild.distributed import executor_from_args
+
+    resolve_paths(args.corpus)  # a missing file is reported before a cluster starts
+    bar = tqdm(unit=" shards", file=sys.stderr, disable=None, desc="frames")
+
+    def advance(n: int) -> None:
+        bar.update(n)  # fed by Dask: a shard's task finished on a worker
+
+    with bar, executor_from_args(args, on_done=advance) as executor:
+        assert executor is not None
+        table, stats, errors = count_frames_sharded(
+            args.corpus,
+            executor,
+            thresholds,
+            language=args.language,
+            lemmas=args.lemma,
+            on_error=args.on_error,
+            include_auxiliaries=args.include_aux,
+            obliques=args.obliques,
+        )
+    text = format_table(table, stats, args.format, len(errors), thresholds)
+    if args.output:
+        atomic_write_text(args.output, text)
+    else:
+        sys.stdout.write(text)
+    _report_errors(errors, sys.stderr)
+    return 1 if errors else 0
 
 
 def format_table(

@@ -189,6 +189,8 @@ def run_induce(args: argparse.Namespace) -> int:
 
         guide = load_guide(args.guide, drafts=args.guide_drafts)
         settings, representation = _guided_settings(args, settings, representation)
+    if args.workers is not None or args.scheduler is not None:
+        return _run_induce_distributed(args, files, output, settings, representation)
     inducer = SenseInducer(
         representation, settings=settings, calibration=args.calibration, cache=open_cache(args),
         guide=guide,
@@ -281,6 +283,57 @@ def add_guide_options(parser: argparse.ArgumentParser) -> None:
     )
 
 
+def _run_induce_distributed(
+    args: argparse.Namespace, files: list[Path], output: Path, settings: InductionSettings,
+    representation: Any,
+) -> int:
+    """``induce`` on a Dask cluster: the same induction folder as in one process."""
+    from tqdm import tqdm
+
+    from lexbuild.distributed import executor_from_args
+    from lexbuild.senses.distributed_induce import induce_on_executor
+    from lexbuild.senses.induction_folder import write_induction
+
+    cache = open_cache(args)
+    cache_folder = None if cache is None else cache.path
+    if cache is not None:
+        cache.close()
+    with (
+        tqdm(desc="reading", unit=" shards", file=sys.stderr, disable=None) as read_bar,
+        tqdm(desc="clustering", unit=" verbs", file=sys.stderr, disable=None) as verb_bar,
+        executor_from_args(args) as executor,
+    ):
+        assert executor is not None
+        bars = {"reading": read_bar, "clustering": verb_bar}
+
+        def on_stage(name: str) -> None:
+            # Fed by Dask: each stage's bar moves as its tasks finish on the workers.
+            bar = bars.get(name)
+            executor.on_done = None if bar is None else (lambda n: update_bar(bar, n))
+        result, choice = induce_on_executor(
+            files,
+            representation,
+            executor,
+            settings,
+            calibration=args.calibration,
+            cache=cache_folder,
+            lemmas=args.lemma or None,
+            language=args.language,
+            spill=args.spill,
+            on_stage=on_stage,
+        )
+    print(f"lexbuild induce: threshold {choice.value:g}, {choice.source}", file=sys.stderr)
+    write_induction(result, output, overwrite=args.overwrite)
+    counts = result.counts
+    print(
+        f"{counts['verbs']} verbs, {counts['senses']} senses from {counts['occurrences']} "
+        f"occurrences ({settings.clusterer}, threshold {choice.value:g}, run "
+        f"{result.run}); vectors: {result.cache.hits} from the cache, {result.cache.computed} "
+        f"computed -> {output}"
+    )
+    return 0
+
+
 def register(subparsers: Any) -> None:
     parser = subparsers.add_parser(
         "induce",
@@ -328,4 +381,13 @@ def register(subparsers: Any) -> None:
     )
     add_clusterer_options(parser)
     add_representation_options(parser)
+    from lexbuild.distributed import add_cluster_options
+
+    add_cluster_options(parser)
+    parser.add_argument(
+        "--spill",
+        metavar="DIR",
+        help="with --workers/--scheduler: folder for the per-verb partitions, reachable by "
+        "every worker (default: a temporary folder, removed afterwards)",
+    )
     parser.set_defaults(handler=run_induce)

@@ -1,0 +1,346 @@
+"""The Dask back-end: outputs identical to one process, shards, failures, start-up imports.
+
+Two clusters per module, started once: a local cluster (``open_executor(workers=2)``, what
+``--workers 2`` starts) and a scheduler with two workers started as separate processes on
+loopback (what ``--scheduler`` connects to). The CLI's ``--workers 2`` path starts its own.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import socket
+import subprocess
+import sys
+import tempfile
+import time
+from collections.abc import Iterator
+from pathlib import Path
+
+import cloudpickle
+import conllu
+import pytest
+
+import lexbuild.distributed as distributed_module
+from lexbuild.cli import main
+from lexbuild.corpus.conllu import iter_sentences
+from lexbuild.corpus.occurrences import iter_occurrences
+from lexbuild.corpus.sharded import count_frames_sharded
+from lexbuild.corpus.shards import iter_shard_sentences, plan_shards
+from lexbuild.corpus.valency import FrameThresholds, count_frames
+from lexbuild.distributed import DaskExecutor, open_executor
+from lexbuild.errors import ClusterError, CorpusError
+from lexbuild.senses.executor import Executor, InProcessExecutor
+
+ROOT = Path(__file__).resolve().parents[1]
+
+# Functions of this module run on the workers: sent by value (workers need not import tests/).
+cloudpickle.register_pickle_by_value(sys.modules[__name__])
+
+
+@pytest.fixture(scope="module")
+def local_executor() -> Iterator[DaskExecutor]:
+    with open_executor(workers=2) as executor:
+        assert executor is not None
+        yield executor
+
+
+@pytest.fixture(scope="module")
+def loopback_scheduler(tmp_path_factory: pytest.TempPathFactory) -> Iterator[str]:
+    """A scheduler and two workers, separate processes on 127.0.0.1; yields the address."""
+    from distributed import Client
+
+    folder = tmp_path_factory.mktemp("cluster")
+    scheduler_file = folder / "scheduler.json"
+    env = {**os.environ, "PYTHONPATH": str(ROOT)}
+    processes = [
+        subprocess.Popen(
+            [sys.executable, "-m", "distributed.cli.dask_scheduler", "--host", "127.0.0.1",
+             "--port", "0", "--no-dashboard", "--scheduler-file", str(scheduler_file)],
+            env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+        )
+    ]
+    try:
+        deadline = time.monotonic() + 60
+        while not scheduler_file.is_file() and time.monotonic() < deadline:
+            time.sleep(0.2)
+        for _ in range(2):
+            processes.append(
+                subprocess.Popen(
+                    [sys.executable, "-m", "distributed.cli.dask_worker", "--scheduler-file",
+                     str(scheduler_file), "--nthreads", "1", "--host", "127.0.0.1",
+                     "--no-dashboard"],
+                    env=env, cwd=folder, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+                )
+            )
+        address = json.loads(scheduler_file.read_text())["address"]
+        with Client(address, timeout=30) as client:
+            client.wait_for_workers(2, timeout=90)
+        yield address
+    finally:
+        for process in reversed(processes):
+            process.terminate()
+        for process in processes:
+            try:
+                process.wait(timeout=20)
+            except subprocess.TimeoutExpired:
+                process.kill()
+
+
+def _run(capsys: pytest.CaptureFixture[str], *argv: str) -> tuple[int, str, str]:
+    code = main(list(argv))
+    captured = capsys.readouterr()
+    return code, captured.out, captured.err
+
+
+# --------------------------------------------------------------------------- start-up path
+
+
+def test_cli_import_does_not_import_dask() -> None:
+    # Without --workers/--scheduler nothing of Dask is loaded (start-up time, optional extra).
+    code = (
+        "import sys, lexbuild.cli as c; c.build_parser(); "
+        "print(sorted(m for m in sys.modules if m.split('.')[0] in ('dask', 'distributed')))"
+    )
+    out = subprocess.run(
+        [sys.executable, "-c", code], cwd=ROOT, capture_output=True, text=True, check=True
+    ).stdout
+    assert out.strip() == "[]"
+
+
+def test_no_flag_is_one_process() -> None:
+    with open_executor() as executor:
+        assert executor is None
+    assert isinstance(InProcessExecutor(), Executor)
+
+
+# ------------------------------------------------------------------------------- shards
+
+
+def _unnamed_copy(source: Path, target: Path) -> Path:
+    # Without sent_id: ids are numbered from the sentence blocks, across shard boundaries.
+    lines = source.read_text(encoding="utf-8").splitlines(keepends=True)
+    target.write_text("".join(x for x in lines if not x.startswith("# sent_id")), "utf-8")
+    return target
+
+
+def test_shards_yield_the_sentences_of_the_whole_file(ud_dir: Path, tmp_path: Path) -> None:
+    path = ud_dir / "fr_sequoia-ud-dev.conllu"
+    shards = plan_shards([path], shard_bytes=40_000)
+    assert len(shards) > 5
+    from_shards = [s for shard in shards for s in iter_shard_sentences(shard)]
+    whole = list(iter_sentences([path]))
+    assert [(s.id, s.line, s.text, len(s.tokens)) for s in from_shards] == [
+        (s.id, s.line, s.text, len(s.tokens)) for s in whole
+    ]
+    # Against the `conllu` package's reading of the UD treebank: same ids, same word counts.
+    with path.open(encoding="utf-8") as handle:
+        reference = [
+            (tl.metadata["sent_id"], sum(isinstance(t["id"], int) for t in tl))
+            for tl in conllu.parse_incr(handle)
+        ]
+    assert [(s.id, len(s.tokens)) for s in from_shards] == reference
+
+    unnamed = _unnamed_copy(path, tmp_path / "unnamed.conllu")
+    from_shards = [
+        s.id for shard in plan_shards([unnamed], shard_bytes=40_000)
+        for s in iter_shard_sentences(shard)
+    ]
+    assert from_shards == [s.id for s in iter_sentences([unnamed])]
+    assert from_shards[-1] == f"unnamed.{len(reference)}"
+
+
+def test_a_defect_in_a_later_shard_names_the_same_line(ud_dir: Path, tmp_path: Path) -> None:
+    lines = (ud_dir / "fr_sequoia-ud-dev.conllu").read_text("utf-8").splitlines(keepends=True)
+    # A word line near the end (line numbers are 1-based).
+    bad_line = max(n for n, x in enumerate(lines[:-5], 1) if x.count("\t") == 9)
+    lines[bad_line - 1] = lines[bad_line - 1].replace("\t", " ", 1)
+    path = tmp_path / "bad.conllu"
+    path.write_text("".join(lines), "utf-8")
+    with pytest.raises(CorpusError) as whole:
+        list(iter_sentences([path]))
+    with pytest.raises(CorpusError) as sharded:
+        for shard in plan_shards([path], shard_bytes=40_000):
+            list(iter_shard_sentences(shard))
+    assert str(sharded.value) == str(whole.value)
+    assert f":{bad_line}" in str(whole.value)
+
+
+# ------------------------------------------------------------------------------- frames
+
+
+def test_sharded_frame_counts_equal_one_process(
+    ud_dir: Path, local_executor: DaskExecutor
+) -> None:
+    corpus = [ud_dir / "fr_sequoia-ud-dev.conllu", ud_dir / "fr_gsd-ud-dev.conllu"]
+    thresholds = FrameThresholds(min_count=2, min_share=0.05)
+    expected = count_frames(iter_occurrences(corpus), thresholds)
+    table, stats, errors = count_frames_sharded(
+        corpus, local_executor, thresholds, shard_bytes=200_000
+    )
+    assert table == expected and not errors
+    assert sum(n for n, _ in stats.values()) == sum(1 for _ in iter_occurrences(corpus))
+
+
+@pytest.mark.parametrize("fmt", ["tsv", "json"])
+def test_frames_identical_on_a_loopback_cluster(
+    ud_dir: Path, capsys: pytest.CaptureFixture[str], loopback_scheduler: str, fmt: str
+) -> None:
+    corpus = [str(ud_dir / "fr_sequoia-ud-dev.conllu"), str(ud_dir / "fr_gsd-ud-test.conllu")]
+    code, single, _ = _run(capsys, "frames", *corpus, "--format", fmt)
+    assert code == 0 and single.count("\n") > 100
+    code, remote, _ = _run(
+        capsys, "frames", *corpus, "--format", fmt, "--scheduler", loopback_scheduler
+    )
+    assert code == 0 and remote == single
+
+
+def test_frames_identical_with_two_local_workers(
+    ud_dir: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    corpus = [str(ud_dir / "fr_sequoia-ud-dev.conllu"), str(ud_dir / "fr_gsd-ud-dev.conllu")]
+    code, single, _ = _run(capsys, "frames", *corpus, "--format", "json")
+    code2, local, _ = _run(capsys, "frames", *corpus, "--format", "json", "--workers", "2")
+    assert (code, code2) == (0, 0) and local == single
+
+
+# ------------------------------------------------------------------------------- induce
+
+
+def _induce(
+    capsys: pytest.CaptureFixture[str], corpus: Path, out: Path, cache: Path, *extra: str
+) -> str:
+    code, stdout, err = _run(
+        capsys, "induce", str(corpus), "-o", str(out), "--threshold", "0.6",
+        "--lemma", "faire", "--lemma", "dire", "--lemma", "pouvoir", "--cache", str(cache),
+        *extra,
+    )
+    assert code == 0, err
+    return stdout
+
+
+def _folder_bytes(folder: Path) -> dict[str, bytes]:
+    return {str(p.relative_to(folder)): p.read_bytes() for p in sorted(folder.rglob("*"))
+            if p.is_file()}
+
+
+def test_induce_identical_in_one_process_two_workers_and_a_loopback_cluster(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str], loopback_scheduler: str, ud_dir: Path,
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    corpus = ud_dir / "fr_sequoia-ud-dev.conllu"
+    spill_parent = tmp_path / "tmp"
+    spill_parent.mkdir()
+    monkeypatch.setattr(tempfile, "tempdir", str(spill_parent))
+    single = _induce(capsys, corpus, tmp_path / "single", tmp_path / "cache-single")
+    assert "0 from the cache" in single
+    remote = _induce(capsys, corpus, tmp_path / "remote", tmp_path / "cache",
+                     "--scheduler", loopback_scheduler)
+    local = _induce(capsys, corpus, tmp_path / "local", tmp_path / "cache2", "--workers", "2")
+    expected = _folder_bytes(tmp_path / "single")
+    assert {"induction.json", "centroids.npz", "assignments.tsv"} <= set(expected)
+    assert _folder_bytes(tmp_path / "remote") == expected
+    assert _folder_bytes(tmp_path / "local") == expected
+    assert "0 from the cache" in remote and "0 from the cache" in local
+    # The workers' cache shards were merged: a rerun computes nothing.
+    assert not (tmp_path / "cache" / "vector_shards").exists()
+    again = _induce(capsys, corpus, tmp_path / "again", tmp_path / "cache",
+                    "--scheduler", loopback_scheduler)
+    assert ", 0 computed" in again
+    assert _folder_bytes(tmp_path / "again") == expected
+    assert list(spill_parent.glob("lexbuild-spill-*")) == []  # the partitions are removed
+
+
+# ------------------------------------------------------------------------------- failures
+
+
+def test_unreachable_scheduler_is_a_clean_error(
+    monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture[str], ud_dir: Path
+) -> None:
+    with socket.socket() as probe:  # a loopback port nobody listens on
+        probe.bind(("127.0.0.1", 0))
+        port = probe.getsockname()[1]
+    monkeypatch.setattr(distributed_module, "CONNECT_TIMEOUT", 1.0)
+    code, _, err = _run(
+        capsys, "frames", str(ud_dir / "fr_sequoia-ud-dev.conllu"),
+        "--scheduler", f"tcp://127.0.0.1:{port}",
+    )
+    assert code == 2
+    assert "cannot reach the Dask scheduler" in err and "Traceback" not in err
+
+
+def _flaky(marker: str) -> str:
+    # Fails the first time it runs anywhere, succeeds on the retry.
+    path = Path(marker)
+    if not path.exists():
+        path.write_text("failed once")
+        raise RuntimeError("first attempt fails")
+    return "done"
+
+
+def _dies_once(marker: str) -> int:
+    path = Path(marker)
+    if not path.exists():
+        path.write_text("died once")
+        os._exit(1)  # the worker process dies with the task
+    return os.getpid()
+
+
+def _always_dies(_: int) -> int:
+    os._exit(1)
+
+
+def test_a_failed_task_is_retried(tmp_path: Path, local_executor: DaskExecutor) -> None:
+    assert list(local_executor.map(_flaky, [str(tmp_path / "flaky")])) == ["done"]
+
+
+def test_a_task_whose_worker_dies_runs_on_another(
+    tmp_path: Path, local_executor: DaskExecutor
+) -> None:
+    (pid,) = local_executor.map(_dies_once, [str(tmp_path / "dies")])
+    assert pid > 0
+
+
+def test_a_task_that_kills_every_worker_fails_cleanly(local_executor: DaskExecutor) -> None:
+    with pytest.raises(ClusterError, match="worker died"):
+        list(local_executor.map(_always_dies, [1]))
+    local_executor.client.wait_for_workers(2, timeout=60)  # the nannies restart them
+
+
+def test_results_come_back_in_task_order(local_executor: DaskExecutor) -> None:
+    done: list[int] = []
+    local_executor.on_done = done.append
+    try:
+        assert list(local_executor.map(_slow_square, range(12))) == [n * n for n in range(12)]
+    finally:
+        local_executor.on_done = None
+    deadline = time.monotonic() + 5
+    while len(done) < 12 and time.monotonic() < deadline:
+        time.sleep(0.05)
+    assert sum(done) == 12
+
+
+def _slow_square(n: int) -> int:
+    time.sleep(0.05 * (12 - n) / 12)  # later tasks finish first
+    return n * n
+
+
+def test_spilled_verbs_read_back_in_corpus_order(
+    ud_dir: Path, tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    import lexbuild.corpus.sharded as sharded
+
+    monkeypatch.setattr(sharded, "_OPEN_FILES", 3)  # files closed and reopened on the way
+    corpus = [ud_dir / "fr_sequoia-ud-dev.conllu"]
+    spilled = sharded.spill_by_verb(
+        corpus, InProcessExecutor(), tmp_path / "spill", shard_bytes=100_000
+    )
+    expected = list(iter_occurrences(corpus))
+    assert spilled.shards > 3 and len(spilled.counts) > 100
+    assert [o.key for o in sharded.iter_spilled_in_corpus_order(spilled)] == [
+        o.key for o in expected
+    ]
+    for lemma in ("faire", "dire", "être"):
+        assert sharded.read_spilled(spilled.folder, lemma, spilled.shards_of[lemma]) == [
+            o for o in expected if o.lemma == lemma
+        ]
