@@ -23,6 +23,7 @@ import numpy as np
 import numpy.typing as npt
 
 from lexbuild.errors import InductionError, SourceLocation
+from lexbuild.senses.induction_folder import OCCURRENCE_VECTORS_FILE
 
 __all__ = [
     "OCCURRENCE_VECTORS_FILE",
@@ -34,7 +35,6 @@ __all__ = [
     "read_induction_view",
 ]
 
-OCCURRENCE_VECTORS_FILE = "occurrence-vectors.npz"
 
 Matrix = npt.NDArray[np.float32]
 

@@ -311,8 +311,10 @@ def induce_on_executor(
             merge_vector_shards(cache)
     results = [by_lemma[lemma] for lemma in kept]
     centroids: dict[str, npt.NDArray[np.float32]] = {}
+    occurrence_vectors: dict[str, npt.NDArray[np.float32]] = {}
     for result in results:
         centroids.update(result.centroids)
+        occurrence_vectors.update(result.occurrence_vectors)
     entries = [result.entry for result in results]
     counts = {
         "verbs": len(entries),
@@ -324,6 +326,7 @@ def induce_on_executor(
     result_ = InductionResult(
         entries=entries,
         centroids=centroids,
+        occurrence_vectors=occurrence_vectors,
         assignments=[a for result in results for a in result.assignments],
         settings=resolved,
         representation=representation.id,

@@ -16,7 +16,7 @@ from __future__ import annotations
 import itertools
 import zlib
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
@@ -75,6 +75,8 @@ class VerbResult:
     entry: Entry
     centroids: dict[str, npt.NDArray[np.float32]]
     assignments: list[Assignment]
+    # Up to OCCURRENCE_SAMPLE member vectors per sense, for the review site's projection.
+    occurrence_vectors: dict[str, npt.NDArray[np.float32]] = field(default_factory=dict)
 
 
 def sample_indices(n: int, cap: int, lemma: str, random_state: int) -> npt.NDArray[np.intp]:
@@ -142,6 +144,7 @@ def induce_verb(task: VerbTask) -> VerbResult:
     order = sorted((c for c in range(k) if sizes[c]), key=lambda c: (-sizes[c], first_seen[c]))
     senses: list[Sense] = []
     centroids: dict[str, npt.NDArray[np.float32]] = {}
+    samples: dict[str, npt.NDArray[np.float32]] = {}
     sense_of_cluster: dict[int, str] = {}
     for cluster in order:
         sid = curated.get(cluster) or next(i for i in fresh if i not in taken)
@@ -150,6 +153,7 @@ def induce_verb(task: VerbTask) -> VerbResult:
         centroid = Xn[members].astype(np.float64).sum(axis=0)
         centroid /= max(float(np.linalg.norm(centroid)), 1e-12)
         centroids[sid] = centroid.astype(np.float32)
+        samples[sid] = Xn[members[_spread(members.size, OCCURRENCE_SAMPLE)]]
         member_occs = [occs[int(i)] for i in members]
         frames = _frames(member_occs, sid, settings)
         similarity = (Xn[members] @ centroid).tolist()
@@ -183,4 +187,15 @@ def induce_verb(task: VerbTask) -> VerbResult:
         for occ, label in zip(occs, labels, strict=True)
     ]
     entry = Entry(id=eid, lemma=task.lemma, pos="VERB", senses=senses)
-    return VerbResult(entry, centroids, assignments)
+    return VerbResult(entry, centroids, assignments, samples)
+
+
+#: Member vectors kept per sense for the review site (evenly spread over the sense's members).
+OCCURRENCE_SAMPLE = 60
+
+
+def _spread(n: int, k: int) -> npt.NDArray[np.intp]:
+    """``min(n, k)`` indices spread evenly over ``range(n)`` (deterministic)."""
+    if n <= k:
+        return np.arange(n, dtype=np.intp)
+    return np.linspace(0, n - 1, k).round().astype(np.intp)

@@ -64,6 +64,8 @@ class InductionResult:
     cache: CacheStats = field(default_factory=CacheStats)
     threshold_source: str = "given"
     guided: dict[str, Any] | None = None  # curated senses used, unsupported ones (guided runs)
+    # A sample of each sense's occurrence vectors (induce.OCCURRENCE_SAMPLE), for review.
+    occurrence_vectors: dict[str, npt.NDArray[np.float32]] = field(default_factory=dict)
 
     def manifest(self) -> dict[str, Any]:
         """The content of ``induction.json``."""
@@ -250,8 +252,10 @@ class SenseInducer:
             if on_verb is not None:
                 on_verb(result.entry.lemma, len(result.assignments))
         centroids: dict[str, npt.NDArray[np.float32]] = {}
+        occurrence_vectors: dict[str, npt.NDArray[np.float32]] = {}
         for result in results:
             centroids.update(result.centroids)
+            occurrence_vectors.update(result.occurrence_vectors)
         entries = [result.entry for result in results]
         counts = {
             "verbs": len(entries),
@@ -264,6 +268,7 @@ class SenseInducer:
         self.result_ = InductionResult(
             entries=entries,
             centroids=centroids,
+            occurrence_vectors=occurrence_vectors,
             assignments=[a for result in results for a in result.assignments],
             settings=resolved,
             representation=self.representation.id,

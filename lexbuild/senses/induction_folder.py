@@ -46,6 +46,8 @@ __all__ = [
 
 MANIFEST_FILE = "induction.json"
 CENTROIDS_FILE = "centroids.npz"
+#: A sample of each induced sense's occurrence vectors (float16), for the review site's picture.
+OCCURRENCE_VECTORS_FILE = "occurrence-vectors.npz"
 ASSIGNMENTS_FILE = "assignments.tsv"
 ASSIGNMENTS_HEADER = ("lemma", "sense", "corpus", "sent_id", "token")
 
@@ -56,14 +58,14 @@ Sentence = tuple[str, str]  # (corpus, sentence id)
 # ------------------------------------------------------------------------------ centroids
 
 
-def centroids_bytes(arrays: Mapping[str, npt.ArrayLike]) -> bytes:
+def centroids_bytes(arrays: Mapping[str, npt.ArrayLike], dtype: type = np.float32) -> bytes:
     """``numpy.savez`` content with sorted keys and fixed zip timestamps (numpy stamps the
     current time): the same centroids give the same bytes."""
     buffer = io.BytesIO()
     with zipfile.ZipFile(buffer, "w", compression=zipfile.ZIP_STORED) as archive:
         for key in sorted(arrays):
             member = io.BytesIO()
-            np.lib.format.write_array(member, np.ascontiguousarray(arrays[key], dtype=np.float32))
+            np.lib.format.write_array(member, np.ascontiguousarray(arrays[key], dtype=dtype))
             info = zipfile.ZipInfo(f"{key}.npy", date_time=(1980, 1, 1, 0, 0, 0))
             info.external_attr = 0o644 << 16
             archive.writestr(info, member.getvalue())
@@ -218,5 +220,10 @@ def write_induction(
             atomic_write_text(stage / ENTRIES_DIR / f"{entry.id}.yaml", dump_entry(entry))
         atomic_write_bytes(stage / CENTROIDS_FILE, centroids_bytes(result.centroids))
         atomic_write_text(stage / ASSIGNMENTS_FILE, _assignments_tsv(result.assignments))
+        if result.occurrence_vectors:
+            atomic_write_bytes(
+                stage / OCCURRENCE_VECTORS_FILE,
+                centroids_bytes(result.occurrence_vectors, dtype=np.float16),
+            )
         swap_dir(stage, target)
     return target
