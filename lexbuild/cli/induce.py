@@ -190,6 +190,10 @@ def run_induce(args: argparse.Namespace) -> int:
         guide = load_guide(args.guide, drafts=args.guide_drafts)
         settings, representation = _guided_settings(args, settings, representation)
     if args.workers is not None or args.scheduler is not None:
+        if guide is not None:
+            raise InductionError(
+                "--guide runs in one process for now: drop --workers/--scheduler"
+            )
         return _run_induce_distributed(args, files, output, settings, representation)
     inducer = SenseInducer(
         representation, settings=settings, calibration=args.calibration, cache=open_cache(args),

@@ -48,7 +48,7 @@ from lexbuild.errors import InductionError
 from lexbuild.senses.calibrate import Calibration
 from lexbuild.senses.executor import Executor
 from lexbuild.senses.induce import VerbResult, VerbTask, induce_verb
-from lexbuild.senses.inducer import InductionResult, _run_id
+from lexbuild.senses.inducer import InductionResult, _run_id, assemble_result
 from lexbuild.senses.settings import InductionSettings
 from lexbuild.senses.threshold import ThresholdChoice, choose_threshold
 from lexbuild.senses.vectors import CacheStats, Representation, VectorCache, encode_cached
@@ -309,33 +309,15 @@ def induce_on_executor(
             shutil.rmtree(folder, ignore_errors=True)
         if cache is not None:
             merge_vector_shards(cache)
-    results = [by_lemma[lemma] for lemma in kept]
-    centroids: dict[str, npt.NDArray[np.float32]] = {}
-    occurrence_vectors: dict[str, npt.NDArray[np.float32]] = {}
-    for result in results:
-        centroids.update(result.centroids)
-        occurrence_vectors.update(result.occurrence_vectors)
-    entries = [result.entry for result in results]
-    counts = {
-        "verbs": len(entries),
-        "senses": sum(len(e.senses) for e in entries),
-        "occurrences": sum(spilled.counts[lemma] for lemma in kept),
-        "clustered": sum(min(spilled.counts[lemma], settings.cap) for lemma in kept),
-        "skipped_verbs": len(selected) - len(kept),
-    }
-    result_ = InductionResult(
-        entries=entries,
-        centroids=centroids,
-        occurrence_vectors=occurrence_vectors,
-        assignments=[a for result in results for a in result.assignments],
+    induced = assemble_result(
+        [by_lemma[lemma] for lemma in kept],
         settings=resolved,
-        representation=representation.id,
-        model=representation.model,
-        representation_settings=representation.settings,
+        representation=representation,
         run=run,
-        corpus=[str(p) for p in corpus],
-        counts=counts,
-        cache=stats,
+        corpus=corpus,
+        occurrences={lemma: spilled.counts[lemma] for lemma in kept},
+        skipped_verbs=len(selected) - len(kept),
+        stats=stats,
         threshold_source=choice.source,
     )
-    return result_, choice
+    return induced, choice

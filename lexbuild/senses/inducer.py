@@ -251,39 +251,71 @@ class SenseInducer:
             results.append(result)
             if on_verb is not None:
                 on_verb(result.entry.lemma, len(result.assignments))
-        centroids: dict[str, npt.NDArray[np.float32]] = {}
-        occurrence_vectors: dict[str, npt.NDArray[np.float32]] = {}
-        for result in results:
-            centroids.update(result.centroids)
-            occurrence_vectors.update(result.occurrence_vectors)
         entries = [result.entry for result in results]
-        counts = {
-            "verbs": len(entries),
-            "senses": sum(len(e.senses) for e in entries),
-            "occurrences": sum(len(o) for o in kept.values()),
-            "clustered": sum(min(len(o), settings.cap) for o in kept.values()),
-            "skipped_verbs": len(by_lemma) - len(kept),
-        }
         self.threshold_ = choice
-        self.result_ = InductionResult(
-            entries=entries,
-            centroids=centroids,
-            occurrence_vectors=occurrence_vectors,
-            assignments=[a for result in results for a in result.assignments],
+        self.result_ = assemble_result(
+            results,
             settings=resolved,
-            representation=self.representation.id,
-            model=self.representation.model,
-            representation_settings=self.representation.settings,
+            representation=self.representation,
             run=run,
-            corpus=[str(p) for p in corpus],
-            counts=counts,
-            cache=stats,
+            corpus=corpus,
+            occurrences={lemma: len(occs) for lemma, occs in kept.items()},
+            skipped_verbs=len(by_lemma) - len(kept),
+            stats=stats,
             threshold_source=choice.source,
             guided=(
                 None if self.guide is None else _guided_report(self.guide, entries, kept, wanted)
             ),
         )
         return self
+
+
+def assemble_result(
+    results: Sequence[VerbResult],
+    *,
+    settings: InductionSettings,
+    representation: Representation,
+    run: str,
+    corpus: Iterable[str | Path],
+    occurrences: Mapping[str, int],
+    skipped_verbs: int,
+    stats: CacheStats,
+    threshold_source: str,
+    guided: dict[str, Any] | None = None,
+) -> InductionResult:
+    """One run's result from its verbs' results (in lemma order), wherever they were computed.
+
+    ``occurrences``: occurrences per induced verb (all, not only the clustered sample).
+    """
+    centroids: dict[str, npt.NDArray[np.float32]] = {}
+    occurrence_vectors: dict[str, npt.NDArray[np.float32]] = {}
+    for result in results:
+        centroids.update(result.centroids)
+        occurrence_vectors.update(result.occurrence_vectors)
+    entries = [result.entry for result in results]
+    counts = {
+        "verbs": len(entries),
+        "senses": sum(len(e.senses) for e in entries),
+        "occurrences": sum(occurrences.values()),
+        "clustered": sum(min(n, settings.cap) for n in occurrences.values()),
+        "skipped_verbs": skipped_verbs,
+    }
+    return InductionResult(
+        entries=entries,
+        centroids=centroids,
+        occurrence_vectors=occurrence_vectors,
+        assignments=[a for result in results for a in result.assignments],
+        settings=settings,
+        representation=representation.id,
+        model=representation.model,
+        representation_settings=representation.settings,
+        run=run,
+        corpus=[str(p) for p in corpus],
+        counts=counts,
+        cache=stats,
+        threshold_source=threshold_source,
+        guided=guided,
+    )
 
 
 def _guided_report(
