@@ -184,6 +184,11 @@ def ud_relations(
             new_deps[noun] = "obl" if verbal_governor else "nmod"
         new_heads[prep] = noun
         new_deps[prep] = "case" if objects else "mark"
+    # One root per tree (CoNLL-U): a span of several spaCy sentences (``one_sentence``) keeps
+    # its first root, the others hang from it as parataxis (UD's relation for juxtaposition).
+    roots = [k for k in range(n) if new_heads[k] == -1]
+    for k in roots[1:]:
+        new_heads[k], new_deps[k] = roots[0], "parataxis"
     for k in range(n):
         if new_deps[k] == "pobj":  # an object of something that is not a preposition
             new_deps[k] = "obj"
