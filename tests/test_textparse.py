@@ -12,7 +12,13 @@ from hypothesis import strategies as st
 
 from lexbuild.corpus.conllu import read_sentences
 from lexbuild.corpus.occurrences import iter_occurrences
-from lexbuild.corpus.textparse import load_pipeline, parse_texts, ud_relations, verbal_upos
+from lexbuild.corpus.textparse import (
+    load_pipeline,
+    parse_texts,
+    participle_feats,
+    ud_relations,
+    verbal_upos,
+)
 from lexbuild.errors import CorpusError, ModelLoadError
 
 if TYPE_CHECKING:
@@ -135,6 +141,12 @@ def test_verbs_the_tagger_missed() -> None:
     assert verbal_upos(upos, heads, deps) == upos
     # An adjective with only adjectival dependents stays ADJ.
     assert verbal_upos(["NOUN", "ADJ", "ADV"], [-1, 0, 1], ["root", "amod", "advmod"])[1] == "ADJ"
+    # Retagged adjectives become participles: French present participles end in -ant
+    # (common practice), the others are past participles.
+    assert participle_feats("Gender=Fem|Number=Plur", "fournies", "fr") == (
+        "Gender=Fem|Number=Plur|Tense=Past|VerbForm=Part"
+    )
+    assert "Tense=Pres" in participle_feats("", "humiliant", "fr")
 
 
 # ------------------------------------------------------------------------ with the pipeline

