@@ -55,6 +55,20 @@ def test_french_labels() -> None:
         ["en", "va"], ["PRON", "VERB"], [1, 1], ["expl:comp", "ROOT"], ["Person=3", ""]
     )
     assert deps == ["expl:comp", "root"]
+    # French expletive subjects are il, ce, cela (UD French guidelines, expl:subj; from memory):
+    # a feminine, plural or first/second person subject the parser calls expl:subj is nsubj.
+    _, deps = ud_relations(
+        ["On", "y", "retourne"],
+        ["PRON", "PRON", "VERB"],
+        [2, 2, 2],
+        ["expl:subj", "iobj", "ROOT"],
+        ["Gender=Masc|Number=Sing|Person=3", "Person=3", ""],
+    )
+    assert deps[0] == "nsubj"
+    _, deps = ud_relations(
+        ["Elles", "partent"], ["PRON", "VERB"], [1, 1], ["expl:subj", "ROOT"], ["Number=Plur", ""]
+    )
+    assert deps[0] == "nsubj"
 
 
 def test_clearnlp_prepositional_phrases_are_turned_around() -> None:

