@@ -251,6 +251,43 @@ def test_induce_identical_in_one_process_two_workers_and_a_loopback_cluster(
     assert list(spill_parent.glob("lexbuild-spill-*")) == []  # the partitions are removed
 
 
+# ---------------------------------------------------------------------------- calibrate
+
+
+def _calibrate(
+    capsys: pytest.CaptureFixture[str], corpus: Path, out: Path, cache: Path, *extra: str
+) -> str:
+    code, stdout, err = _run(
+        capsys, "calibrate", str(corpus), "-o", str(out), "--pairs", "3", "--matched-pairs",
+        "2", "--triples", "1", "--min-count", "15", "--per-verb", "20", "--compare", "hdbscan",
+        "--cache", str(cache), *extra,
+    )
+    assert code == 0, err
+    return stdout
+
+
+def test_calibrate_identical_in_one_process_two_workers_and_a_loopback_cluster(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str], loopback_scheduler: str, ud_dir: Path,
+) -> None:
+    corpus = ud_dir / "fr_sequoia-ud-dev.conllu"
+    _calibrate(capsys, corpus, tmp_path / "single", tmp_path / "cache-single")
+    _calibrate(capsys, corpus, tmp_path / "remote", tmp_path / "cache",
+               "--scheduler", loopback_scheduler)
+    _calibrate(capsys, corpus, tmp_path / "local", tmp_path / "cache2", "--workers", "2")
+    expected = _folder_bytes(tmp_path / "single")
+    assert {"calibration.json", "calibration.png", "comparison.md"} <= set(expected)
+    assert len(json.loads(expected["calibration.json"])["pseudo_verbs"]) == 6
+    assert _folder_bytes(tmp_path / "remote") == expected
+    assert _folder_bytes(tmp_path / "local") == expected
+    # The workers' cache shards were merged into the main file: a rerun finds every vector.
+    assert not (tmp_path / "cache" / "vector_shards").exists()
+    from lexbuild.senses.vectors import VectorCache
+
+    with VectorCache(tmp_path / "cache") as merged, VectorCache(tmp_path / "cache-single") as one:
+        assert merged._db.execute("SELECT count(*) FROM vectors").fetchone()[0] == \
+            one._db.execute("SELECT count(*) FROM vectors").fetchone()[0] > 0
+
+
 # ------------------------------------------------------------------------------- failures
 
 
