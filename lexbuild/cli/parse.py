@@ -31,6 +31,17 @@ def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) ->
         "--workers", type=int, default=1, metavar="N", help="parser processes (nlp.pipe n_process)"
     )
     parser.add_argument("--batch-size", type=int, default=64, metavar="N", help=argparse.SUPPRESS)
+    # --workers already means spaCy's own processes here (since the first release), so the
+    # Dask options of this command are named apart: --dask-workers and --scheduler.
+    dask = parser.add_argument_group("distributed (Dask)").add_mutually_exclusive_group()
+    dask.add_argument(
+        "--dask-workers", type=int, metavar="N",
+        help="parse on a local Dask cluster of N worker processes (chunks of paragraphs)",
+    )
+    dask.add_argument(
+        "--scheduler", metavar="ADDRESS",
+        help="parse on an existing Dask cluster (e.g. tcp://host:8786; see the README)",
+    )
     parser.add_argument(
         "--clean-parts",
         action="store_true",
@@ -41,19 +52,25 @@ def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) ->
 
 def run_parse(args: argparse.Namespace) -> int:
     from lexbuild.corpus.textparse import DEFAULT_PIPELINE, parse_texts
+    from lexbuild.distributed import open_executor
     from lexbuild.errors import CorpusError
 
     if args.workers < 1:
         raise CorpusError(f"--workers must be at least 1, got {args.workers}")
-    report = parse_texts(
-        args.text,
-        args.output,
-        pipeline=args.pipeline or DEFAULT_PIPELINE,
-        workers=args.workers,
-        batch_size=args.batch_size,
-        progress=True,
-        clean_parts=args.clean_parts,
-    )
+    distributed = args.dask_workers is not None or args.scheduler is not None
+    if distributed and args.workers > 1:
+        raise CorpusError("--workers (spaCy processes) does not go with --dask-workers/--scheduler")
+    with open_executor(args.dask_workers, args.scheduler) as executor:
+        report = parse_texts(
+            args.text,
+            args.output,
+            pipeline=args.pipeline or DEFAULT_PIPELINE,
+            workers=args.workers,
+            batch_size=args.batch_size,
+            progress=True,
+            clean_parts=args.clean_parts,
+            executor=executor,
+        )
     print(
         f"lexbuild parse: {len(report.parsed)} file(s) parsed ({report.sentences} sentences), "
         f"{len(report.reused)} already parsed, with {report.pipeline} -> {report.output}",

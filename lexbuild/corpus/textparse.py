@@ -103,6 +103,8 @@ if TYPE_CHECKING:
     from spacy.language import Language
     from spacy.tokens import Doc, Span
 
+    from lexbuild.senses.executor import Executor
+
 __all__ = [
     "DEFAULT_PIPELINE",
     "MAPPING_VERSION",
@@ -396,14 +398,22 @@ def doc_to_conllu(
     ``one_sentence`` writes the whole doc as one sentence (one root per spaCy sentence), to
     compare with gold trees sentence by sentence.
     """
+    return _sentences_to_conllu(_doc_sentences(doc, one_sentence), stem, first_number, newpar)
+
+
+def _doc_sentences(doc: Doc, one_sentence: bool = False) -> list[tuple[str, list[str]]]:
+    """Each sentence's text and token lines (numbered by the caller: a worker cannot know)."""
     language = doc.lang_
+    made = (_sentence_lines(sent, language) for sent in ([doc[:]] if one_sentence else doc.sents))
+    return [sentence for sentence in made if sentence is not None]
+
+
+def _sentences_to_conllu(
+    sentences: Sequence[tuple[str, list[str]]], stem: str, first_number: int, newpar: bool
+) -> tuple[str, int]:
     blocks: list[str] = []
     number = first_number
-    for sent in [doc[:]] if one_sentence else doc.sents:
-        made = _sentence_lines(sent, language)
-        if made is None:
-            continue
-        text, lines = made
+    for text, lines in sentences:
         header = [f"# sent_id = {stem}.{number}", f"# text = {text}"]
         if newpar and not blocks:
             header.insert(0, "# newpar")
@@ -496,10 +506,13 @@ def parse_texts(
     progress: bool = False,
     clean_parts: bool = False,
     nlp: Language | None = None,
+    executor: Executor | None = None,
 ) -> ParseReport:
     """Parse plain-text files into one CoNLL-U file (resumable; see the module docstring).
 
     ``nlp`` may be given to reuse a loaded pipeline (then ``pipeline`` is not loaded).
+    ``executor`` (a Dask cluster): chunks of paragraphs are parsed on its workers, each
+    loading ``pipeline`` once; the output is the same, byte for byte.
     """
     if workers < 1:
         raise ValueError(f"workers must be at least 1, got {workers}")
@@ -516,7 +529,13 @@ def parse_texts(
     report = ParseReport(output=output, pipeline=pipeline_id)
     pending = [i for i, part in enumerate(parts) if not part.exists()]
     report.reused = [files[i] for i in range(len(files)) if i not in set(pending)]
-    if pending:
+    if pending and executor is not None:
+        report.sentences = _parse_pending_on_executor(
+            executor, pipeline if nlp is None else nlp.meta["lang"] + "_" + nlp.meta["name"],
+            files, parts, pending, batch_size, progress,
+        )
+        report.parsed = [files[i] for i in pending]
+    elif pending:
         if nlp is None:
             nlp = load_pipeline(pipeline)
         report.sentences = _parse_pending(nlp, files, parts, pending, workers, batch_size, progress)
@@ -564,6 +583,80 @@ def _parse_pending(
                 bar.update(len(doc.text.encode("utf-8")) + 2)
             for index in pending:  # files without any text still get their (empty) part
                 writer.switch_to(index)
+            writer.close()
+        finally:
+            writer.abort()
+    return sentences
+
+
+#: Characters of paragraphs per task on a Dask worker (a large file makes many tasks).
+_TASK_CHARS = 200_000
+_WORKER_PIPELINES: dict[str, Language] = {}
+
+
+@dataclass(frozen=True)
+class _ChunkTask:
+    pipeline: str
+    paragraphs: tuple[str, ...]
+    batch_size: int
+
+
+def _parse_chunk(task: _ChunkTask) -> list[list[tuple[str, list[str]]]]:
+    """Each paragraph's sentences (a worker task; the pipeline is loaded once per process)."""
+    nlp = _WORKER_PIPELINES.get(task.pipeline)
+    if nlp is None:
+        nlp = _WORKER_PIPELINES[task.pipeline] = load_pipeline(task.pipeline)
+    return [_doc_sentences(doc) for doc in nlp.pipe(task.paragraphs, batch_size=task.batch_size)]
+
+
+def _parse_pending_on_executor(
+    executor: Executor,
+    pipeline: str,
+    files: list[Path],
+    parts: list[Path],
+    pending: list[int],
+    batch_size: int,
+    progress: bool,
+) -> int:
+    """``_parse_pending`` with chunks of paragraphs parsed on the executor's workers."""
+    from tqdm import tqdm
+
+    def chunks() -> Iterator[tuple[int, _ChunkTask]]:
+        # Cut at paragraph boundaries; the results come back in this order.
+        for index in pending:
+            chunk: list[str] = []
+            size = 0
+            for paragraph in _paragraphs(files[index]):
+                chunk.append(paragraph)
+                size += len(paragraph)
+                if size >= _TASK_CHARS:
+                    yield index, _ChunkTask(pipeline, tuple(chunk), batch_size)
+                    chunk, size = [], 0
+            yield index, _ChunkTask(pipeline, tuple(chunk), batch_size)
+
+    planned: list[int] = []
+
+    def tasks() -> Iterator[_ChunkTask]:
+        for index, task in chunks():
+            planned.append(index)
+            yield task
+
+    total_bytes = sum(files[i].stat().st_size for i in pending)
+    writer = _PartWriter(files, parts)
+    sentences = 0
+    with tqdm(total=total_bytes, unit="B", unit_scale=True, desc="parsing",
+              disable=not progress or None, file=None) as bar:
+        try:
+            for number, paragraphs in enumerate(executor.map(_parse_chunk, tasks())):
+                index = planned[number]
+                writer.switch_to(index)
+                for paragraph in paragraphs:
+                    text, count = _sentences_to_conllu(
+                        paragraph, _stem(files[index]), writer.next_number, True
+                    )
+                    writer.write(text, count)
+                    sentences += count
+                    bar.update(sum(len(t.encode("utf-8")) for t, _ in paragraph) + 2)
             writer.close()
         finally:
             writer.abort()

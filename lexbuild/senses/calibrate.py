@@ -30,6 +30,7 @@ from lexbuild._atomic import atomic_write_bytes, atomic_write_text
 from lexbuild.corpus.occurrences import Argument, Occurrence
 from lexbuild.errors import InductionError, SourceLocation
 from lexbuild.senses.evaluation import evaluate_verb
+from lexbuild.senses.executor import Executor, InProcessExecutor
 from lexbuild.senses.registry import get_clusterer
 from lexbuild.senses.settings import CalibrationSettings, InductionSettings
 from lexbuild.senses.vectors import CacheStats, Representation, VectorCache, encode_cached
@@ -233,6 +234,7 @@ def _pseudo_verb_vectors(
     settings: InductionSettings,
     cache: VectorCache | None,
     stats: CacheStats | None,
+    executor: Executor | None = None,
 ) -> tuple[list[_Scored], dict[str, Any] | None]:
     options = settings.calibration
     by_lemma: dict[str, list[Occurrence]] = defaultdict(list)
@@ -254,18 +256,82 @@ def _pseudo_verb_vectors(
             placeholder=representation.placeholder, mask=options.mask,
             random_state=settings.random_state,
         )
-    out = []
-    for pseudo in pseudo_verbs:
-        occs, gold = conflate(
+    conflated = [
+        (pseudo, *conflate(
             by_lemma,
             pseudo,
             per_verb=options.per_verb,
             placeholder=representation.placeholder,
             mask=options.mask,
             random_state=settings.random_state,
-        )
-        out.append(_Scored(pseudo, encode_cached(representation, occs, cache, stats=stats), gold))
+        ))
+        for pseudo in pseudo_verbs
+    ]
+    if executor is None:
+        out = [_Scored(pseudo, encode_cached(representation, occs, cache, stats=stats), gold)
+               for pseudo, occs, gold in conflated]
+        return out, layers
+    # On workers: one task per pseudo-verb; each worker writes its own cache shard, merged
+    # into the main file afterwards (as in distributed induction).
+    from lexbuild.senses.distributed_induce import _portable, merge_vector_shards
+
+    folder = None if cache is None else str(cache.path)
+    portable = _portable(representation)
+    tasks = (_EncodeTask(occs, portable, folder) for _pseudo, occs, _gold in conflated)
+    out = []
+    try:
+        for (pseudo, _occs, gold), (vectors, task_stats) in zip(
+            conflated, executor.map(_encode_pseudo_verb, tasks), strict=True
+        ):
+            out.append(_Scored(pseudo, vectors, gold))
+            if stats is not None:
+                stats.hits += task_stats.hits
+                stats.computed += task_stats.computed
+    finally:
+        if folder is not None:
+            merge_vector_shards(folder)
     return out, layers
+
+
+@dataclass(frozen=True)
+class _EncodeTask:
+    occurrences: list[Occurrence]
+    representation: Representation
+    cache: str | None
+
+
+def _encode_pseudo_verb(task: _EncodeTask) -> tuple[np.ndarray, CacheStats]:
+    """A pseudo-verb's vectors, through the worker's cache shard (a worker task)."""
+    from lexbuild.senses.distributed_induce import _WorkerCache
+
+    stats = CacheStats()
+    cache = _WorkerCache(task.cache) if task.cache is not None else None
+    try:
+        vectors = encode_cached(
+            task.representation, task.occurrences, cache, stats=stats  # type: ignore[arg-type]
+        )
+    finally:
+        if cache is not None:
+            cache.close()
+    return vectors, stats
+
+
+@dataclass(frozen=True)
+class _SweepTask:
+    item: _Scored
+    settings: InductionSettings
+    grid: tuple[float, ...]
+
+
+def _sweep_pseudo_verb(task: _SweepTask) -> list[Any]:
+    """The pseudo-verb's scores at each value of the grid (a pure function: a worker task)."""
+    spec = get_clusterer(task.settings.clusterer)
+    clusterer = spec.make(task.settings, task.grid[0])
+    item = task.item
+    return [
+        evaluate_verb(item.gold, labels.tolist(), item.pseudo.name)
+        for labels in clusterer.sweep(item.vectors, list(task.grid))
+    ]
 
 
 def _sweep(
@@ -274,6 +340,7 @@ def _sweep(
     settings: InductionSettings,
     progress: Callable[[int], None] | None,
     layers: dict[str, Any] | None = None,
+    executor: Executor | None = None,
 ) -> Calibration:
     spec = get_clusterer(settings.clusterer)
     values = settings.calibration.thresholds or spec.grid(settings)
@@ -281,12 +348,12 @@ def _sweep(
     scores: dict[float, list[Any]] = {t: [] for t in grid}
     per_verb_ari: dict[str, list[float]] = {}
     described: list[dict[str, Any]] = []
-    clusterer = spec.make(settings, grid[0])
-    for item in scored:
+    tasks = (_SweepTask(item, settings, tuple(grid)) for item in scored)
+    swept = (executor or InProcessExecutor()).map(_sweep_pseudo_verb, tasks)
+    for item, per_threshold in zip(scored, swept, strict=True):
         pseudo, gold = item.pseudo, item.gold
         aris: list[float] = []
-        for t, labels in zip(grid, clusterer.sweep(item.vectors, grid), strict=True):
-            verb_scores = evaluate_verb(gold, labels.tolist(), pseudo.name)
+        for t, verb_scores in zip(grid, per_threshold, strict=True):
             scores[t].append(verb_scores)
             aris.append(verb_scores.ari)
         per_verb_ari[pseudo.name] = aris
@@ -364,6 +431,7 @@ def calibrate(
     cache: VectorCache | None = None,
     stats: CacheStats | None = None,
     progress: Callable[[int], None] | None = None,
+    executor: Executor | None = None,
     **options: Any,
 ) -> Calibration:
     """Sweep the clusterer's parameter on pseudo-verbs built from ``occurrences``.
@@ -371,11 +439,14 @@ def calibrate(
     The clusterer, its parameters and ``random_state`` come from ``settings`` (the same that
     induction uses), pseudo-verb options from ``settings.calibration`` (``options`` override
     them: ``pairs=10``, ``per_verb=80`` ...). The value with the best mean ARI is recommended.
-    ``progress`` is called with 1 after each pseudo-verb is scored.
+    ``progress`` is called with 1 after each pseudo-verb is scored. ``executor`` (a Dask
+    cluster): each pseudo-verb encoded and swept in a task of its own, the same result.
     """
     settings = _settings(settings, thresholds, options)
-    scored, layers = _pseudo_verb_vectors(occurrences, representation, settings, cache, stats)
-    return _sweep(scored, representation, settings, progress, layers)
+    scored, layers = _pseudo_verb_vectors(
+        occurrences, representation, settings, cache, stats, executor
+    )
+    return _sweep(scored, representation, settings, progress, layers, executor)
 
 
 def compare_clusterers(
@@ -387,6 +458,7 @@ def compare_clusterers(
     cache: VectorCache | None = None,
     stats: CacheStats | None = None,
     progress: Callable[[int], None] | None = None,
+    executor: Executor | None = None,
     **options: Any,
 ) -> dict[str, Calibration]:
     """``calibrate`` for each of ``clusterers`` on the same pseudo-verbs and the same vectors.
@@ -401,9 +473,13 @@ def compare_clusterers(
         )
     for name in clusterers:
         get_clusterer(name)  # an unknown name fails before any encoding
-    scored, layers = _pseudo_verb_vectors(occurrences, representation, settings, cache, stats)
+    scored, layers = _pseudo_verb_vectors(
+        occurrences, representation, settings, cache, stats, executor
+    )
     return {
-        name: _sweep(scored, representation, settings.updated(clusterer=name), progress, layers)
+        name: _sweep(
+            scored, representation, settings.updated(clusterer=name), progress, layers, executor
+        )
         for name in clusterers
     }
 

@@ -274,6 +274,7 @@ def induce_on_executor(
                 cache=driver_cache,
                 stats=stats,
                 progress=on_calibrated,
+                executor=executor,  # pseudo-verbs encoded and swept on the workers
             )
         finally:
             if driver_cache is not None:

@@ -85,6 +85,7 @@ def choose_threshold(
     cache: VectorCache | None = None,
     stats: CacheStats | None = None,
     progress: Callable[[int], None] | None = None,
+    executor: Any = None,
 ) -> ThresholdChoice:
     """Apply the policy of the module docstring.
 
@@ -109,7 +110,8 @@ def choose_threshold(
     spec = get_clusterer(settings.clusterer)
     try:
         calibrated = calibrate(
-            occurrences, representation, settings, cache=cache, stats=stats, progress=progress
+            occurrences, representation, settings, cache=cache, stats=stats, progress=progress,
+            executor=executor,
         )
     except InductionError as error:
         if choose_layers:
