@@ -73,10 +73,10 @@ Mutator = Callable[[bytes, random.Random, "Reader"], bytes]
 
 @dataclass
 class Reader:
-    """One reader under test: the seed files it reads and how to run it on a mutated one."""
+    """One reader under test: the real file it reads and how to run it on a mutated one."""
 
     name: str
-    seed: bytes  # the real file the inputs are mutated from
+    original: bytes  # the real file the inputs are mutated from
     file_name: str  # the name the mutated input is written under
     run: Callable[[Path], Any]  # reads the folder holding the input; raises on bad input
     tokens: tuple[bytes, ...]  # snippets the format gives a meaning to
@@ -169,7 +169,7 @@ def conllu_deep(depth: int) -> bytes:
 
 
 def build_readers(ud: Path, schemas: Path | None) -> dict[str, Reader]:
-    """Every reader, with its seed read from the shared data and the sample lexicon."""
+    """Every reader, with its original read from the shared data and the sample lexicon."""
     from lexbuild.editions.diff import tei_snapshot
     from lexbuild.formats.lmf import to_lmf
     from lexbuild.formats.tei import read_tei, to_tei
@@ -181,7 +181,8 @@ def build_readers(ud: Path, schemas: Path | None) -> dict[str, Reader]:
 
     conllu = _ud_slice(ud)
     lexicon = load_lexicon(SAMPLE).lexicon
-    # Five entries are enough to hold every construct; a smaller seed makes more inputs per second.
+    # Five entries are enough to hold every construct; a smaller original makes more inputs
+    # per second.
     small = lexicon.model_copy(update={"entries": lexicon.entries[:5]})
     tei, lmf = to_tei(small), to_lmf(small)
     entry_file = sorted((SAMPLE / "entries").glob("*.yaml"))[0]
@@ -365,7 +366,7 @@ MUTATORS: tuple[Mutator, ...] = (
 
 def mutate(reader: Reader, rng: random.Random) -> tuple[bytes, list[str]]:
     """A mutated input for ``reader`` and the names of the mutations applied."""
-    data = reader.seed
+    data = reader.original
     names = []
     for _ in range(rng.choice((1, 1, 2, 3))):
         mutator = rng.choice(MUTATORS)
@@ -457,7 +458,7 @@ def fuzz(
     counts = {"clean": 0, "accepted": 0, "crash": 0, "hang": 0}
     examples: list[str] = []
     folder = work / reader.name
-    prepare(reader, folder, reader.seed)
+    prepare(reader, folder, reader.original)
     for number in range(inputs):
         data, names = mutate(reader, rng)
         (folder / reader.file_name).write_bytes(data)  # the other files are never changed

@@ -43,13 +43,13 @@ def test_every_reader_is_fuzzed(readers: dict[str, Reader]) -> None:
     assert sorted(readers) == sorted(READER_NAMES)
 
 
-def test_the_seeds_are_accepted(readers: dict[str, Reader], tmp_path: Path) -> None:
+def test_the_original_files_are_accepted(readers: dict[str, Reader], tmp_path: Path) -> None:
     # The control: unmutated real files read cleanly, so an error below comes from the mutation.
     for reader in readers.values():
         prepare(
             reader,
             tmp_path / reader.name,
-            reader.compress(reader.seed) if reader.compress else reader.seed,
+            reader.compress(reader.original) if reader.compress else reader.original,
         )
         assert outcome(reader, tmp_path / reader.name, 30.0) == ("accepted", ""), reader.name
 

@@ -171,7 +171,7 @@ def test_same_sources_give_a_byte_identical_site(
 
 def test_site_bytes_do_not_depend_on_the_process(sample_lexicon_dir: Path,
                                                  tmp_path: Path) -> None:
-    # Two interpreters with different string hash seeds (set and dict orders could differ).
+    # Two interpreters with different string hashing (set and dict orders could differ).
     import os
     import subprocess
     import sys
@@ -179,13 +179,13 @@ def test_site_bytes_do_not_depend_on_the_process(sample_lexicon_dir: Path,
     lexicon = load_lexicon(sample_lexicon_dir).lexicon
     induction = write_test_induction(lexicon, tmp_path / "induced")
     calibration = write_test_calibration(tmp_path / "calibration")
-    for seed in ("1", "2"):
+    for salt in ("1", "2"):
         subprocess.run(
             [sys.executable, "-m", "lexbuild", "preview", str(sample_lexicon_dir),
              "--induction", str(induction), "--calibration", str(calibration),
-             "--output", str(tmp_path / seed)],
+             "--output", str(tmp_path / salt)],
             check=True, capture_output=True, cwd=Path(__file__).resolve().parent.parent,
-            env={**os.environ, "PYTHONHASHSEED": seed},
+            env={**os.environ, "PYTHONHASHSEED": salt},
         )
     assert _tree(tmp_path / "1") == _tree(tmp_path / "2")
 

@@ -300,9 +300,10 @@ class AgglomerativeClusterer:
         n = Xn.shape[0]
         k = min(self.n_micro, n)
         # One initialisation from random points, in one thread. The micro-clusters only need
-        # to be tight: on overlapping 768-d blobs k-means++ seeding was 3-6x slower than random
-        # seeding for the same inertia (within 0.1%), and BLAS threads competing with another
-        # busy core made the k-means stage up to 10x slower (benchmarks/bench_clustering.py).
+        # to be tight: on overlapping 768-d blobs k-means++ initialisation was 3-6x slower than
+        # random initialisation for the same inertia (within 0.1%), and BLAS threads competing
+        # with another busy core made the k-means stage up to 10x slower
+        # (benchmarks/bench_clustering.py).
         km: Any
         if n > 10 * k:
             km = MiniBatchKMeans(
