@@ -392,26 +392,34 @@ def _build(block: list[tuple[int, str]], stem: str, number: int, source: str) ->
 
 def _iter_blocks(path: Path) -> Iterator[tuple[list[tuple[int, str]], _Bad | None]]:
     """Blank-line separated blocks of (line number, text), with an encoding defect if any."""
+    with _open_binary(path) as handle:
+        yield from blocks_of_lines(enumerate(handle, 1))
+
+
+def blocks_of_lines(
+    numbered: Iterable[tuple[int, bytes]],
+) -> Iterator[tuple[list[tuple[int, str]], _Bad | None]]:
+    """Blank-line separated blocks of (line number, text) from numbered raw lines, each with
+    its first encoding defect; shared by the whole-file and the byte-range readers."""
     block: list[tuple[int, str]] = []
     defect: _Bad | None = None
-    with _open_binary(path) as handle:
-        for lineno, raw in enumerate(handle, 1):
-            try:
-                line = raw.decode("utf-8")
-            except UnicodeDecodeError as error:
-                if defect is None:
-                    defect = _Bad(f"not valid UTF-8 (byte {error.start + 1})", lineno)
-                line = raw.decode("utf-8", errors="replace")
-            if lineno == 1 and line.startswith("\ufeff"):
-                line = line[1:]  # a byte-order mark is tolerated, not part of the data
-            line = line.rstrip("\r\n")
-            if line.strip():
-                block.append((lineno, line))
-            elif block:
-                yield block, defect
-                block, defect = [], None
-        if block:
+    for lineno, raw in numbered:
+        try:
+            line = raw.decode("utf-8")
+        except UnicodeDecodeError as error:
+            if defect is None:
+                defect = _Bad(f"not valid UTF-8 (byte {error.start + 1})", lineno)
+            line = raw.decode("utf-8", errors="replace")
+        if lineno == 1 and line.startswith("\ufeff"):
+            line = line[1:]  # a byte-order mark is tolerated, not part of the data
+        line = line.rstrip("\r\n")
+        if line.strip():
+            block.append((lineno, line))
+        elif block:
             yield block, defect
+            block, defect = [], None
+    if block:
+        yield block, defect
 
 
 _UNREADABLE = (EOFError, zlib.error, lzma.LZMAError, OSError)

@@ -12,6 +12,7 @@ from __future__ import annotations
 from collections.abc import Iterable, Iterator
 from dataclasses import dataclass
 from pathlib import Path
+from typing import BinaryIO
 
 from lexbuild.corpus.conllu import (
     OnError,
@@ -20,6 +21,7 @@ from lexbuild.corpus.conllu import (
     _Bad,
     _build,
     _stem,
+    blocks_of_lines,
     iter_sentences,
     resolve_paths,
 )
@@ -96,32 +98,19 @@ def plan_shards(
 
 
 def _range_blocks(shard: Shard) -> Iterator[tuple[list[tuple[int, str]], _Bad | None]]:
-    # The loop of conllu._iter_blocks over a byte range of a plain file.
-    block: list[tuple[int, str]] = []
-    defect: _Bad | None = None
+    """The blocks of a byte range of a plain file, numbered as in the whole file."""
     with open(shard.path, "rb") as handle:
         handle.seek(shard.start)
-        offset = shard.start
-        for lineno, raw in enumerate(handle, shard.first_line):
-            if shard.end is not None and offset >= shard.end:
-                break
-            offset += len(raw)
-            try:
-                line = raw.decode("utf-8")
-            except UnicodeDecodeError as error:
-                if defect is None:
-                    defect = _Bad(f"not valid UTF-8 (byte {error.start + 1})", lineno)
-                line = raw.decode("utf-8", errors="replace")
-            if lineno == 1 and line.startswith("\ufeff"):
-                line = line[1:]
-            line = line.rstrip("\r\n")
-            if line.strip():
-                block.append((lineno, line))
-            elif block:
-                yield block, defect
-                block, defect = [], None
-        if block:
-            yield block, defect
+        yield from blocks_of_lines(_numbered_range(handle, shard))
+
+
+def _numbered_range(handle: BinaryIO, shard: Shard) -> Iterator[tuple[int, bytes]]:
+    offset = shard.start
+    for lineno, raw in enumerate(handle, shard.first_line):
+        if shard.end is not None and offset >= shard.end:
+            return
+        offset += len(raw)
+        yield lineno, raw
 
 
 def iter_shard_sentences(
