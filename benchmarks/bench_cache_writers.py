@@ -21,8 +21,7 @@ from pathlib import Path
 
 import numpy as np
 
-from lexbuild.senses.distributed_induce import SHARDS_DIR, merge_vector_shards
-from lexbuild.senses.vectors import VectorCache
+from lexbuild.senses.vectors import SHARDS_DIR, VectorCache, merge_vector_shards
 
 BATCH = 512
 

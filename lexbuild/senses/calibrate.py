@@ -273,7 +273,8 @@ def _pseudo_verb_vectors(
         return out, layers
     # On workers: one task per pseudo-verb; each worker writes its own cache shard, merged
     # into the main file afterwards (as in distributed induction).
-    from lexbuild.senses.distributed_induce import _portable, merge_vector_shards
+    from lexbuild.senses.distributed_induce import _portable
+    from lexbuild.senses.vectors import merge_vector_shards
 
     folder = None if cache is None else str(cache.path)
     portable = _portable(representation)
@@ -302,10 +303,10 @@ class _EncodeTask:
 
 def _encode_pseudo_verb(task: _EncodeTask) -> tuple[np.ndarray, CacheStats]:
     """A pseudo-verb's vectors, through the worker's cache shard (a worker task)."""
-    from lexbuild.senses.distributed_induce import _WorkerCache
+    from lexbuild.senses.vectors import WorkerVectorCache
 
     stats = CacheStats()
-    cache = _WorkerCache(task.cache) if task.cache is not None else None
+    cache = WorkerVectorCache(task.cache) if task.cache is not None else None
     try:
         vectors = encode_cached(
             task.representation, task.occurrences, cache, stats=stats  # type: ignore[arg-type]

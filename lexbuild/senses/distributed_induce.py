@@ -22,20 +22,13 @@ the writers, which a cache folder on a network file system shared by machines do
 from __future__ import annotations
 
 import dataclasses
-import os
 import shutil
-import socket
-import sqlite3
 import tempfile
-import threading
 import unicodedata
 from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
-
-import numpy as np
-import numpy.typing as npt
 
 from lexbuild.corpus.occurrences import Occurrence
 from lexbuild.corpus.sharded import (
@@ -51,88 +44,16 @@ from lexbuild.senses.induce import VerbResult, VerbTask, induce_verb
 from lexbuild.senses.inducer import InductionResult, _run_id, assemble_result
 from lexbuild.senses.settings import InductionSettings
 from lexbuild.senses.threshold import ThresholdChoice, choose_threshold
-from lexbuild.senses.vectors import CacheStats, Representation, VectorCache, encode_cached
+from lexbuild.senses.vectors import (
+    CacheStats,
+    Representation,
+    VectorCache,
+    WorkerVectorCache,
+    encode_cached,
+    merge_vector_shards,
+)
 
-__all__ = ["induce_on_executor", "merge_vector_shards"]
-
-SHARDS_DIR = "vector_shards"
-
-
-# ---------------------------------------------------------------------------- vector cache
-
-
-def _main_cache_file(folder: str | Path) -> Path:
-    # Where ``VectorCache(folder)`` keeps its file.
-    path = Path(folder)
-    return path / "vectors.sqlite" if path.is_dir() or not path.suffix else path
-
-
-class _WorkerCache:
-    """Reads the main cache file and this worker thread's shard; writes the shard only."""
-
-    def __init__(self, folder: str) -> None:
-        shard_dir = _main_cache_file(folder).parent / SHARDS_DIR
-        shard_dir.mkdir(parents=True, exist_ok=True)
-        name = f"{socket.gethostname()}-{os.getpid()}-{threading.get_ident()}.sqlite"
-        self.shard = VectorCache(shard_dir / name)
-        main = _main_cache_file(folder)
-        # Read-only: a worker never writes the file every other worker reads.
-        self.main = (
-            sqlite3.connect(f"file:{main}?mode=ro", uri=True) if main.is_file() else None
-        )
-
-    def get_many(self, space: str, keys: Sequence[str]) -> dict[str, npt.NDArray[np.float32]]:
-        found: dict[str, npt.NDArray[np.float32]] = {}
-        unique = list(dict.fromkeys(keys))
-        if self.main is not None:
-            for first in range(0, len(unique), 500):
-                chunk = unique[first : first + 500]
-                marks = ",".join("?" * len(chunk))
-                rows = self.main.execute(
-                    f"SELECT key, dim, data FROM vectors WHERE space = ? AND key IN ({marks})",
-                    [space, *chunk],
-                )
-                for key, dim, data in rows:
-                    vector = np.frombuffer(data, dtype=np.float32)
-                    if vector.size == dim:
-                        found[key] = vector
-        rest = [key for key in unique if key not in found]
-        if rest:
-            found.update(self.shard.get_many(space, rest))
-        return found
-
-    def put_many(self, space: str, items: Iterable[tuple[str, npt.NDArray[np.float32]]]) -> None:
-        self.shard.put_many(space, items)
-
-    def close(self) -> None:
-        self.shard.close()
-        if self.main is not None:
-            self.main.close()
-
-
-def merge_vector_shards(folder: str | Path) -> int:
-    """Merge the workers' cache shards into the main file, then remove them; rows added."""
-    shard_dir = _main_cache_file(folder).parent / SHARDS_DIR
-    if not shard_dir.is_dir():
-        return 0
-    added = 0
-    with VectorCache(folder) as cache:
-        db = cache._db
-        for shard in sorted(shard_dir.glob("*.sqlite")):
-            before = db.total_changes
-            db.execute("ATTACH DATABASE ? AS shard", (str(shard),))
-            try:
-                with db:
-                    db.execute("INSERT OR IGNORE INTO vectors SELECT * FROM shard.vectors")
-            except sqlite3.DatabaseError:
-                pass  # a shard cut short by a dead worker: its vectors are computed again
-            finally:
-                db.execute("DETACH DATABASE shard")
-            added += db.total_changes - before
-            shard.unlink()
-    shutil.rmtree(shard_dir, ignore_errors=True)
-    return added
-
+__all__ = ["induce_on_executor"]
 
 # ------------------------------------------------------------------------------ verb tasks
 
@@ -155,7 +76,7 @@ def induce_spilled_verb(task: SpilledVerbTask) -> tuple[VerbResult, CacheStats]:
     """Read, encode (batches, through the cache) and cluster one verb (a worker task)."""
     occurrences = read_spilled(task.spill, task.lemma, task.shards)
     stats = CacheStats()
-    cache = _WorkerCache(task.cache) if task.cache is not None else None
+    cache = WorkerVectorCache(task.cache) if task.cache is not None else None
     try:
         vectors = encode_cached(
             task.representation, occurrences, cache, stats=stats  # type: ignore[arg-type]

@@ -18,7 +18,11 @@ from __future__ import annotations
 
 import hashlib
 import json
+import os
+import shutil
+import socket
 import sqlite3
+import threading
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -32,12 +36,16 @@ from lexbuild.errors import InductionError
 
 __all__ = [
     "REPRESENTATIONS",
+    "SHARDS_DIR",
     "CacheStats",
     "Representation",
     "VectorCache",
+    "WorkerVectorCache",
+    "cache_file",
     "canonical_representation_name",
     "encode_cached",
     "load_representation",
+    "merge_vector_shards",
 ]
 
 Matrix = npt.NDArray[np.float32]
@@ -123,10 +131,7 @@ class VectorCache:
     """
 
     def __init__(self, path: str | Path) -> None:
-        self.path = Path(path)
-        if self.path.is_dir() or not self.path.suffix:
-            self.path.mkdir(parents=True, exist_ok=True)
-            self.path = self.path / "vectors.sqlite"
+        self.path = cache_file(path)
         self.path.parent.mkdir(parents=True, exist_ok=True)
         try:
             self._db = sqlite3.connect(self.path)
@@ -139,20 +144,7 @@ class VectorCache:
             raise InductionError(f"{self.path}: not a usable vector cache ({error})") from None
 
     def get_many(self, space: str, keys: Sequence[str]) -> dict[str, npt.NDArray[np.float32]]:
-        found: dict[str, npt.NDArray[np.float32]] = {}
-        unique = list(dict.fromkeys(keys))
-        for first in range(0, len(unique), 500):
-            chunk = unique[first : first + 500]
-            marks = ",".join("?" * len(chunk))
-            rows = self._db.execute(
-                f"SELECT key, dim, data FROM vectors WHERE space = ? AND key IN ({marks})",
-                [space, *chunk],
-            )
-            for key, dim, data in rows:
-                vector = np.frombuffer(data, dtype=np.float32)
-                if vector.size == dim:
-                    found[key] = vector
-        return found
+        return _select_vectors(self._db, space, list(dict.fromkeys(keys)))
 
     def put_many(self, space: str, items: Iterable[tuple[str, npt.NDArray[np.float32]]]) -> None:
         rows = [
@@ -173,6 +165,92 @@ class VectorCache:
 
     def __exit__(self, *exc: object) -> None:
         self.close()
+
+def cache_file(path: str | Path) -> Path:
+    """The SQLite file of a vector cache given as a folder (or a suffix-less name) or a file."""
+    where = Path(path)
+    return where / "vectors.sqlite" if where.is_dir() or not where.suffix else where
+
+
+def _select_vectors(
+    db: sqlite3.Connection, space: str, keys: Sequence[str]
+) -> dict[str, npt.NDArray[np.float32]]:
+    found: dict[str, npt.NDArray[np.float32]] = {}
+    for first in range(0, len(keys), 500):
+        chunk = keys[first : first + 500]
+        marks = ",".join("?" * len(chunk))
+        rows = db.execute(
+            f"SELECT key, dim, data FROM vectors WHERE space = ? AND key IN ({marks})",
+            [space, *chunk],
+        )
+        for key, dim, data in rows:
+            vector = np.frombuffer(data, dtype=np.float32)
+            if vector.size == dim:
+                found[key] = vector
+    return found
+
+
+# ------------------------------------------------------- cache shards of concurrent workers
+
+SHARDS_DIR = "vector_shards"
+
+
+# ---------------------------------------------------------------------------- vector cache
+
+
+class WorkerVectorCache:
+    """Reads the main cache file and this worker thread's shard; writes the shard only."""
+
+    def __init__(self, folder: str) -> None:
+        shard_dir = cache_file(folder).parent / SHARDS_DIR
+        shard_dir.mkdir(parents=True, exist_ok=True)
+        name = f"{socket.gethostname()}-{os.getpid()}-{threading.get_ident()}.sqlite"
+        self.shard = VectorCache(shard_dir / name)
+        main = cache_file(folder)
+        # Read-only: a worker never writes the file every other worker reads.
+        self.main = (
+            sqlite3.connect(f"file:{main}?mode=ro", uri=True) if main.is_file() else None
+        )
+
+    def get_many(self, space: str, keys: Sequence[str]) -> dict[str, npt.NDArray[np.float32]]:
+        unique = list(dict.fromkeys(keys))
+        found = {} if self.main is None else _select_vectors(self.main, space, unique)
+        rest = [key for key in unique if key not in found]
+        if rest:
+            found.update(self.shard.get_many(space, rest))
+        return found
+
+    def put_many(self, space: str, items: Iterable[tuple[str, npt.NDArray[np.float32]]]) -> None:
+        self.shard.put_many(space, items)
+
+    def close(self) -> None:
+        self.shard.close()
+        if self.main is not None:
+            self.main.close()
+
+
+def merge_vector_shards(folder: str | Path) -> int:
+    """Merge the workers' cache shards into the main file, then remove them; rows added."""
+    shard_dir = cache_file(folder).parent / SHARDS_DIR
+    if not shard_dir.is_dir():
+        return 0
+    added = 0
+    with VectorCache(folder) as cache:
+        db = cache._db
+        for shard in sorted(shard_dir.glob("*.sqlite")):
+            before = db.total_changes
+            db.execute("ATTACH DATABASE ? AS shard", (str(shard),))
+            try:
+                with db:
+                    db.execute("INSERT OR IGNORE INTO vectors SELECT * FROM shard.vectors")
+            except sqlite3.DatabaseError:
+                pass  # a shard cut short by a dead worker: its vectors are computed again
+            finally:
+                db.execute("DETACH DATABASE shard")
+            added += db.total_changes - before
+            shard.unlink()
+    shutil.rmtree(shard_dir, ignore_errors=True)
+    return added
 
 
 def encode_cached(
