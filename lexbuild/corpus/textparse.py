@@ -305,6 +305,8 @@ class _Lexicon:
     # Verbs impersonal with an expletive subject only when they have a complement after them
     # that could be the logical subject or a clause ("il reste trois jours", "il arrive que").
     impersonal_with_complement: frozenset[str] = frozenset()
+    impersonal_forms: frozenset[str] = frozenset()
+    impersonal_with_complement_forms: frozenset[str] = frozenset()
     # The locative clitic of "il y a".
     locative_clitic: str = ""
     # The auxiliary of both the passive and some intransitive verbs' perfect ...
@@ -331,8 +333,13 @@ _LEXICONS = {
         impersonal_pronominal=_forms("agir"),
         impersonal_with_complement=_forms(
             """exister rester manquer arriver sembler paraître suffire convenir valoir
-            importer advenir résulter découler survenir apparaître être"""
+            importer advenir résulter découler survenir apparaître être avérer produire
+            passer trouver agir"""
         ),
+        # Forms the small pipeline lemmatises wrongly (observed: "faut" -> faut, "reste" ->
+        # reste, "convient" -> convier).
+        impersonal_forms=_forms("faut fallait faudra faudrait fallu"),
+        impersonal_with_complement_forms=_forms("reste restait restera manque convient"),
         locative_clitic="y",
         passive_auxiliary="être",
         passive_auxiliary_participle="été",
@@ -388,8 +395,18 @@ def lexical_repairs(
     lemma = [x.lower() for x in lemmas]
     form = [x.lower() for x in words]
 
+    def clause(k: int) -> bool:
+        # An infinitive or a que-clause; as acl only so ("il est temps de partir").
+        if upos[k] not in _VERBAL:
+            return False
+        if deps[k] in _CLAUSAL:
+            return True
+        return deps[k] == "acl" and (
+            "VerbForm=Inf" in feats[k] or any(deps[m] == "mark" for m in kids[k])
+        )
+
     def clause_after(head: int) -> bool:
-        return any(deps[k] in _CLAUSAL and upos[k] in _VERBAL and k > head for k in kids[head])
+        return any(k > head and clause(k) for k in kids[head])
 
     def reflexive(head: int) -> bool:
         before = (k for k in kids[head] if k < head)
@@ -397,7 +414,7 @@ def lexical_repairs(
 
     def impersonal(head: int, depth: int = 0) -> bool:
         relations = {deps[k] for k in kids[head]}
-        if lemma[head] in lexicon.impersonal:
+        if lemma[head] in lexicon.impersonal or form[head] in lexicon.impersonal_forms:
             return True
         if lemma[head] in lexicon.impersonal_pronominal and reflexive(head):
             return True
@@ -406,7 +423,10 @@ def lexical_repairs(
         complement = clause_after(head) or any(
             deps[k] in ("obj", "nsubj") and k > head for k in kids[head]
         )
-        if lemma[head] in lexicon.impersonal_with_complement and complement:
+        if complement and (
+            lemma[head] in lexicon.impersonal_with_complement
+            or form[head] in lexicon.impersonal_with_complement_forms
+        ):
             return True
         if relations & {"cop", "aux:pass"} and clause_after(head):
             return True
