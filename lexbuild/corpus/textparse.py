@@ -84,10 +84,10 @@ Agreement with gold trees (``benchmarks/parse_agreement.py``, measured once, 202
     0.566, slot F1 0.741 (README, "Arguments and adjuncts"). With the verbs recovered and the
     expletive and adverbial-clause rules above (mapping version 5, same day): GSD test 0.608,
     slot F1 0.762 (P .784 / R .742); GSD dev 0.582, slot F1 0.743 (P .785 / R .706). With the
-    lexical repairs (mapping version 6, same day): GSD test 0.630, slot F1 0.774 (P .801 / R
-    .749); GSD dev 0.606, slot F1 0.767 (P .816 / R .723); Sequoia test 0.712, slot F1 0.831;
-    ``fr_core_news_md`` on GSD test 0.683, slot F1 0.818 (README, "Arguments and adjuncts").
-    With clauses after pour/sans/... as advcl: GSD test 0.632, slot F1 0.775; dev 0.610, 0.768.
+    lexical repairs and clauses after pour/sans/... as advcl (mapping version 6, same day): GSD
+    test 0.632, slot F1 0.775 (P .803 / R .749); GSD dev 0.610, slot F1 0.768 (P .819 / R
+    .723); Sequoia test 0.715, slot F1 0.832; ``fr_core_news_md`` on GSD test 0.687, slot F1
+    0.819 (README, "Arguments and adjuncts").
 
     By relation (P / R / F1): nsubj .835/.765/.798, obj .740/.734/.737, obl:arg
     .398/.500/.443, obl:mod .474/.371/.416, xcomp .658/.670/.664, ccomp .622/.479/.541,
