@@ -16,11 +16,14 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import subprocess
 import sys
 import tempfile
 import time
+from collections.abc import Callable
 from pathlib import Path
+from typing import Any
 
 DEFAULT_UD = Path(__file__).resolve().parents[2] / "shared/corpora/ud"
 
@@ -96,30 +99,113 @@ def bench_frames(files: list[Path], repeat: int) -> None:
     print(f"  peak memory ratio x{repeat} / x1: {many['peak_mib'] / once['peak_mib']:.2f}")
 
 
-def bench_parse(gold: Path) -> None:
-    from lexbuild.corpus.conllu import iter_sentences
-    from lexbuild.corpus.textparse import load_pipeline, parse_texts
+_LOAD_CHILD = r"""
+import json, sys, time
+started = time.perf_counter()
+import spacy
+imported = time.perf_counter()
+nlp = spacy.load(sys.argv[1], exclude=json.loads(sys.argv[2]))
+loaded = time.perf_counter()
+print(json.dumps({"import_s": imported - started, "load_s": loaded - imported,
+                  "components": nlp.pipe_names}))
+"""
 
-    texts = [s.text for s in iter_sentences(gold)]
-    with tempfile.TemporaryDirectory() as folder:
-        source = Path(folder) / "bench.txt"
-        source.write_text("\n\n".join(texts) + "\n", encoding="utf-8")  # one paragraph each
-        started = time.perf_counter()
-        nlp = load_pipeline()
-        load_s = time.perf_counter() - started
-        print(
-            f"spaCy parsing: {len(texts)} paragraphs of {gold.name}, pipeline {nlp.meta['name']}"
-            f" {nlp.meta['version']} (load {load_s:.1f} s, not counted)"
-        )
-        for workers in (1, 2):
-            out = Path(folder) / f"out{workers}.conllu"
-            started = time.perf_counter()
-            report = parse_texts([source], out, nlp=nlp, workers=workers, clean_parts=True)
-            seconds = time.perf_counter() - started
-            print(
-                f"  workers={workers}: {report.sentences / seconds:7.1f} sentences/s "
-                f"({report.sentences} sentences, {seconds:.1f} s)"
+
+def bench_pipeline_load(repeats: int = 3) -> None:
+    """Fresh-process load time of the default pipeline per set of excluded components."""
+    from lexbuild.corpus.textparse import _NOT_NEEDED, DEFAULT_PIPELINE
+
+    print(f"pipeline load, fresh process each (median of {repeats}; import of spaCy apart):")
+    for extra in ((), ("lemmatizer",), ("attribute_ruler", "lemmatizer"), ("morphologizer",)):
+        excluded = [*_NOT_NEEDED, *extra]
+        runs = []
+        for _ in range(repeats):
+            result = subprocess.run(
+                [sys.executable, "-c", _LOAD_CHILD, DEFAULT_PIPELINE, json.dumps(excluded)],
+                check=True, capture_output=True, text=True,
             )
+            runs.append(json.loads(result.stdout))
+        runs.sort(key=lambda run: run["import_s"] + run["load_s"])
+        run = runs[len(runs) // 2]
+        label = "lexbuild's set" if not extra else f"also without {'+'.join(extra)}"
+        print(
+            f"  {label:<38} import {run['import_s']:4.1f} s + load {run['load_s']:4.1f} s  "
+            f"({', '.join(run['components'])})"
+        )
+
+
+def _spacy_processes_parse(nlp: Any, source: Path, output: Path, workers: int) -> int:
+    """The reference: spaCy's own ``nlp.pipe(n_process=...)``, Docs rebuilt in the parent."""
+    from lexbuild.corpus.textparse import _paragraphs, doc_to_conllu
+
+    number = 1
+    with output.open("w", encoding="utf-8") as target:
+        for doc in nlp.pipe(_paragraphs(source), batch_size=64, n_process=workers):
+            text, count = doc_to_conllu(doc, source.stem, number)
+            target.write(text)
+            number += count
+    return number - 1
+
+
+def bench_parse(ud_dir: Path, sizes: list[int]) -> None:
+    from lexbuild.corpus.conllu import iter_sentences
+    from lexbuild.corpus.textparse import parse_texts, timed_load_pipeline
+    from lexbuild.distributed import open_executor
+
+    texts = [s.text for path in sorted(ud_dir.glob("fr_*.conllu")) for s in iter_sentences(path)]
+    load = timed_load_pipeline()
+    print(
+        f"spaCy parsing: the {len(texts)} '# text' lines of the French treebanks repeated, one "
+        f"paragraph each; {load.describe()} (not counted below)"
+    )
+
+    def ours(workers: int) -> Callable[[Path, Path], int]:
+        return lambda source, out: parse_texts(
+            [source], out, nlp=load.nlp, workers=workers, clean_parts=True
+        ).sentences
+
+    def on_dask(source: Path, out: Path) -> int:  # the cluster's start and its loads counted
+        with open_executor(workers=2) as executor:
+            return parse_texts([source], out, executor=executor, clean_parts=True).sentences
+
+    def spacy_processes(source: Path, out: Path) -> int:
+        return _spacy_processes_parse(load.nlp, source, out, 2)
+
+    runs: list[tuple[str, Callable[[Path, Path], int]]] = [
+        ("workers=1", ours(1)),
+        ("workers=2", ours(2)),
+        ("spaCy n_process=2", spacy_processes),
+        ("--dask-workers 2", on_dask),
+    ]
+    for size in sizes:
+        rates: dict[str, float] = {}
+        outputs: dict[str, bytes] = {}
+        with tempfile.TemporaryDirectory() as folder:
+            source = Path(folder) / f"bench{size}.txt"
+            with source.open("w", encoding="utf-8") as target:
+                for n in range(size):
+                    target.write(texts[n % len(texts)] + "\n\n")
+            for label, run in runs:
+                out = Path(folder) / f"out{len(outputs)}.conllu"
+                before = os.getloadavg()[0]
+                started = time.perf_counter()
+                sentences = run(source, out)
+                seconds = time.perf_counter() - started
+                rates[label] = sentences / seconds
+                outputs[label] = out.read_bytes()
+                print(
+                    f"  {size:>7} paragraphs  {label:<18} {rates[label]:7.1f} sentences/s  "
+                    f"({sentences} sentences, {seconds:6.1f} s; load average "
+                    f"{before:.2f} -> {os.getloadavg()[0]:.2f})", flush=True,
+                )
+        one = rates["workers=1"]
+        same = all(data == outputs["workers=1"] for data in outputs.values())
+        print(
+            f"  {size:>7} paragraphs  ratios to workers=1: workers=2 "
+            f"{rates['workers=2'] / one:.2f}x, spaCy n_process=2 "
+            f"{rates['spaCy n_process=2'] / one:.2f}x, Dask {rates['--dask-workers 2'] / one:.2f}x;"
+            f" all byte-identical to workers=1: {same}", flush=True,
+        )
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -127,14 +213,20 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("ud_dir", nargs="?", type=Path, default=DEFAULT_UD)
     parser.add_argument("--repeat", type=int, default=10)
     parser.add_argument("--skip-parse", action="store_true")
+    parser.add_argument("--only-parse", action="store_true")
+    parser.add_argument(
+        "--parse-sizes", default="2000,20000,100000", help="paragraphs, comma-separated"
+    )
     args = parser.parse_args(argv)
     files = sorted(args.ud_dir.glob("*.conllu"))
     if not files:
         parser.error(f"no .conllu file in {args.ud_dir}")
-    bench_reader(files)
-    bench_frames(files, args.repeat)
+    if not args.only_parse:
+        bench_reader(files)
+        bench_frames(files, args.repeat)
     if not args.skip_parse:
-        bench_parse(args.ud_dir / "fr_gsd-ud-test.conllu")
+        bench_pipeline_load()
+        bench_parse(args.ud_dir, [int(n) for n in args.parse_sizes.split(",")])
     return 0
 
 
