@@ -147,6 +147,15 @@ def _spacy_processes_parse(nlp: Any, source: Path, output: Path, workers: int) -
     return number - 1
 
 
+def _cpu_seconds() -> float:
+    """CPU time of this process and of its children that have ended (the worker processes)."""
+    import resource
+
+    own = resource.getrusage(resource.RUSAGE_SELF)
+    children = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return own.ru_utime + own.ru_stime + children.ru_utime + children.ru_stime
+
+
 def bench_parse(ud_dir: Path, sizes: list[int]) -> None:
     from lexbuild.corpus.conllu import iter_sentences
     from lexbuild.corpus.textparse import parse_texts, timed_load_pipeline
@@ -188,15 +197,18 @@ def bench_parse(ud_dir: Path, sizes: list[int]) -> None:
             for label, run in runs:
                 out = Path(folder) / f"out{len(outputs)}.conllu"
                 before = os.getloadavg()[0]
+                cpu_before = _cpu_seconds()
                 started = time.perf_counter()
                 sentences = run(source, out)
                 seconds = time.perf_counter() - started
+                cpu = _cpu_seconds() - cpu_before
                 rates[label] = sentences / seconds
                 outputs[label] = out.read_bytes()
                 print(
                     f"  {size:>7} paragraphs  {label:<18} {rates[label]:7.1f} sentences/s  "
-                    f"({sentences} sentences, {seconds:6.1f} s; load average "
-                    f"{before:.2f} -> {os.getloadavg()[0]:.2f})", flush=True,
+                    f"({sentences} sentences, {seconds:6.1f} s, CPU {1000 * cpu / sentences:5.2f}"
+                    f" ms/sentence; load average {before:.2f} -> {os.getloadavg()[0]:.2f})",
+                    flush=True,
                 )
         one = rates["workers=1"]
         same = all(data == outputs["workers=1"] for data in outputs.values())
@@ -214,6 +226,7 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--repeat", type=int, default=10)
     parser.add_argument("--skip-parse", action="store_true")
     parser.add_argument("--only-parse", action="store_true")
+    parser.add_argument("--skip-load", action="store_true", help="no pipeline load table")
     parser.add_argument(
         "--parse-sizes", default="2000,20000,100000", help="paragraphs, comma-separated"
     )
@@ -225,7 +238,8 @@ def main(argv: list[str] | None = None) -> int:
         bench_reader(files)
         bench_frames(files, args.repeat)
     if not args.skip_parse:
-        bench_pipeline_load()
+        if not args.skip_load:
+            bench_pipeline_load()
         bench_parse(args.ud_dir, [int(n) for n in args.parse_sizes.split(",")])
     return 0
 
