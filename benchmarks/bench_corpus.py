@@ -21,9 +21,7 @@ import subprocess
 import sys
 import tempfile
 import time
-from collections.abc import Callable
 from pathlib import Path
-from typing import Any
 
 DEFAULT_UD = Path(__file__).resolve().parents[2] / "shared/corpora/ud"
 
@@ -134,58 +132,68 @@ def bench_pipeline_load(repeats: int = 3) -> None:
         )
 
 
-def _spacy_processes_parse(nlp: Any, source: Path, output: Path, workers: int) -> int:
-    """The reference: spaCy's own ``nlp.pipe(n_process=...)``, Docs rebuilt in the parent."""
-    from lexbuild.corpus.textparse import _paragraphs, doc_to_conllu
+_PARSE_CHILD = r"""
+import json, multiprocessing, resource, sys, time
+from pathlib import Path
+from lexbuild.corpus.textparse import _paragraphs, doc_to_conllu, parse_texts, load_pipeline
+mode, source, out = sys.argv[1], Path(sys.argv[2]), Path(sys.argv[3])
 
-    number = 1
-    with output.open("w", encoding="utf-8") as target:
-        for doc in nlp.pipe(_paragraphs(source), batch_size=64, n_process=workers):
-            text, count = doc_to_conllu(doc, source.stem, number)
-            target.write(text)
-            number += count
-    return number - 1
-
-
-def _cpu_seconds() -> float:
-    """CPU time of this process and of its children that have ended (the worker processes)."""
-    import resource
-
+def cpu():
     own = resource.getrusage(resource.RUSAGE_SELF)
     children = resource.getrusage(resource.RUSAGE_CHILDREN)
     return own.ru_utime + own.ru_stime + children.ru_utime + children.ru_stime
 
+def spacy_processes(nlp):
+    # The reference: spaCy's own nlp.pipe(n_process=2), Docs rebuilt here, then written.
+    number = 1
+    with out.open("w", encoding="utf-8") as target:
+        for doc in nlp.pipe(_paragraphs(source), batch_size=64, n_process=2):
+            text, count = doc_to_conllu(doc, source.stem, number)
+            target.write(text)
+            number += count
+    while multiprocessing.active_children():  # reaped: their CPU time is counted
+        time.sleep(0.01)
+    return number - 1
+
+nlp = None if mode == "dask" else load_pipeline()  # Dask workers load their own (counted)
+started, cpu_before = time.perf_counter(), cpu()
+if mode == "spacy":
+    sentences = spacy_processes(nlp)
+elif mode == "dask":
+    from lexbuild.distributed import open_executor
+    with open_executor(workers=2) as executor:
+        sentences = parse_texts([source], out, executor=executor, clean_parts=True).sentences
+else:
+    sentences = parse_texts([source], out, nlp=nlp, workers=int(mode), clean_parts=True
+                            ).sentences
+print(json.dumps({"sentences": sentences, "seconds": time.perf_counter() - started,
+                  "cpu": cpu() - cpu_before}))
+"""
+
+#: label -> mode of the child process.
+_PARSE_RUNS = {
+    "workers=1": "1",
+    "workers=2": "2",
+    "spaCy n_process=2": "spacy",
+    "--dask-workers 2": "dask",
+}
+
 
 def bench_parse(ud_dir: Path, sizes: list[int]) -> None:
+    """Each run in a fresh process, as a user's: cold caches (spaCy's vocabulary and lemma
+    cache fill up on the first sentences, and a run after a warm one would inherit them)."""
     from lexbuild.corpus.conllu import iter_sentences
-    from lexbuild.corpus.textparse import parse_texts, timed_load_pipeline
-    from lexbuild.distributed import open_executor
+    from lexbuild.corpus.textparse import timed_load_pipeline
 
     texts = [s.text for path in sorted(ud_dir.glob("fr_*.conllu")) for s in iter_sentences(path)]
-    load = timed_load_pipeline()
     print(
         f"spaCy parsing: the {len(texts)} '# text' lines of the French treebanks repeated, one "
-        f"paragraph each; {load.describe()} (not counted below)"
+        f"paragraph each; {timed_load_pipeline().describe()} (each run loads it in a fresh "
+        "process, not counted; Dask's start and its workers' loads are counted)"
     )
-
-    def ours(workers: int) -> Callable[[Path, Path], int]:
-        return lambda source, out: parse_texts(
-            [source], out, nlp=load.nlp, workers=workers, clean_parts=True
-        ).sentences
-
-    def on_dask(source: Path, out: Path) -> int:  # the cluster's start and its loads counted
-        with open_executor(workers=2) as executor:
-            return parse_texts([source], out, executor=executor, clean_parts=True).sentences
-
-    def spacy_processes(source: Path, out: Path) -> int:
-        return _spacy_processes_parse(load.nlp, source, out, 2)
-
-    runs: list[tuple[str, Callable[[Path, Path], int]]] = [
-        ("workers=1", ours(1)),
-        ("workers=2", ours(2)),
-        ("spaCy n_process=2", spacy_processes),
-        ("--dask-workers 2", on_dask),
-    ]
+    root = str(Path(__file__).resolve().parents[1])
+    env = {**os.environ, "PYTHONPATH": os.pathsep.join(filter(None, [root, os.environ.get(
+        "PYTHONPATH")]))}
     for size in sizes:
         rates: dict[str, float] = {}
         outputs: dict[str, bytes] = {}
@@ -194,20 +202,22 @@ def bench_parse(ud_dir: Path, sizes: list[int]) -> None:
             with source.open("w", encoding="utf-8") as target:
                 for n in range(size):
                     target.write(texts[n % len(texts)] + "\n\n")
-            for label, run in runs:
-                out = Path(folder) / f"out{len(outputs)}.conllu"
+            for label, mode in _PARSE_RUNS.items():
+                out = Path(folder) / f"out-{mode}.conllu"
                 before = os.getloadavg()[0]
-                cpu_before = _cpu_seconds()
-                started = time.perf_counter()
-                sentences = run(source, out)
-                seconds = time.perf_counter() - started
-                cpu = _cpu_seconds() - cpu_before
-                rates[label] = sentences / seconds
+                result = subprocess.run(
+                    [sys.executable, "-c", _PARSE_CHILD, mode, str(source), str(out)],
+                    check=True, capture_output=True, text=True, env=env,
+                )
+                run = json.loads(result.stdout.strip().splitlines()[-1])
+                sentences = run["sentences"]
+                rates[label] = sentences / run["seconds"]
                 outputs[label] = out.read_bytes()
                 print(
                     f"  {size:>7} paragraphs  {label:<18} {rates[label]:7.1f} sentences/s  "
-                    f"({sentences} sentences, {seconds:6.1f} s, CPU {1000 * cpu / sentences:5.2f}"
-                    f" ms/sentence; load average {before:.2f} -> {os.getloadavg()[0]:.2f})",
+                    f"({sentences} sentences, {run['seconds']:6.1f} s, CPU "
+                    f"{1000 * run['cpu'] / sentences:5.2f} ms/sentence; load average "
+                    f"{before:.2f} -> {os.getloadavg()[0]:.2f})",
                     flush=True,
                 )
         one = rates["workers=1"]
