@@ -28,9 +28,12 @@ ratios within one run):
   workers=1 (CPU 4.21 vs 3.58 ms/sentence: each process warms its own caches), spaCy
   n_process=2 1.28x (5.47 ms/sentence), Dask 0.90x (cluster start and two loads: 14.5 ms).
   In one process after a warm run, load average 3.3: workers=2 2.38x, spaCy n_process=2 0.93x.
-* 20,000 paragraphs (21,807 sentences), one process, load average 5-10: workers=2 0.59x,
-  spaCy 0.31x, Dask 0.39x (the other jobs' load rose from 4.6 to 9 during the 2-worker run);
-  all byte-identical. 100,000 paragraphs: not run to the end that day (load average 20).
+* 20,000 paragraphs (21,807 sentences), fresh processes, load average falling from 19 to 7
+  during the runs (so the wall ratios flatter the later runs): workers=1 64.7 sentences/s,
+  workers=2 195.6 (3.02x), spaCy n_process=2 165.8 (2.56x), Dask 101.1 (1.56x); all
+  byte-identical. CPU per sentence, which the other jobs do not change: workers=1 2.01 ms,
+  workers=2 2.19 ms (+9%), spaCy n_process=2 2.70 ms (+34%), Dask 4.09 ms (+103%, its start
+  and two loads included): on an idle 2-core machine 2 processes can reach about 1.8x.
 * Why spaCy's n_process gained little: each worker serialises its Docs (``Doc.to_bytes``,
   12.9 kB a paragraph with the tok2vec tensor) and the parent rebuilds them
   (``Doc.from_bytes``) before writing: per 1,000 paragraphs 5.7 s and 3.9 s against 17.6 s of
