@@ -34,6 +34,11 @@ ratios within one run):
   byte-identical. CPU per sentence, which the other jobs do not change: workers=1 2.01 ms,
   workers=2 2.19 ms (+9%), spaCy n_process=2 2.70 ms (+34%), Dask 4.09 ms (+103%, its start
   and two loads included): on an idle 2-core machine 2 processes can reach about 1.8x.
+* 100,000 paragraphs (109,032 sentences), workers=1 and 2 only (``--parse-runs``):
+  workers=1 300.4 sentences/s (load average 7.6 -> 3.1), workers=2 247.5 (0.82x; load
+  average 3.1 -> 10.3: the other jobs took the second core); byte-identical. CPU per sentence
+  1.67 ms and 1.88 ms (+13%). The 100k wall ratio is the other jobs' doing, not a property of
+  the processes; rerun on a quiet machine before quoting a speed-up at this size.
 * Why spaCy's n_process gained little: each worker serialises its Docs (``Doc.to_bytes``,
   12.9 kB a paragraph with the tok2vec tensor) and the parent rebuilds them
   (``Doc.from_bytes``) before writing: per 1,000 paragraphs 5.7 s and 3.9 s against 17.6 s of
