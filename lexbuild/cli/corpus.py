@@ -171,8 +171,6 @@ def run_frames(args: argparse.Namespace) -> int:
         noise_rate=args.noise_rate,
     )
     if args.workers is not None or args.scheduler is not None:
-        if args.explain:
-            raise CorpusError("--explain runs in one process: drop --workers/--scheduler")
         return _run_frames_distributed(args, thresholds)
     errors: list[CorpusError] = []
     stats: dict[str, list[int]] = {}
@@ -262,6 +260,7 @@ def _run_frames_distributed(args: argparse.Namespace, thresholds: FrameThreshold
 
     resolve_paths(args.corpus)  # a missing file is reported before a cluster starts
     bar = tqdm(unit=" shards", file=sys.stderr, disable=None, desc="frames")
+    decisions: list[Decision] = []  # the first pass's, with obliques from evidence
 
     def advance(n: int) -> None:
         bar.update(n)  # fed by Dask: a shard's task finished on a worker
@@ -277,8 +276,13 @@ def _run_frames_distributed(args: argparse.Namespace, thresholds: FrameThreshold
             on_error=args.on_error,
             include_auxiliaries=args.include_aux,
             obliques=args.obliques,
+            on_decision=decisions.append,
         )
-    text = format_table(table, stats, args.format, len(errors), thresholds)
+    explained = decisions[0] if args.explain and decisions else None
+    if explained is not None and args.format == "tsv":
+        text = format_decision_tsv(explained, set(table))
+    else:
+        text = format_table(table, stats, args.format, len(errors), thresholds, explained)
     if args.output:
         atomic_write_text(args.output, text)
     else:

