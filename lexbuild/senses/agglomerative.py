@@ -57,8 +57,12 @@ DEFAULT_THRESHOLDS = {"average": 0.65, "ward": 3.0}
 _LINKAGES = ("average", "ward")
 # Passes of the two-stage path at most: the second starts from the clusters of the first.
 _MAX_PASSES = 3
-# Rows of the similarity block computed at once: bounds the temporary to ~64 MB of float32.
-_BLOCK_ELEMENTS = 16_000_000
+# Pieces rejoined at most, as a share of refine_max (their float32 matrix then takes as much
+# memory as a refined subtree's condensed float64 distances).
+_PIECE_SHARE = 1.0
+# Rows of the similarity block computed at once: bounds the temporary to ~16 MB of float32
+# (at 20,000 rows the condensed float64 matrix alone is 1.49 GiB, so every MiB counts).
+_BLOCK_ELEMENTS = 4_000_000
 
 
 def condensed_cosine(Xn: npt.NDArray[np.float32]) -> npt.NDArray[np.float64]:
@@ -113,16 +117,17 @@ def _group_average_merges(
     Row ``r`` of the result merges nodes ``a`` and ``b`` (0..m-1 the groups, ``m + r`` the node
     made by row ``r``) at ``height`` into ``points`` points. The mean cosine distance over
     member pairs of groups i, j is ``1 - dot(sum_i, sum_j) / (n_i n_j)``, so the start matrix is
-    exact; merges use the size-weighted Lance-Williams update, which is exact for average
-    linkage. Merging stops before the first height above ``stop_above`` (fcluster's
-    'distance' criterion joins merges of height <= t). Each row keeps its nearest neighbour, so
-    a merge rescans only the rows that pointed at the merged pair.
+    exact (to float32 rounding, as in the exact path); merges use the size-weighted
+    Lance-Williams update, which is exact for average linkage. Merging stops before the first
+    height above ``stop_above`` (fcluster's 'distance' criterion joins merges of height <= t).
     """
     m = sizes.size
     merges = np.empty((max(m - 1, 0), 4))
     if m < 2:
         return merges
-    dist = (sums @ sums.T) / np.outer(sizes, sizes)
+    # float32 like the exact kernel: the matrix is as large as a refined subtree's distances.
+    means = (sums / sizes[:, None]).astype(np.float32)
+    dist = means @ means.T
     np.subtract(1.0, dist, out=dist)
     np.clip(dist, 0.0, 2.0, out=dist)
     np.fill_diagonal(dist, np.inf)
@@ -131,9 +136,21 @@ def _group_average_merges(
     alive = np.ones(m, dtype=bool)
     nearest = np.argmin(dist, axis=1)
     nearest_dist = dist[np.arange(m), nearest]
+    # A row whose nearest cluster merged keeps its old distance as a lower bound (average
+    # linkage is reducible: a merged cluster is no nearer than the nearer of its parts) and is
+    # rescanned only when it comes out on top, as in Muellner's generic algorithm.
+    verified = np.ones(m, dtype=bool)
     done = 0
     for step in range(m - 1):
-        i = int(np.argmin(nearest_dist))
+        while True:
+            i = int(np.argmin(nearest_dist))
+            if verified[i]:
+                break
+            row = dist[i].copy()
+            row[~alive] = np.inf
+            nearest[i] = int(np.argmin(row))
+            nearest_dist[i] = row[nearest[i]]
+            verified[i] = True
         j = int(nearest[i])
         height = float(nearest_dist[i])
         if not height <= stop_above:
@@ -143,27 +160,22 @@ def _group_average_merges(
         merges[step] = (node[i], node[j], height, ni + nj)
         done = step + 1
         merged = (ni * dist[i] + nj * dist[j]) / (ni + nj)
-        merged[i] = merged[j] = np.inf
+        alive[j] = False
+        merged[~alive] = np.inf  # dead rows and columns are masked, never overwritten
+        merged[i] = np.inf
         dist[i, :] = merged
-        dist[:, i] = merged
-        dist[j, :] = np.inf
-        dist[:, j] = np.inf
+        dist[:, i] = merged  # the one strided write: rows rescanned later read column i
         sizes[i] = ni + nj
         node[i] = m + step
         nearest_dist[j] = np.inf
-        # Rows whose nearest was i or j (and row i itself) are rescanned; the others can only
-        # have come closer to the new cluster.
-        stale = (nearest == i) | (nearest == j)
-        stale[i] = True
-        stale[j] = False
+        stale = ((nearest == i) | (nearest == j)) & alive
+        verified[stale] = False
         closer = (merged < nearest_dist) & ~stale
         nearest[closer] = i
         nearest_dist[closer] = merged[closer]
-        alive[j] = False
-        rows = np.flatnonzero(stale & alive)
-        if rows.size:
-            nearest[rows] = np.argmin(dist[rows], axis=1)
-            nearest_dist[rows] = dist[rows, nearest[rows]]
+        nearest[i] = int(np.argmin(merged))
+        nearest_dist[i] = merged[nearest[i]]
+        verified[i] = True
     return merges[:done]
 
 
@@ -468,11 +480,12 @@ class AgglomerativeClusterer:
 
         A piece made inside one subtree is a node of the exact tree unless a point outside the
         subtree would have joined it first, which grows likelier with height; so the pieces
-        are cut as low as the rejoining step allows: at most ``refine_max // 2`` pieces (their
-        distance matrix then takes half the memory of a refined subtree's).
+        are cut as low as the rejoining step allows: at most ``refine_max`` pieces (their
+        float32 matrix takes as much memory as a refined subtree's condensed distances).
         """
-        budget = max(1, self.refine_max // 2)
-        heights = np.sort(np.concatenate([t[:, 2] for t in trees if t is not None] or [[]]))
+        budget = max(1, int(self.refine_max * _PIECE_SHARE))
+        found = [t[:, 2] for t in trees if t is not None]
+        heights = np.sort(np.concatenate(found)) if found else np.empty(0)
         unmerged = n - budget  # merges to apply before at most ``budget`` pieces remain
         if unmerged <= 0:
             return min(-1.0, float(self.threshold))
