@@ -281,3 +281,23 @@ def test_two_stage_ward_tracks_exact_on_separated_blobs() -> None:
     ).fit(X)
     assert adjusted_rand_score(y, exact.labels_) == 1.0
     assert adjusted_rand_score(exact.labels_, two.labels_) == 1.0
+
+
+def test_one_blas_thread_inside_a_parallel_worker(monkeypatch: pytest.MonkeyPatch) -> None:
+    # threadpoolctl reports the BLAS pools; inside a worker they run one thread, outside the
+    # library default is left alone.
+    from threadpoolctl import threadpool_info
+
+    from lexbuild.senses import clustering
+
+    def blas() -> list[int]:
+        return [p["num_threads"] for p in threadpool_info() if p["user_api"] == "blas"]
+
+    assert not clustering.in_parallel_worker()  # pytest is no Dask worker
+    outside = blas()
+    with clustering.blas_threads():
+        assert blas() == outside
+    monkeypatch.setattr(clustering, "in_parallel_worker", lambda: True)
+    with clustering.blas_threads():
+        assert blas() and set(blas()) == {1}
+    assert blas() == outside

@@ -4,7 +4,8 @@
 ``AgglomerativeClusterer`` follows the scikit-learn estimator shape: ``__init__`` stores
 parameters, ``fit`` learns ``labels_``, ``n_clusters_`` and ``centroids_``. Up to ``exact_max``
 points the full tree is built on cosine distances; beyond that a two-stage scheme (k-means
-micro-clusters, then exact average linkage between them) keeps memory linear. The calibrated
+micro-clusters, a tree over them, exact clustering inside its subtrees, exact group-average
+linkage between the pieces) keeps memory bounded by ``refine_max``. The calibrated
 parameter is the height at which the tree is cut: a cosine distance for average linkage, a Ward
 height on unit vectors in euclidean space for Ward.
 """
@@ -19,6 +20,7 @@ from scipy.cluster.hierarchy import fcluster
 
 from lexbuild.errors import InductionError
 from lexbuild.senses.clustering import (
+    blas_threads,
     check_common,
     fitted,
     group_sums,
@@ -267,8 +269,8 @@ class AgglomerativeClusterer:
         ``max(min_cluster_size, min_cluster_share * n)`` are merged into the nearest large one.
     exact_max: largest n clustered exactly; above it the two-stage path runs.
     n_micro: number of k-means micro-clusters in the two-stage path.
-    refine_max: largest two-stage cluster clustered again exactly (memory grows with its
-        square: 8,000 members take 256 MB of distances).
+    refine_max: points per subtree clustered exactly in the two-stage path, and pieces
+        rejoined at most (memory grows with its square: 8,000 take 256 MB of distances).
     random_state: fixes the random numbers of the k-means stage.
     """
 
@@ -314,12 +316,13 @@ class AgglomerativeClusterer:
         self._check_params()
         Xn = normalise_rows(X)
         n = Xn.shape[0]
-        if n == 1:
-            raw = np.zeros(1, dtype=np.intp)
-        elif n <= self.exact_max:
-            raw = self._fit_exact(Xn)
-        else:
-            raw = self._fit_two_stage(Xn)
+        with blas_threads():
+            if n == 1:
+                raw = np.zeros(1, dtype=np.intp)
+            elif n <= self.exact_max:
+                raw = self._fit_exact(Xn)
+            else:
+                raw = self._fit_two_stage(Xn)
         labels = relabel(raw)
         fitted(self, Xn, self._merge_small(Xn, labels))
         return self
@@ -348,7 +351,8 @@ class AgglomerativeClusterer:
                 clone = AgglomerativeClusterer(**{**self.get_params(), "threshold": t})
                 out.append(clone.fit(Xn).labels_)
             return out
-        Z = self._tree(Xn)
+        with blas_threads():
+            Z = self._tree(Xn)
         return [
             self._merge_small(Xn, relabel(fcluster(Z, t=t, criterion="distance")))
             for t in cuts
