@@ -181,7 +181,7 @@ def _group_average_merges(
     return merges[:done]
 
 
-def same_partition(a: IntArray, b: IntArray) -> bool:
+def _same_partition(a: IntArray, b: IntArray) -> bool:
     """Whether two labellings are the same partition (names aside)."""
     return bool(np.array_equal(relabel(a), relabel(b)))
 
@@ -418,10 +418,12 @@ class AgglomerativeClusterer:
             if not spans:
                 break
             m = int(labels.max()) + 1
+            if m > self.refine_max:  # the tree's matrix over the clusters would pass the budget
+                break
             sizes = np.bincount(labels, minlength=m).astype(np.float64)
             tree = _group_average_merges(group_sums(Xn, labels, m), sizes)
             again, spans = self._regroup(Xn, labels, tree, sizes)
-            if same_partition(again, labels):
+            if _same_partition(again, labels):
                 break
             labels = again
         return labels
