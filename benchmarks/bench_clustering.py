@@ -1,22 +1,37 @@
-"""Time and peak memory of SenseClusterer against scikit-learn's agglomerative clustering.
+"""Time and peak memory of SenseClusterer against scikit-learn, and the two-stage path's fidelity.
 
-Usage: python benchmarks/bench_clustering.py [--sizes 2000,10000] [--dim 768] [--noise 1.0]
+Usage:
+    python benchmarks/bench_clustering.py [--sizes 2000,10000] [--dim 768] [--noise 1.0]
+    python benchmarks/bench_clustering.py --real [--real-max 12000]
 
-Rows: ``exact`` (the upper-triangle distance kernel), ``full-square`` (the same linkage over a
-condensed matrix cut from whole square blocks, as before: the accuracy and speed reference),
-``two-stage`` and scikit-learn's ``AgglomerativeClustering``. ``--noise 1.0`` gives overlapping
-blobs, the hard case for the two-stage approximation.
+Rows: ``exact`` (the upper-triangle float32 distance kernel), ``full-square`` (the same linkage
+over a condensed matrix cut from whole square blocks, as before: the accuracy and speed
+reference), ``two-stage`` and scikit-learn's ``AgglomerativeClustering``. ``--noise 1.0`` gives
+overlapping blobs, the hard case for the two-stage approximation; ``--refine-max`` forces the
+two-stage path to cut its tree at sizes where exact is still computable (``n/5`` is the share
+the default ``refine_max`` of 8,000 has at 40,000 points). After the timed rows, the two-stage
+path is compared with exact (ARI) at every threshold of ``--thresholds``.
+
+``--real`` takes real occurrence vectors instead: the embedded default representation
+(static-syntactic) of every occurrence of the most frequent verbs of the shared French
+treebanks (Sequoia train/dev/test, GSD dev/test), pooled up to ``--real-max`` rows, then the
+ten most frequent verbs one by one (two-stage forced with ``refine_max = n/5`` and
+``n_micro = n/20``).
 
 Peak memory is measured with tracemalloc (numpy registers its buffers there); fastcluster's
-internal C++ allocations are not traced, so its figure is a lower bound.
+internal C++ allocations are not traced (they are O(n) for average linkage). The machine is
+shared: the load average is printed with the results.
 """
 
 from __future__ import annotations
 
 import argparse
+import os
+import sys
 import time
 import tracemalloc
 from collections.abc import Callable
+from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -24,10 +39,21 @@ from scipy.cluster.hierarchy import fcluster
 from sklearn.cluster import AgglomerativeClustering
 from sklearn.metrics import adjusted_rand_score
 
-from lexbuild.senses.agglomerative import AgglomerativeClusterer as SenseClusterer
-from lexbuild.senses.agglomerative import _linkage
-from lexbuild.senses.clustering import normalise_rows
+ROOT = Path(__file__).resolve().parent.parent
+sys.path.insert(0, str(ROOT))  # this checkout's lexbuild, not an installed one
 
+from lexbuild.senses.agglomerative import AgglomerativeClusterer as SenseClusterer  # noqa: E402
+from lexbuild.senses.agglomerative import _linkage  # noqa: E402
+from lexbuild.senses.clustering import normalise_rows  # noqa: E402
+
+UD_FILES = (
+    "fr_sequoia-ud-train.conllu",
+    "fr_sequoia-ud-dev.conllu",
+    "fr_sequoia-ud-test.conllu",
+    "fr_gsd-ud-dev.conllu",
+    "fr_gsd-ud-test.conllu",
+)
+NO_MERGE: dict[str, Any] = {"min_cluster_size": 1, "min_cluster_share": 0.0}
 SKLEARN_MAX = 10_000  # above this its dense n x n float64 matrix gets too large to be useful
 
 
@@ -62,6 +88,13 @@ def _full_square_exact(X: np.ndarray, threshold: float) -> np.ndarray:
     return np.asarray(fcluster(Z, t=threshold, criterion="distance"))
 
 
+def _float64_tree(X: np.ndarray) -> np.ndarray:
+    """Average-linkage tree on cosine distances computed wholly in float64 (the reference)."""
+    X64 = np.asarray(X, dtype=np.float64)
+    Xn = X64 / np.linalg.norm(X64, axis=1, keepdims=True)
+    return _linkage(_full_square_condensed(Xn), "average")
+
+
 def _measure(fn: Callable[..., Any], *args: Any) -> tuple[Any, float, float]:
     tracemalloc.start()
     t0 = time.perf_counter()
@@ -72,11 +105,93 @@ def _measure(fn: Callable[..., Any], *args: Any) -> tuple[Any, float, float]:
     return result, elapsed, peak / 2**20
 
 
+def _load() -> str:
+    one, five, fifteen = os.getloadavg()
+    return f"load average {one:.2f} {five:.2f} {fifteen:.2f} ({os.cpu_count()} cores)"
+
+
+def real_vectors(ud: Path, real_max: int) -> tuple[np.ndarray, list[tuple[str, np.ndarray]]]:
+    """Embedded-default vectors of the most frequent verbs: pooled rows and per-verb matrices."""
+    from lexbuild.corpus.conllu import iter_sentences
+    from lexbuild.corpus.occurrences import Occurrence, extract_occurrences, profile_for
+    from lexbuild.senses.static import StaticSyntacticVectors
+
+    french = profile_for("fr")
+    by_verb: dict[str, list[Occurrence]] = {}
+    for sentence in iter_sentences([ud / name for name in UD_FILES]):
+        for occ in extract_occurrences(sentence, french):
+            by_verb.setdefault(occ.lemma, []).append(occ)
+    ranked = sorted(by_verb, key=lambda lemma: (-len(by_verb[lemma]), lemma))
+    chosen: list[str] = []
+    total = 0
+    for lemma in ranked:
+        if total + len(by_verb[lemma]) > real_max:
+            break
+        chosen.append(lemma)
+        total += len(by_verb[lemma])
+    representation = StaticSyntacticVectors()
+    per_verb = [(lemma, representation.encode(by_verb[lemma])) for lemma in chosen]
+    return np.vstack([m for _, m in per_verb]), per_verb
+
+
+def fidelity(
+    X: np.ndarray, thresholds: list[float], refine_max: int, n_micro: int, random_state: int
+) -> list[tuple[float, int, int, float]]:
+    """(threshold, exact k, two-stage k, ARI two-stage vs exact) for each threshold."""
+    exact = SenseClusterer(exact_max=X.shape[0], **NO_MERGE).sweep(X, thresholds)
+    two = SenseClusterer(
+        exact_max=1, refine_max=refine_max, n_micro=n_micro, random_state=random_state,
+        **NO_MERGE,
+    ).sweep(X, thresholds)
+    return [
+        (t, int(e.max()) + 1, int(s.max()) + 1, adjusted_rand_score(e, s))
+        for t, e, s in zip(thresholds, exact, two, strict=True)
+    ]
+
+
+def run_real(args: argparse.Namespace, thresholds: list[float]) -> None:
+    t0 = time.perf_counter()
+    X, per_verb = real_vectors(Path(args.ud), args.real_max)
+    n = X.shape[0]
+    print(
+        f"real vectors: {n} occurrences of the {len(per_verb)} most frequent verbs, "
+        f"{X.shape[1]}-d (static-syntactic), built in {time.perf_counter() - t0:.1f} s; {_load()}"
+    )
+    # The float32 upper-triangle kernel against the previous kernel and a float64 reference.
+    Z64 = _float64_tree(X)
+    exact = SenseClusterer(exact_max=n, **NO_MERGE).sweep(X, thresholds)
+    for t, labels in zip(thresholds, exact, strict=True):
+        square = _full_square_exact(X, t)
+        ref64 = fcluster(Z64, t=t, criterion="distance")
+        print(
+            f"  t={t:.2f} exact k={int(labels.max()) + 1}: ARI vs full-square kernel "
+            f"{adjusted_rand_score(square, labels):.4f}, vs float64 "
+            f"{adjusted_rand_score(ref64, labels):.4f}"
+        )
+    refine = args.refine_max or max(2, n // 5)
+    print(f"pooled, two-stage forced (refine_max={refine}, n_micro={args.n_micro}):")
+    for t, ke, ks, ari in fidelity(X, thresholds, refine, args.n_micro, args.random_state):
+        print(f"  t={t:.2f} exact k={ke:<4} two-stage k={ks:<4} ARI vs exact {ari:.4f}")
+    print("per verb, two-stage forced (refine_max=n/5, n_micro=n/20):")
+    worst = 1.0
+    for lemma, M in per_verb[:10]:
+        m = M.shape[0]
+        rows = fidelity(M, thresholds, max(2, m // 5), max(2, m // 20), args.random_state)
+        worst = min([worst] + [r[3] for r in rows])
+        cells = "  ".join(f"t={t:.2f} k {ke}/{ks} ARI {a:.3f}" for t, ke, ks, a in rows)
+        print(f"  {lemma:<10} n={m:<4} {cells}")
+    print(f"lowest per-verb ARI two-stage vs exact: {worst:.4f}")
+
+
 def main(argv: list[str] | None = None) -> None:
     ap = argparse.ArgumentParser(description=__doc__)
     ap.add_argument("--sizes", default="2000,10000", help="comma-separated n (e.g. 2000,40000)")
     ap.add_argument("--dim", type=int, default=768)
-    ap.add_argument("--threshold", type=float, default=0.5)
+    ap.add_argument("--threshold", type=float, default=0.5, help="cut of the timed rows")
+    ap.add_argument(
+        "--thresholds", default="0.5,0.6,0.8",
+        help="cuts at which two-stage is compared with exact (ARI)",
+    )
     ap.add_argument("--senses", type=int, default=8)
     ap.add_argument("--random-state", type=int, default=0)
     ap.add_argument("--noise", type=float, default=0.6, help="1.0: overlapping blobs (hard)")
@@ -85,26 +200,38 @@ def main(argv: list[str] | None = None) -> None:
         "--exact-limit", type=int, default=40_000,
         help="largest n also clustered exactly (40k needs ~6.4 GB for the condensed matrix)",
     )
+    ap.add_argument(
+        "--refine-max", type=int, default=0,
+        help="two-stage subtree budget (0: the clusterer's default; with --real, n/5)",
+    )
+    ap.add_argument("--n-micro", type=int, default=256, help="two-stage micro-clusters")
+    ap.add_argument("--real", action="store_true", help="real occurrence vectors (see above)")
+    ap.add_argument("--real-max", type=int, default=12_000, help="pooled real rows at most")
+    ap.add_argument("--ud", default=str(ROOT.parent / "shared" / "corpora" / "ud"))
     args = ap.parse_args(argv)
+    thresholds = [float(t) for t in args.thresholds.split(",") if t.strip()]
+    if args.real:
+        run_real(args, thresholds)
+        return
     sizes = [int(s) for s in args.sizes.split(",") if s.strip()]
+    two_stage: dict[str, Any] = {"n_micro": args.n_micro, "random_state": args.random_state}
+    if args.refine_max:
+        two_stage["refine_max"] = args.refine_max
 
+    print(_load())
     header = f"{'n':>7} {'method':<12} {'time s':>8} {'peak MiB':>9} {'k':>4}  notes"
     print(header)
     print("-" * len(header))
     for n in sizes:
         X = _data(n, args.dim, args.senses, args.random_state, args.noise)
-        common: dict[str, Any] = {
-            "threshold": args.threshold,
-            "min_cluster_size": 1,
-            "min_cluster_share": 0.0,
-        }
+        common: dict[str, Any] = {"threshold": args.threshold, **NO_MERGE}
         rows: dict[str, tuple[np.ndarray, float, float]] = {}
         # Two-stage always; exact where the condensed matrix fits (n <= 40k ~ 6.4 GB).
         if n <= args.exact_limit:
             m, t, mem = _measure(SenseClusterer(exact_max=n, **common).fit, X)
             rows["exact"] = (m.labels_, t, mem)
             rows["full-square"] = _measure(_full_square_exact, X, args.threshold)
-        m, t, mem = _measure(SenseClusterer(exact_max=1, **common).fit, X)
+        m, t, mem = _measure(SenseClusterer(exact_max=1, **common, **two_stage).fit, X)
         rows["two-stage"] = (m.labels_, t, mem)
         if n <= args.sklearn_max:
             agg = AgglomerativeClustering(
@@ -125,6 +252,16 @@ def main(argv: list[str] | None = None) -> None:
                 )
             k = len(set(labels.tolist()))
             print(f"{n:>7} {name:<12} {t:>8.2f} {mem:>9.1f} {k:>4}  {notes}", flush=True)
+        if n <= args.exact_limit and len(thresholds) > 0:
+            refine = two_stage.get("refine_max", SenseClusterer().refine_max)
+            for t, ke, ks, ari in fidelity(
+                X, thresholds, refine, args.n_micro, args.random_state
+            ):
+                print(
+                    f"{n:>7} fidelity t={t:.2f}: exact k={ke}, two-stage k={ks} "
+                    f"(refine_max={refine}), ARI vs exact {ari:.4f}", flush=True,
+                )
+        print(_load(), flush=True)
 
 
 if __name__ == "__main__":

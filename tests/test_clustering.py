@@ -127,11 +127,12 @@ def test_two_stage_single_group_cut() -> None:
     assert model.n_clusters_ == 1
 
 
-@pytest.mark.parametrize("exact_max", [20000, 200])
+@pytest.mark.parametrize("exact_max", [20000, 1])
 def test_deterministic_for_random_state(exact_max: int) -> None:
     X, _ = _blobs(100, 4, 20, 0.3, random_state=8)
-    a = SenseClusterer(threshold=0.6, exact_max=exact_max, n_micro=30, random_state=11).fit(X)
-    b = SenseClusterer(threshold=0.6, exact_max=exact_max, n_micro=30, random_state=11).fit(X)
+    params: dict[str, Any] = {"exact_max": exact_max, "n_micro": 30, "refine_max": 100}
+    a = SenseClusterer(threshold=0.6, random_state=11, **params).fit(X)
+    b = SenseClusterer(threshold=0.6, random_state=11, **params).fit(X)
     np.testing.assert_array_equal(a.labels_, b.labels_)
     np.testing.assert_array_equal(a.centroids_, b.centroids_)
 
@@ -198,3 +199,105 @@ def test_invalid_params_raise(params: dict[str, object]) -> None:
 def test_assign_dimension_mismatch() -> None:
     with pytest.raises(InductionError):
         assign_to_centroids(np.ones((2, 3)), np.ones((2, 4)))
+
+
+def _overlapping(n: int, dim: int, k: int, random_state: int) -> np.ndarray:
+    """Blobs whose spread equals their centres' norm: cosine distance ~0.5 inside a blob, so
+    a cut near 0.5 runs through the blobs (the hard case for the two-stage path)."""
+    rng = np.random.default_rng(random_state)
+    centres = rng.normal(size=(k, dim))
+    return centres[rng.integers(0, k, size=n)] + rng.normal(size=(n, dim))
+
+
+@pytest.mark.parametrize("threshold", [0.6, 0.9])
+def test_group_average_merges_from_points_equal_scipy_average(threshold: float) -> None:
+    # Reference: scipy.cluster.hierarchy.linkage(pdist(X, "cosine"), "average"): the same
+    # heights (float32 rounding) and the same partition at a cut.
+    from lexbuild.senses.agglomerative import _group_average_merges, _labels_from_merges
+
+    rng = np.random.default_rng(12)
+    X = rng.normal(size=(150, 12))
+    Xn = X / np.linalg.norm(X, axis=1, keepdims=True)
+    Z = linkage(pdist(X, "cosine"), "average")
+    merges = _group_average_merges(Xn, np.ones(150))
+    np.testing.assert_allclose(np.sort(merges[:, 2]), np.sort(Z[:, 2]), atol=1e-6)
+    cut = _labels_from_merges(_group_average_merges(Xn, np.ones(150), threshold), 150)
+    expected = fcluster(Z, t=threshold, criterion="distance")
+    assert adjusted_rand_score(expected, cut) == 1.0
+
+
+def test_rejoining_exact_nodes_gives_the_exact_cut() -> None:
+    # Reference: scipy average linkage. Starting from clusters that are nodes of the exact tree
+    # (its cut at 0.4), group-average linkage from their sums and sizes reproduces the cut at
+    # 0.7: the reason the two-stage pieces rejoin exactly.
+    from lexbuild.senses.agglomerative import _group_average_merges, _labels_from_merges
+    from lexbuild.senses.clustering import group_sums, relabel
+
+    X = _overlapping(300, 32, 3, random_state=13)
+    Xn = X / np.linalg.norm(X, axis=1, keepdims=True)
+    Z = linkage(pdist(X, "cosine"), "average")
+    pieces = relabel(fcluster(Z, t=0.4, criterion="distance"))
+    m = int(pieces.max()) + 1
+    assert 20 < m < 300  # pieces really are groups, not single points
+    sizes = np.bincount(pieces).astype(np.float64)
+    merges = _group_average_merges(group_sums(Xn, pieces, m), sizes, stop_above=0.7)
+    joined = _labels_from_merges(merges, m)[pieces]
+    assert adjusted_rand_score(fcluster(Z, t=0.7, criterion="distance"), joined) == 1.0
+
+
+def test_refinement_groups_partition_the_leaves_within_the_budget() -> None:
+    from lexbuild.senses.agglomerative import refinement_groups
+
+    rng = np.random.default_rng(14)
+    leaf_points = rng.integers(1, 30, size=40).astype(np.float64)
+    tree = linkage(rng.normal(size=(40, 5)), "average")
+    group, refine = refinement_groups(tree, leaf_points, refine_max=100)
+    assert all(refine) and set(group.tolist()) == set(range(len(refine)))
+    loads = np.bincount(group, weights=leaf_points)
+    assert loads.max() <= 100
+    # Packed: no two consecutive groups would fit in the budget together.
+    assert all(loads[g] + loads[g + 1] > 100 for g in range(len(loads) - 1))
+
+
+@pytest.mark.parametrize("random_state", [0, 1, 2])
+def test_two_stage_is_faithful_on_overlapping_blobs(random_state: int) -> None:
+    # Reference: the exact path (itself checked against scipy above). With a subtree budget of a
+    # quarter of the points the two-stage path really approximates (several subtrees, pieces
+    # rejoined); cut at the blobs' own spread (0.5) exact gives ~70-110 clusters.
+    X = _overlapping(600, 64, 4, random_state)
+    for threshold in (0.5, 0.6, 0.8):
+        exact = SenseClusterer(threshold=threshold, **NO_MERGE).fit(X)
+        two = SenseClusterer(
+            threshold=threshold, exact_max=1, refine_max=150, n_micro=32, **NO_MERGE
+        ).fit(X)
+        assert adjusted_rand_score(exact.labels_, two.labels_) >= 0.95, threshold
+
+
+def test_two_stage_ward_tracks_exact_on_separated_blobs() -> None:
+    X, y = _blobs(100, 4, 32, 0.15, random_state=15)
+    exact = SenseClusterer(threshold=1.0, linkage="ward", **NO_MERGE).fit(X)
+    two = SenseClusterer(
+        threshold=1.0, linkage="ward", exact_max=1, refine_max=120, n_micro=24, **NO_MERGE
+    ).fit(X)
+    assert adjusted_rand_score(y, exact.labels_) == 1.0
+    assert adjusted_rand_score(exact.labels_, two.labels_) == 1.0
+
+
+def test_one_blas_thread_inside_a_parallel_worker(monkeypatch: pytest.MonkeyPatch) -> None:
+    # threadpoolctl reports the BLAS pools; inside a worker they run one thread, outside the
+    # library default is left alone.
+    from threadpoolctl import threadpool_info
+
+    from lexbuild.senses import clustering
+
+    def blas() -> list[int]:
+        return [p["num_threads"] for p in threadpool_info() if p["user_api"] == "blas"]
+
+    assert not clustering.in_parallel_worker()  # pytest is no Dask worker
+    outside = blas()
+    with clustering.blas_threads():
+        assert blas() == outside
+    monkeypatch.setattr(clustering, "in_parallel_worker", lambda: True)
+    with clustering.blas_threads():
+        assert blas() and set(blas()) == {1}
+    assert blas() == outside
