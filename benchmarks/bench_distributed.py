@@ -2,7 +2,8 @@
 
 Usage:
     python benchmarks/bench_distributed.py frames [--sentences 100000,1000000] [--workers 1,2]
-    python benchmarks/bench_distributed.py induce [--sentences 100000] [--verbs 20]
+    python benchmarks/bench_distributed.py induce [--sentences 100000,1000000] [--workers 0,1,2]
+        [--verbs 20] [--cap 2000]
 
 The corpus is the shared French UD treebanks repeated (sentence ids made unique per copy)
 up to the number of sentences asked, written to a temporary folder and removed afterwards.
@@ -110,50 +111,114 @@ def run_frames(args: argparse.Namespace, folder: Path) -> None:
         corpus.unlink()
 
 
-def run_induce(args: argparse.Namespace, folder: Path) -> None:
-    from lexbuild.senses.distributed_induce import induce_on_executor
+def _frequent_verbs(n: int) -> list[str]:
+    """The ``n`` most frequent verbs of the repeated treebanks (the same in every copy)."""
+    counts: Counter[str] = Counter(
+        t.lemma for s in iter_sentences([UD / f"{name}.conllu" for name in SOURCES])
+        for t in s.tokens if t.upos == "VERB"
+    )
+    return [lemma for lemma, _ in counts.most_common(n)]
+
+
+def induce_once(corpus: Path, verbs: list[str], workers: int, cap: int, spool: Path) -> None:
+    """One induction in this (fresh) process; prints one JSON line of measurements."""
+    import json
+
+    from lexbuild.senses.distributed_induce import induce_corpus
+    from lexbuild.senses.executor import InProcessExecutor
     from lexbuild.senses.settings import InductionSettings
     from lexbuild.senses.vectors import load_representation
 
-    print(f"load average at start: {_load()}")
+    settings = InductionSettings(threshold=0.6, cap=cap)
+    representation = load_representation("static-syntactic")
+    stages: dict[str, float] = {}
+    clock = {"name": "", "since": time.perf_counter()}
+
+    def on_stage(name: str) -> None:
+        now = time.perf_counter()
+        if clock["name"]:
+            stages[str(clock["name"])] = round(now - float(clock["since"]), 1)
+        clock.update(name=name, since=now)
+
+    start = time.perf_counter()
+    peaks: list[float] = []
+    if workers == 0:
+        run, _ = induce_corpus([corpus], representation, InProcessExecutor(), settings,
+                               lemmas=verbs, spill=spool, on_stage=on_stage)
+    else:
+        with open_executor(workers=workers) as executor:
+            assert executor is not None
+            run, _ = induce_corpus([corpus], representation, executor, settings,
+                                   lemmas=verbs, spill=spool, on_stage=on_stage)
+            peaks = sorted(round(v) for v in executor.client.run(_worker_peak_mb).values())
+    on_stage("")
+    print(json.dumps({
+        "seconds": time.perf_counter() - start,
+        "stages": stages,
+        "occurrences": sum(run.counts.values()),
+        "senses": sum(len(r.entry.senses) for r in run.results),
+        "process_peak_mb": round(_worker_peak_mb()),
+        "worker_peak_mb": peaks,
+    }))
+
+
+def run_induce(args: argparse.Namespace, folder: Path) -> None:
+    import json
+    import subprocess
+    import sys
+
+    verbs = _frequent_verbs(args.verbs)
+    print(f"load average at start: {_load()}; cap {args.cap}; {len(verbs)} verbs: "
+          f"{' '.join(verbs)}")
     for sentences in args.sentences:
         corpus = build_corpus(folder, sentences)
-        counts: Counter[str] = Counter(
-            t.lemma for s in iter_sentences([corpus]) for t in s.tokens if t.upos == "VERB"
-        )
-        verbs = [lemma for lemma, _ in counts.most_common(args.verbs)]
-        print(f"\ncorpus: {sentences:,} sentences; {len(verbs)} verbs: {' '.join(verbs)}")
-        settings = InductionSettings(threshold=0.6)
+        print(f"\ncorpus: {sentences:,} sentences, {corpus.stat().st_size / 2**20:,.0f} MiB")
         reference = None
         for workers in args.workers:
-            with open_executor(workers=workers) as executor:
-                assert executor is not None
-                start = time.perf_counter()
-                result, _ = induce_on_executor(
-                    [corpus], load_representation("static-syntactic"), executor, settings,
-                    lemmas=verbs, spill=folder / f"spill-{workers}",
-                )
-                seconds = time.perf_counter() - start
-                peaks = executor.client.run(_worker_peak_mb)
-            shutil.rmtree(folder / f"spill-{workers}", ignore_errors=True)
+            spool = folder / f"spool-{workers}"
+            # A fresh process per measurement: its peak resident memory is this run's alone.
+            done = subprocess.run(
+                [sys.executable, __file__, "induce-once", "--corpus", str(corpus),
+                 "--workers", str(workers), "--cap", str(args.cap), "--spool", str(spool),
+                 "--verb-list", ",".join(verbs)],
+                check=True, capture_output=True, text=True,
+                # This checkout's lexbuild, whatever the environment has installed.
+                env={**os.environ, "PYTHONPATH": str(Path(__file__).resolve().parents[1])},
+            )
+            shutil.rmtree(spool, ignore_errors=True)
+            result = json.loads(done.stdout.strip().splitlines()[-1])
+            seconds = result["seconds"]
             reference = reference or seconds
+            where = "one process" if workers == 0 else f"{workers} worker(s)"
             print(
-                f"  induce, {workers} worker(s): {seconds:7.1f} s (x{reference / seconds:.2f} "
-                f"speed-up), {result.counts['occurrences']:,} occurrences, "
-                f"{result.counts['senses']} senses, peak RSS per worker "
-                f"{sorted(round(v) for v in peaks.values())} MB; load {_load()}"
+                f"  induce, {where}: {seconds:7.1f} s (x{reference / seconds:.2f} of the "
+                f"first), stages {result['stages']}, {result['occurrences']:,} occurrences, "
+                f"{result['senses']} senses; peak RSS: process {result['process_peak_mb']} MB, "
+                f"per worker {result['worker_peak_mb']} MB; load {_load()}"
             )
         corpus.unlink()
 
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("stage", choices=("frames", "induce"))
+    parser.add_argument("stage", choices=("frames", "induce", "induce-once"))
     parser.add_argument("--sentences", default=None, help="comma-separated corpus sizes")
-    parser.add_argument("--workers", default="1,2", help="comma-separated worker counts")
+    parser.add_argument(
+        "--workers", default=None,
+        help="comma-separated worker counts (induce: 0 is one process; default 0,1,2)",
+    )
     parser.add_argument("--verbs", type=int, default=20, help="induce: most frequent verbs")
+    parser.add_argument("--cap", type=int, default=2000, help="induce: occurrences per verb")
+    parser.add_argument("--corpus", type=Path, help=argparse.SUPPRESS)
+    parser.add_argument("--spool", type=Path, help=argparse.SUPPRESS)
+    parser.add_argument("--verb-list", help=argparse.SUPPRESS)
     args = parser.parse_args()
-    default = "100000,1000000" if args.stage == "frames" else "100000"
+    if args.stage == "induce-once":
+        induce_once(args.corpus, args.verb_list.split(","), int(args.workers), args.cap,
+                    args.spool)
+        return
+    args.workers = args.workers or ("0,1,2" if args.stage == "induce" else "1,2")
+    default = "100000,1000000"
     args.sentences = [int(x) for x in (args.sentences or default).split(",")]
     args.workers = [int(x) for x in args.workers.split(",")]
     folder = Path(tempfile.mkdtemp(prefix="lexbuild-bench-"))

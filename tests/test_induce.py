@@ -20,7 +20,7 @@ from lexbuild.errors import InductionError
 from lexbuild.lexicon.model import Entry, Frame
 from lexbuild.senses.agglomerative import AgglomerativeClusterer as SenseClusterer
 from lexbuild.senses.examples import choose_examples
-from lexbuild.senses.induce import sample_indices
+from lexbuild.senses.induce import sample_rows
 from lexbuild.senses.inducer import InductionResult, induce
 from lexbuild.senses.induction_folder import (
     ASSIGNMENTS_HEADER,
@@ -187,7 +187,7 @@ def test_cap_clusters_a_sample_and_assigns_the_rest(
     settings = InductionSettings(threshold=0.6, cap=cap)
     res = induce(occs, static, settings)
     X = encode_cached(static, occs)
-    sample = sample_indices(len(occs), cap, lemma, settings.random_state)
+    sample = sample_rows(occs, cap, settings.random_state)  # the clustering's order
     assert len(sample) == cap and len(set(sample.tolist())) == cap
     clusterer = SenseClusterer(threshold=0.6).fit(X[sample])
     sense_of = [a.sense for a in res.assignments]
