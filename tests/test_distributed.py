@@ -328,6 +328,23 @@ def test_no_task_holds_more_than_cap_occurrences_of_a_verb(
     assert result.counts["occurrences"] == frequency["faire"] + frequency["voir"]
 
 
+def test_guided_induce_identical_in_one_process_and_with_two_workers(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str], ud_dir: Path, sample_lexicon_dir: Path
+) -> None:
+    """--guide with --workers: each verb's curated senses travel with its clustering task."""
+    corpus = ud_dir / "fr_sequoia-ud-train.conllu"
+    common = ("induce", str(corpus), "--threshold", "0.65", "--lemma", "tenir", "--lemma",
+              "prendre", "--guide", str(sample_lexicon_dir), "--cap", "40", "--no-cache")
+    code, _, err = _run(capsys, *common, "-o", str(tmp_path / "single"))
+    assert code == 0, err
+    code, _, err = _run(capsys, *common, "-o", str(tmp_path / "local"), "--workers", "2")
+    assert code == 0, err
+    expected = _folder_bytes(tmp_path / "single")
+    assert _folder_bytes(tmp_path / "local") == expected
+    guided = json.loads(expected["induction.json"])["guided"]
+    assert guided["curated"]  # curated senses kept their ids on the workers too
+
+
 # ---------------------------------------------------------------------------- calibrate
 
 

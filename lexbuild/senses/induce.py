@@ -15,8 +15,6 @@ A verb is induced in three steps, so that no step holds more than ``cap`` of its
    cluster met first in the sample), with frames counted over all members
    (``frames_from_counts``) and up to ``examples`` examples chosen among the sampled members
    (``lexbuild.senses.examples``). A sense's centroid is the mean of its sampled members.
-
-``induce_verb`` runs the three steps on a verb whose occurrences are all in memory.
 """
 
 from __future__ import annotations
@@ -53,7 +51,6 @@ __all__ = [
     "finish_verb",
     "fit_verb",
     "frames_from_counts",
-    "induce_verb",
     "sample_indices",
     "sample_rows",
 ]
@@ -76,7 +73,7 @@ class Assignment:
 class VerbTask:
     """What ``fit_verb`` and ``finish_verb`` need of one verb (picklable).
 
-    ``occurrences`` and ``vectors``: the verb's sample (``induce_verb``: all its occurrences).
+    ``occurrences`` and ``vectors``: the verb's sample (empty where only settings are needed).
     ``guide``: the verb's prepared guide (``guide.VerbGuide``), whose curated senses take the
     sampled occurrences near them before the rest is clustered; ``None``: unguided.
     """
@@ -320,40 +317,6 @@ def finish_verb(model: VerbModel, tally: LabelTally, task: VerbTask) -> VerbResu
         )
     entry = Entry(id=eid, lemma=task.lemma, pos="VERB", senses=senses)
     return VerbResult(entry, centroids, sense_of_label, samples)
-
-
-def induce_verb(task: VerbTask) -> tuple[VerbResult, list[Assignment]]:
-    """The senses of one verb whose occurrences are all in memory (``task.occurrences``, its
-    ``vectors``): the sample is drawn as when reading a corpus, the rest assigned."""
-    sample = sample_rows(task.occurrences, task.settings.cap, task.settings.random_state)
-    occs = task.occurrences
-    X = np.asarray(task.vectors, dtype=np.float32)
-    model = fit_verb(
-        replace(task, occurrences=[occs[int(i)] for i in sample], vectors=X[sample])
-    )
-    labels = np.empty(len(occs), dtype=np.intp)
-    rest = np.ones(len(occs), dtype=bool)
-    for row, occ in enumerate(occs):
-        sampled = model.assigner.labels.get(occurrence_ref(occ))
-        if sampled is not None:
-            labels[row] = sampled
-            rest[row] = False
-    if rest.any():
-        labels[rest] = assign_vectors(model.assigner, X[rest])
-    tally = LabelTally()
-    for occ, row_label in zip(occs, labels.tolist(), strict=True):
-        tally.add(row_label, occ.slots)
-    result = finish_verb(model, tally, task)
-    assignments = [
-        Assignment(task.lemma, result.sense_of_label[int(label)], *_cited(occ))
-        for occ, label in zip(occs, labels, strict=True)
-    ]
-    return result, assignments
-
-
-def _cited(occ: Occurrence) -> tuple[str, str, int]:
-    corpus, sentence, token = occurrence_ref(occ)
-    return corpus, sentence, token + 1
 
 
 #: Member vectors kept per sense for the review site (evenly spread over the sense's members).
