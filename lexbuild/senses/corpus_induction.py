@@ -26,6 +26,7 @@ assignments on disk.
 from __future__ import annotations
 
 import csv
+import dataclasses
 import hashlib
 import json
 from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
@@ -83,6 +84,15 @@ def partition_occurrences(partition: Any, errors: list[CorpusError]) -> Iterator
     if hasattr(partition, "occurrences"):
         return iter(partition.occurrences(errors))
     return iter(partition)
+
+
+def _narrowed(partition: Any, lemmas: frozenset[str] | None) -> Any:
+    """A shard job that skips the sentences without a wanted verb (extraction is the cost)."""
+    if lemmas is None or not dataclasses.is_dataclass(partition) or not hasattr(
+        partition, "lemmas"
+    ):
+        return partition
+    return dataclasses.replace(partition, lemmas=lemmas)  # type: ignore[type-var]
 
 
 def _open_cache(cache: Cache) -> Any:
@@ -383,11 +393,12 @@ def induce_partitions(
 
     task_representation = portable or representation
     calibrates = settings.calibrates and calibration is None
+    reading = None if calibrates else lemmas  # a calibration on the corpus reads every verb
     stage("reading")
     sample, errors, _ = _merge_samples(
         executor,
         (
-            SampleTask(partition, None if calibrates else lemmas, settings.cap,
+            SampleTask(_narrowed(partition, reading), reading, settings.cap,
                        settings.random_state, task_representation)
             for partition in partitions
         ),
@@ -457,7 +468,8 @@ def induce_partitions(
     tallies = {lemma: LabelTally() for lemma in kept}
     holding: dict[str, list[int]] = {lemma: [] for lemma in kept}
     jobs = (
-        AssignTask(partition, index, assigners, task_representation, worker_cache, str(spool))
+        AssignTask(_narrowed(partition, frozenset(kept)), index, assigners,
+                   task_representation, worker_cache, str(spool))
         for index, partition in enumerate(partitions)
     )
     for index, part in enumerate(executor.map(assign_partition, jobs)):

@@ -94,7 +94,7 @@ def induce_corpus(
     folder = Path(tempfile.mkdtemp(prefix="lexbuild-spool-") if spill is None else spill)
     folder.mkdir(parents=True, exist_ok=True)
     if on_stage is not None:
-        on_stage("reading")
+        on_stage("obliques")  # the argument/adjunct decision's pass over the whole corpus
     partitions = corpus_partitions(corpus, executor, language=language, shard_bytes=shard_bytes)
     calibrates = settings.calibrates and calibration is None
     driver_cache = VectorCache(cache) if cache is not None and calibrates else None
@@ -171,7 +171,7 @@ def induce_on_executor(
 
     ``cache``: the vector cache folder (None: no cache); ``spill``: a folder every worker can
     reach for the assignment spool (default: a temporary folder, removed afterwards).
-    ``on_stage(name)`` is called as each stage starts: "reading", "calibrating",
+    ``on_stage(name)`` is called as each stage starts: "obliques", "reading", "calibrating",
     "clustering", "assigning" (a progress display switches bars there).
     """
     run, folder = induce_corpus(
