@@ -229,7 +229,7 @@ def assign_partition(task: AssignTask) -> PartitionTally:
     def flush(spool: _VerbSpool) -> None:
         assigner = task.assigners[spool.lemma]
         rest = [occ for occ, label in spool.rows if label is None]
-        labels = iter(())  # type: Iterator[int]
+        labels: Iterator[int] = iter(())
         if rest:
             vectors = encode_cached(task.representation, rest, cache, stats=out.stats)
             labels = iter(assign_vectors(assigner, vectors).tolist())

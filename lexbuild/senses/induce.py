@@ -94,7 +94,8 @@ class VerbAssigner:
 
     lemma: str
     labels: dict[Ref, int]  # sampled occurrence -> its cluster
-    centroids: npt.NDArray[np.float32]  # one L2-normalised row per cluster label
+    centroids: npt.NDArray[np.float32]  # one L2-normalised row per cluster with members
+    centroid_labels: npt.NDArray[np.intp]  # the cluster label of each row
 
 
 @dataclass(frozen=True)
@@ -231,22 +232,20 @@ def fit_verb(task: VerbTask) -> VerbModel:
     occs = task.occurrences
     Xn = _normalised(task.vectors)
     labels, curated = _cluster(task, Xn)
-    k = int(labels.max()) + 1
-    centroids = np.zeros((k, Xn.shape[1]), dtype=np.float32)
     clusters: dict[int, SampledCluster] = {}
-    for cluster in range(k):
+    # Only clusters with members attract the rest (a curated sense may have none).
+    for cluster in range(int(labels.max()) + 1):
         members = np.flatnonzero(labels == cluster)
         if not members.size:
             continue
-        centroid = Xn[members].astype(np.float64).sum(axis=0)
-        centroid /= max(float(np.linalg.norm(centroid)), 1e-12)
-        centroids[cluster] = centroid.astype(np.float32)
+        total = Xn[members].astype(np.float64).sum(axis=0)
+        centroid = (total / max(float(np.linalg.norm(total)), 1e-12)).astype(np.float32)
         clusters[cluster] = SampledCluster(
             first=int(members[0]),
-            centroid=centroids[cluster],
+            centroid=centroid,
             vectors=Xn[members[_spread(members.size, OCCURRENCE_SAMPLE)]],
             candidates=tuple(_candidate(occs[int(i)]) for i in members),
-            similarity=tuple((Xn[members] @ centroids[cluster]).tolist()),
+            similarity=tuple((Xn[members] @ centroid).tolist()),
         )
     return VerbModel(
         lemma=task.lemma,
@@ -254,7 +253,8 @@ def fit_verb(task: VerbTask) -> VerbModel:
             lemma=task.lemma,
             labels={occurrence_ref(occ): int(label) for occ, label in zip(occs, labels,
                                                                              strict=True)},
-            centroids=centroids,
+            centroids=np.stack([c.centroid for c in clusters.values()]),
+            centroid_labels=np.asarray(list(clusters), dtype=np.intp),
         ),
         clusters=clusters,
         curated=curated,
@@ -264,7 +264,8 @@ def fit_verb(task: VerbTask) -> VerbModel:
 
 def assign_vectors(assigner: VerbAssigner, vectors: npt.ArrayLike) -> npt.NDArray[np.intp]:
     """Labels of occurrences beyond the sample: the nearest cluster centroid (cosine)."""
-    return assign_to_centroids(_normalised(vectors), assigner.centroids)
+    rows = assign_to_centroids(_normalised(vectors), assigner.centroids)
+    return assigner.centroid_labels[rows]
 
 
 def finish_verb(model: VerbModel, tally: LabelTally, task: VerbTask) -> VerbResult:
