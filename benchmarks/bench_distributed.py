@@ -19,12 +19,20 @@ during the induce runs at 200k):
         (1,415/s, x1.90); peak RSS per worker 86 MB and 84 MB
     frames, 1M sentences (1.4 GiB), 2 workers: 365.2 s (2,738/s, lower load by then); peak RSS
         per worker 92 and 93 MB: +9% for 10x the corpus (shard size fixed at 16 MiB)
-    induce, 20 most frequent verbs, embedded default, threshold 0.6, no cache:
-        50k sentences (21,921 occurrences): 1 worker 28.1 s, 2 workers 18.3 s (x1.53);
-        200k sentences (87,706 occurrences): 49.6 s vs 48.8 s (x1.02, load 2-4); another
-        2-worker run, timed by stage: 37 s (reading 15.6 s, run id on the client 4.7 s,
-        clustering 16.8 s). Peak RSS per worker 0.7 GB at 50k, 1.1 GB at 200k: a verb's
-        occurrences and vectors are held by its task, so this grows with the largest verb.
+    induce before per-verb caps were applied while reading (20 most frequent verbs, embedded
+        default, threshold 0.6, no cache): peak RSS per worker 0.7 GB at 50k, 1.1 GB at 200k
+        sentences, since each verb task held all of the verb's occurrences and vectors.
+    induce now (each measurement in a fresh process; cap 2000; 20 verbs; load average 8-21 on
+        the 2 shared cores, so wall times say little and 2 workers ran slower than 1):
+        100k sentences (43,852 occurrences, 69 senses): one process 406.2 s, peak RSS 785 MB;
+            1 worker 515.8 s, client 391 MB, worker 725 MB; 2 workers 585.6 s, client 435 MB,
+            workers 719 and 731 MB.
+        500k sentences (219,352 occurrences, 71 senses): one process 1736.7 s, peak RSS 874 MB:
+            +11% for 5x the corpus and 5x the occurrences (the run before capped reading held
+            every occurrence: memory grew with them).
+        Stages of the one-process runs, 100k / 500k: obliques 103 / 939 s, reading (sampling)
+        126 / 500 s, clustering 63 / 26 s (spaCy vectors loaded there), assigning 114 / 273 s.
+        1M was not run: at this load one process would take about an hour.
 """
 
 from __future__ import annotations
