@@ -29,7 +29,9 @@ during the induce runs at 200k):
             workers 719 and 731 MB.
         500k sentences (219,352 occurrences, 71 senses): one process 1736.7 s, peak RSS 874 MB:
             +11% for 5x the corpus and 5x the occurrences (the run before capped reading held
-            every occurrence: memory grew with them).
+            every occurrence: memory grew with them); 2 workers 616.5 s (lower load, 4-9),
+            workers 741 and 770 MB (+3% and +5% on 100k), client 617 MB (+42% on 100k: not
+            investigated; the executor keeps 8 tasks in flight, each bounded by a shard).
         Stages of the one-process runs, 100k / 500k: obliques 103 / 939 s, reading (sampling)
         126 / 500 s, clustering 63 / 26 s (spaCy vectors loaded there), assigning 114 / 273 s.
         1M was not run: at this load one process would take about an hour.
