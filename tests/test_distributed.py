@@ -14,6 +14,7 @@ import subprocess
 import sys
 import tempfile
 import time
+from collections import Counter
 from collections.abc import Callable, Iterable, Iterator
 from functools import partial
 from pathlib import Path
@@ -26,7 +27,7 @@ import pytest
 import lexbuild.distributed as distributed_module
 from lexbuild.cli import main
 from lexbuild.corpus.conllu import iter_sentences
-from lexbuild.corpus.occurrences import iter_occurrences
+from lexbuild.corpus.occurrences import Occurrence, iter_occurrences
 from lexbuild.corpus.sharded import count_frames_sharded
 from lexbuild.corpus.shards import iter_shard_sentences, plan_shards
 from lexbuild.corpus.valency import FrameThresholds, count_frames
@@ -277,7 +278,100 @@ def test_induce_identical_in_one_process_two_workers_and_a_loopback_cluster(
                     "--scheduler", loopback_scheduler)
     assert ", 0 computed" in again
     assert _folder_bytes(tmp_path / "again") == expected
-    assert list(spill_parent.glob("lexbuild-spill-*")) == []  # the partitions are removed
+    assert list(spill_parent.glob("lexbuild-spool-*")) == []  # the spool is removed
+
+
+def test_capped_induce_identical_in_one_process_and_on_sharded_workers(
+    tmp_path: Path, ud_dir: Path, local_executor: DaskExecutor
+) -> None:
+    """With a cap below the verbs' frequencies, the sample is drawn while reading: one process
+    over one shard and two workers over many shards write the same bytes."""
+    from lexbuild.senses.distributed_induce import induce_on_executor
+    from lexbuild.senses.induction_folder import write_induction
+    from lexbuild.senses.settings import InductionSettings
+    from lexbuild.senses.vectors import load_representation
+
+    corpus = [ud_dir / "fr_sequoia-ud-dev.conllu"]
+    lemmas = ("faire", "devoir", "pouvoir")
+    counts = Counter(o.lemma for o in iter_occurrences(corpus) if o.lemma in lemmas)
+    settings = InductionSettings(threshold=0.6, cap=8)
+    assert min(counts.values()) > settings.cap
+    static = load_representation("static-syntactic")
+    single, _ = induce_on_executor(corpus, static, InProcessExecutor(), settings, lemmas=lemmas)
+    sharded, _ = induce_on_executor(
+        corpus, static, local_executor, settings, lemmas=lemmas, shard_bytes=100_000
+    )
+    write_induction(single, tmp_path / "single")
+    write_induction(sharded, tmp_path / "sharded")
+    assert _folder_bytes(tmp_path / "sharded") == _folder_bytes(tmp_path / "single")
+    assert single.counts["occurrences"] == sum(counts.values())
+    assert single.counts["clustered"] == settings.cap * len(lemmas)
+    assert [a.lemma for a in single.assignments] == sorted(
+        o.lemma for o in iter_occurrences(corpus) if o.lemma in lemmas
+    )
+
+
+def test_no_task_holds_more_than_cap_occurrences_of_a_verb(
+    ud_dir: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """Memory bounded by the cap, checked structurally: every reservoir while reading, every
+    clustering task and every batch encoded when assigning hold at most cap (or one batch)."""
+    import lexbuild.senses.corpus_induction as passes
+    from lexbuild.senses.distributed_induce import induce_on_executor
+    from lexbuild.senses.reservoir import VerbReservoir
+    from lexbuild.senses.settings import InductionSettings
+    from lexbuild.senses.vectors import load_representation
+
+    cap, batch = 6, 4
+    held: list[int] = []
+    offer = VerbReservoir.offer
+
+    def watched_offer(self: VerbReservoir, *args: object, **kwargs: object) -> None:
+        offer(self, *args, **kwargs)  # type: ignore[arg-type]
+        held.append(self.held)
+
+    encoded: list[tuple[str, int]] = []
+    encode = passes.encode_cached
+
+    def watched_encode(representation: object, occurrences: list[Occurrence], *a: object,
+                       **k: object) -> object:
+        encoded.append((occurrences[0].lemma, len(occurrences)))
+        return encode(representation, occurrences, *a, **k)  # type: ignore[arg-type]
+
+    monkeypatch.setattr(VerbReservoir, "offer", watched_offer)
+    monkeypatch.setattr(passes, "encode_cached", watched_encode)
+    monkeypatch.setattr(passes, "ASSIGN_BATCH", batch)
+    monkeypatch.setattr(passes.AssignTask.__init__, "__defaults__", (batch,))
+    corpus = [ud_dir / "fr_sequoia-ud-dev.conllu"]
+    result, _ = induce_on_executor(
+        corpus, load_representation("static-syntactic"), InProcessExecutor(),
+        InductionSettings(threshold=0.6, cap=cap), lemmas=["faire", "voir"],
+        shard_bytes=200_000,
+    )
+    frequency = Counter(o.lemma for o in iter_occurrences(corpus))
+    assert held and max(held) == cap < min(frequency["faire"], frequency["voir"])
+    # One clustering task per verb with exactly its sample, then batches of the rest.
+    assert sorted(encoded[:2]) == [("faire", cap), ("voir", cap)]
+    assert encoded[2:] and max(n for _, n in encoded[2:]) <= batch
+    assert sum(n for _, n in encoded) == frequency["faire"] + frequency["voir"]
+    assert result.counts["occurrences"] == frequency["faire"] + frequency["voir"]
+
+
+def test_guided_induce_identical_in_one_process_and_with_two_workers(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str], ud_dir: Path, sample_lexicon_dir: Path
+) -> None:
+    """--guide with --workers: each verb's curated senses travel with its clustering task."""
+    corpus = ud_dir / "fr_sequoia-ud-train.conllu"
+    common = ("induce", str(corpus), "--threshold", "0.65", "--lemma", "tenir", "--lemma",
+              "prendre", "--guide", str(sample_lexicon_dir), "--cap", "40", "--no-cache")
+    code, _, err = _run(capsys, *common, "-o", str(tmp_path / "single"))
+    assert code == 0, err
+    code, _, err = _run(capsys, *common, "-o", str(tmp_path / "local"), "--workers", "2")
+    assert code == 0, err
+    expected = _folder_bytes(tmp_path / "single")
+    assert _folder_bytes(tmp_path / "local") == expected
+    guided = json.loads(expected["induction.json"])["guided"]
+    assert guided["curated"]  # curated senses kept their ids on the workers too
 
 
 # ---------------------------------------------------------------------------- calibrate

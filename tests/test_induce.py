@@ -20,7 +20,7 @@ from lexbuild.errors import InductionError
 from lexbuild.lexicon.model import Entry, Frame
 from lexbuild.senses.agglomerative import AgglomerativeClusterer as SenseClusterer
 from lexbuild.senses.examples import choose_examples
-from lexbuild.senses.induce import sample_indices
+from lexbuild.senses.induce import sample_rows
 from lexbuild.senses.inducer import InductionResult, induce
 from lexbuild.senses.induction_folder import (
     ASSIGNMENTS_HEADER,
@@ -187,7 +187,7 @@ def test_cap_clusters_a_sample_and_assigns_the_rest(
     settings = InductionSettings(threshold=0.6, cap=cap)
     res = induce(occs, static, settings)
     X = encode_cached(static, occs)
-    sample = sample_indices(len(occs), cap, lemma, settings.random_state)
+    sample = sample_rows(occs, cap, settings.random_state)  # the clustering's order
     assert len(sample) == cap and len(set(sample.tolist())) == cap
     clusterer = SenseClusterer(threshold=0.6).fit(X[sample])
     sense_of = [a.sense for a in res.assignments]
@@ -309,3 +309,24 @@ def test_single_occurrence_and_unlocated_verbs(
     hisser = by_lemma["hisser"].senses[0]
     assert hisser.examples == [] and hisser.frames
     assert {a.lemma for a in res.assignments} == {one.lemma, "hisser"}
+
+
+def test_a_cluster_without_members_attracts_nothing(
+    occurrences: list[Occurrence], monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """A label with no sampled member (a curated sense nothing supports) has no centroid: the
+    occurrences beyond the sample go to the clusters that have members."""
+    import lexbuild.senses.induce as one_verb
+
+    occs = [o for o in occurrences if o.lemma == "prendre"][:12]
+    gapped = np.array([0, 0, 0, 2, 2, 2, 2, 0, 2, 0, 2, 0], dtype=np.intp)
+    monkeypatch.setattr(one_verb, "_cluster", lambda task, Xn: (gapped[: len(Xn)], {}))
+    rng = np.random.default_rng(0)
+    task = one_verb.VerbTask(
+        lemma="prendre", occurrences=occs, vectors=rng.normal(size=(12, 8)).astype(np.float32),
+        settings=InductionSettings(threshold=0.6), representation="r", model=None, run="run-x",
+    )
+    model = one_verb.fit_verb(task)
+    assert sorted(model.clusters) == [0, 2]
+    labels = one_verb.assign_vectors(model.assigner, rng.normal(size=(200, 8)))
+    assert set(labels.tolist()) == {0, 2}

@@ -161,12 +161,16 @@ def update_bar(bar: Any, n: int) -> None:
 
 
 def run_induce(args: argparse.Namespace) -> int:
+    import contextlib
+    import shutil
+
     from tqdm import tqdm
 
     from lexbuild.corpus.conllu import resolve_paths
-    from lexbuild.corpus.occurrences import iter_occurrences
+    from lexbuild.distributed import executor_from_args
     from lexbuild.errors import InductionError
-    from lexbuild.senses.inducer import SenseInducer
+    from lexbuild.senses.distributed_induce import induce_corpus, result_of
+    from lexbuild.senses.executor import InProcessExecutor
     from lexbuild.senses.induction_folder import write_induction
 
     files = resolve_paths(args.corpus)
@@ -189,48 +193,69 @@ def run_induce(args: argparse.Namespace) -> int:
 
         guide = load_guide(args.guide, drafts=args.guide_drafts)
         settings, representation = _guided_settings(args, settings, representation)
-    if args.workers is not None or args.scheduler is not None:
-        if guide is not None:
-            raise InductionError(
-                "--guide runs in one process for now: drop --workers/--scheduler"
-            )
-        return _run_induce_distributed(args, files, output, settings, representation)
-    inducer = SenseInducer(
-        representation, settings=settings, calibration=args.calibration, cache=open_cache(args),
-        guide=guide,
-    )
-    # A calibration run on the corpus reads every verb; otherwise only the verbs asked for.
+    cache = open_cache(args)
+    cache_folder = None if cache is None else cache.path
+    if cache is not None:
+        cache.close()
+    distributed = args.workers is not None or args.scheduler is not None
     calibrates = args.threshold is None and not args.calibration
-    occurrences = list(
-        iter_occurrences(
-            files, language=args.language, lemmas=None if calibrates else args.lemma or None
-        )
-    )
-    wanted = set(args.lemma) if args.lemma else None
-    induced = [o for o in occurrences if wanted is None or o.lemma in wanted]
-    verbs = len({occ.lemma for occ in induced})
     calibration = settings.calibration
     pseudo_verbs = calibration.pairs + calibration.matched_pairs + calibration.triples
-    with (
-        tqdm(total=pseudo_verbs if calibrates else 0, desc="calibrating", unit=" pseudo-verbs",
-             file=sys.stderr, disable=None if calibrates else True) as calibrate_bar,
-        tqdm(total=len(induced), desc="embedding", unit=" occ", file=sys.stderr,
-             disable=None) as embed_bar,
-        tqdm(total=verbs, desc="clustering", unit=" verbs", file=sys.stderr,
-             disable=None) as verb_bar,
-    ):
-        inducer.fit(
-            occurrences,
-            lemmas=args.lemma or None,
-            corpus=[str(f) for f in files],
-            on_calibrated=lambda n: update_bar(calibrate_bar, n),
-            on_encoded=lambda n: update_bar(embed_bar, n),
-            on_verb=lambda _lemma, _n: update_bar(verb_bar, 1),
+    with contextlib.ExitStack() as stack:
+        bars = {
+            name: stack.enter_context(
+                tqdm(desc=name, unit=unit, file=sys.stderr, total=total,
+                     disable=None if shown else True)
+            )
+            for name, unit, total, shown in (
+                ("reading", " shards", None, True),
+                ("calibrating", " pseudo-verbs", pseudo_verbs, calibrates),
+                ("clustering", " verbs", None, True),
+                ("assigning", " shards", None, True),
+            )
+        }
+        executor: Any = (
+            stack.enter_context(executor_from_args(args)) if distributed else InProcessExecutor()
         )
-    result = inducer.result_
-    print(f"lexbuild induce: threshold {inducer.threshold_.value:g}, "
-          f"{inducer.threshold_.source}", file=sys.stderr)
-    write_induction(result, output, overwrite=args.overwrite)
+        current = {"stage": "reading"}
+
+        def on_stage(name: str) -> None:
+            current["stage"] = name
+            if distributed:
+                # Fed by Dask: each stage's bar moves as its tasks finish on the workers.
+                bar = bars.get(name)
+                executor.on_done = None if bar is None else (lambda n: update_bar(bar, n))
+
+        def on_shard(n: int) -> None:
+            if not distributed:
+                update_bar(bars[current["stage"]], n)
+
+        run, spool = induce_corpus(
+            files,
+            representation,
+            executor,
+            settings,
+            calibration=args.calibration,
+            cache=cache_folder,
+            lemmas=args.lemma or None,
+            language=args.language,
+            spill=args.spill,
+            guide=guide,
+            on_shard=on_shard,
+            on_calibrated=None if distributed else (
+                lambda n: update_bar(bars["calibrating"], n)
+            ),
+            on_verb=None if distributed else (lambda _lemma, _n: update_bar(bars["clustering"], 1)),
+            on_stage=on_stage,
+        )
+    try:
+        result = result_of(run, representation, files, guide=guide, lemmas=args.lemma or None)
+        print(f"lexbuild induce: threshold {run.choice.value:g}, {run.choice.source}",
+              file=sys.stderr)
+        write_induction(result, output, overwrite=args.overwrite)
+    finally:
+        if args.spill is None:
+            shutil.rmtree(spool, ignore_errors=True)
     if result.guided is not None:
         print(
             f"guided by {args.guide}: {len(result.guided['curated'])} curated senses kept their "
@@ -241,7 +266,7 @@ def run_induce(args: argparse.Namespace) -> int:
     counts = result.counts
     print(
         f"{counts['verbs']} verbs, {counts['senses']} senses from {counts['occurrences']} "
-        f"occurrences ({settings.clusterer}, threshold {inducer.threshold_.value:g}, run "
+        f"occurrences ({settings.clusterer}, threshold {run.choice.value:g}, run "
         f"{result.run}); vectors: {result.cache.hits} from the cache, {result.cache.computed} "
         f"computed -> {output}"
     )
@@ -285,57 +310,6 @@ def add_guide_options(parser: argparse.ArgumentParser) -> None:
     group.add_argument(
         "--guide-drafts", action="store_true", help="draft senses guide too"
     )
-
-
-def _run_induce_distributed(
-    args: argparse.Namespace, files: list[Path], output: Path, settings: InductionSettings,
-    representation: Any,
-) -> int:
-    """``induce`` on a Dask cluster: the same induction folder as in one process."""
-    from tqdm import tqdm
-
-    from lexbuild.distributed import executor_from_args
-    from lexbuild.senses.distributed_induce import induce_on_executor
-    from lexbuild.senses.induction_folder import write_induction
-
-    cache = open_cache(args)
-    cache_folder = None if cache is None else cache.path
-    if cache is not None:
-        cache.close()
-    with (
-        tqdm(desc="reading", unit=" shards", file=sys.stderr, disable=None) as read_bar,
-        tqdm(desc="clustering", unit=" verbs", file=sys.stderr, disable=None) as verb_bar,
-        executor_from_args(args) as executor,
-    ):
-        assert executor is not None
-        bars = {"reading": read_bar, "clustering": verb_bar}
-
-        def on_stage(name: str) -> None:
-            # Fed by Dask: each stage's bar moves as its tasks finish on the workers.
-            bar = bars.get(name)
-            executor.on_done = None if bar is None else (lambda n: update_bar(bar, n))
-        result, choice = induce_on_executor(
-            files,
-            representation,
-            executor,
-            settings,
-            calibration=args.calibration,
-            cache=cache_folder,
-            lemmas=args.lemma or None,
-            language=args.language,
-            spill=args.spill,
-            on_stage=on_stage,
-        )
-    print(f"lexbuild induce: threshold {choice.value:g}, {choice.source}", file=sys.stderr)
-    write_induction(result, output, overwrite=args.overwrite)
-    counts = result.counts
-    print(
-        f"{counts['verbs']} verbs, {counts['senses']} senses from {counts['occurrences']} "
-        f"occurrences ({settings.clusterer}, threshold {choice.value:g}, run "
-        f"{result.run}); vectors: {result.cache.hits} from the cache, {result.cache.computed} "
-        f"computed -> {output}"
-    )
-    return 0
 
 
 def register(subparsers: Any) -> None:
@@ -391,7 +365,8 @@ def register(subparsers: Any) -> None:
     parser.add_argument(
         "--spill",
         metavar="DIR",
-        help="with --workers/--scheduler: folder for the per-verb partitions, reachable by "
-        "every worker (default: a temporary folder, removed afterwards)",
+        help="folder for the assignments spooled while the corpus is read again, reachable by "
+        "every worker with --workers/--scheduler (default: a temporary folder, removed "
+        "afterwards)",
     )
     parser.set_defaults(handler=run_induce)

@@ -2,11 +2,11 @@
 
 Parameters go to ``__init__`` (the representation, then any field of ``InductionSettings`` by
 name: ``threshold``, ``clusterer``, ``linkage``, ``random_state``, ``cap``, ``examples`` ...;
-plus a calibration file, an executor, a vector cache and a guide); ``fit(occurrences)`` chooses
-the threshold (``lexbuild.senses.threshold``), encodes each verb's occurrences, runs
-``induce_verb`` on every verb through the executor and keeps the result as data in
-``result_`` (an ``InductionResult``) and the threshold choice in ``threshold_``. Nothing is
-printed; callbacks serve progress bars. ``lexbuild.senses.induction_folder`` writes the result.
+plus a calibration file, an executor, a vector cache and a guide); ``fit(occurrences)`` runs
+the passes of ``lexbuild.senses.corpus_induction`` over them (each verb's capped sample
+clustered through the executor, the rest assigned) and keeps the result as data in ``result_``
+(an ``InductionResult``) and the threshold choice in ``threshold_``. Nothing is printed;
+callbacks serve progress bars. ``lexbuild.senses.induction_folder`` writes the result.
 
     inducer = SenseInducer(load_representation("static-syntactic"), threshold=0.6)
     result = inducer.fit(occurrences).result_
@@ -14,11 +14,8 @@ printed; callbacks serve progress bars. ``lexbuild.senses.induction_folder`` wri
 
 from __future__ import annotations
 
-import hashlib
-import json
 import unicodedata
-from collections import defaultdict
-from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
+from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field, fields
 from pathlib import Path
 from typing import Any
@@ -28,20 +25,16 @@ import numpy.typing as npt
 
 from lexbuild import __version__
 from lexbuild.corpus.occurrences import Occurrence
-from lexbuild.errors import InductionError
 from lexbuild.lexicon.model import Entry
 from lexbuild.senses.calibrate import Calibration
-from lexbuild.senses.examples import corpus_name
 from lexbuild.senses.executor import Executor, InProcessExecutor
-from lexbuild.senses.induce import Assignment, VerbResult, VerbTask, induce_verb
+from lexbuild.senses.induce import Assignment, VerbResult
 from lexbuild.senses.settings import InductionSettings
-from lexbuild.senses.threshold import ThresholdChoice, choose_threshold
+from lexbuild.senses.threshold import ThresholdChoice
 from lexbuild.senses.vectors import (
     CacheStats,
     Representation,
     VectorCache,
-    encode_cached,
-    fingerprint,
 )
 
 __all__ = ["InductionResult", "SenseInducer", "induce"]
@@ -53,7 +46,8 @@ class InductionResult:
 
     entries: list[Entry]
     centroids: dict[str, npt.NDArray[np.float32]]
-    assignments: list[Assignment]
+    # A list, or (a corpus streamed by the CLI) the run's spool, read when the folder is written.
+    assignments: Iterable[Assignment]
     settings: InductionSettings
     representation: str
     model: str | None
@@ -83,23 +77,6 @@ class InductionResult:
             "counts": dict(self.counts),
             **({"guided": self.guided} if self.guided is not None else {}),
         }
-
-
-def _run_id(
-    representation: Representation,
-    settings: InductionSettings,
-    by_lemma: Mapping[str, Sequence[Occurrence]],
-) -> str:
-    """A content hash of everything the result depends on (never the time)."""
-    h = hashlib.sha256()
-    h.update(fingerprint(representation).encode())
-    h.update(json.dumps(settings.to_json(), sort_keys=True).encode())
-    for lemma in sorted(by_lemma):
-        h.update(lemma.encode() + b"\x1d")
-        for occ in by_lemma[lemma]:
-            h.update(f"{corpus_name(occ.source)}\x1f{occ.sentence_id}\x1f{occ.token}\x1f".encode())
-            h.update(representation.input_key(occ).encode())
-    return "run-" + h.hexdigest()[:16]
 
 
 class SenseInducer:
@@ -133,31 +110,6 @@ class SenseInducer:
         self.cache = cache
         self.guide = guide
 
-    def _verb_guide(
-        self,
-        lemma: str,
-        occs: Sequence[Occurrence],
-        vectors: npt.NDArray[np.float32],
-        settings: InductionSettings,
-        stats: CacheStats,
-    ) -> Any:
-        """The guide of one verb for its task (anchors located, uncited examples parsed)."""
-        if self.guide is None:
-            return None
-        from lexbuild.senses.guide import prepare_verb_guide
-
-        curated = tuple(self.guide.get(lemma) or ())
-        if not curated:
-            return None
-        return prepare_verb_guide(
-            curated, occs, vectors, self.representation,
-            taken=getattr(self.guide, "taken", ()),
-            method=settings.guide_assigner,
-            max_distance=settings.guide_max_distance,
-            cache=self.cache,
-            stats=stats,
-        )
-
     def get_params(self, deep: bool = True) -> dict[str, Any]:
         """Constructor parameters (scikit-learn convention; settings fields by name)."""
         params = {f.name: getattr(self.settings, f.name) for f in fields(self.settings)}
@@ -177,94 +129,57 @@ class SenseInducer:
         lemmas: Iterable[str] | None = None,
         corpus: Sequence[str | Path] = (),
         on_calibrated: Callable[[int], None] | None = None,
-        on_encoded: Callable[[int], None] | None = None,
         on_verb: Callable[[str, int], None] | None = None,
     ) -> SenseInducer:
         """Induce the senses of every verb in ``occurrences`` (or of ``lemmas`` only).
 
-        A calibration run on the corpus (threshold ``"calibrate"``, no calibration given) uses
-        every occurrence given, ``lemmas`` or not. ``on_calibrated(1)`` is called per
-        pseudo-verb scored, ``on_encoded(n)`` as vectors are produced (cached or computed),
-        ``on_verb(lemma, n)`` after each verb is induced.
+        The occurrences are one partition of ``lexbuild.senses.corpus_induction`` (the CLI
+        streams a corpus in shards instead); each verb clusters its ``cap`` occurrences of
+        smallest fixed priority and the rest go to the nearest centroid. A calibration run on
+        the corpus (threshold ``"calibrate"``, no calibration given) uses every verb's sample,
+        ``lemmas`` or not. ``on_calibrated(1)`` is called per pseudo-verb scored,
+        ``on_verb(lemma, n)`` after each verb is clustered.
         """
-        settings = self.settings
-        occurrences = list(occurrences)
+        import shutil
+        import tempfile
+
+        from lexbuild.senses.corpus_induction import induce_partitions
+
+        held = list(occurrences)
         wanted = (
             frozenset(unicodedata.normalize("NFC", lemma) for lemma in lemmas)
             if lemmas is not None
             else None
         )
-        by_lemma: dict[str, list[Occurrence]] = defaultdict(list)
-        for occ in occurrences:
-            if wanted is None or occ.lemma in wanted:
-                by_lemma[occ.lemma].append(occ)
-        kept = {
-            lemma: occs
-            for lemma, occs in sorted(by_lemma.items())
-            if len(occs) >= settings.min_occurrences
-        }
-        if not kept:
-            raise InductionError(
-                "no verb to induce: the corpus has no occurrence"
-                + (f" of {', '.join(sorted(wanted))}" if wanted else "")
-                + (
-                    f" seen {settings.min_occurrences}+ times"
-                    if settings.min_occurrences > 1
-                    else ""
-                )
+        spool = tempfile.mkdtemp(prefix="lexbuild-assign-")
+        try:
+            done = induce_partitions(
+                [held], self.representation, self.executor or InProcessExecutor(),
+                self.settings, spool, calibration=self.calibration, cache=self.cache,
+                worker_cache=self.cache, lemmas=wanted, guide=self.guide,
+                on_calibrated=on_calibrated, on_verb=on_verb,
             )
-        if self.guide is not None and not isinstance(self.guide, Mapping):
-            raise InductionError("guide must map each lemma to its curated senses")
-        stats = CacheStats()
-        choice = choose_threshold(
-            occurrences,
-            self.representation,
-            settings,
-            self.calibration,
-            cache=self.cache,
-            stats=stats,
-            progress=on_calibrated,
-        )
-        resolved = settings.with_threshold(choice.value)
-        run = _run_id(self.representation, resolved, kept)
-        executor = self.executor or InProcessExecutor()
-
-        def tasks() -> Iterator[VerbTask]:
-            # Lazily: one verb's vectors are computed when the executor asks for its task.
-            for lemma, occs in kept.items():
-                vectors = encode_cached(
-                    self.representation, occs, self.cache, stats=stats, progress=on_encoded
-                )
-                yield VerbTask(
-                    lemma=lemma,
-                    occurrences=occs,
-                    vectors=vectors,
-                    settings=resolved,
-                    representation=self.representation.id,
-                    model=self.representation.model,
-                    run=run,
-                    guide=self._verb_guide(lemma, occs, vectors, resolved, stats),
-                )
-
-        results: list[VerbResult] = []
-        for result in executor.map(induce_verb, tasks()):
-            results.append(result)
-            if on_verb is not None:
-                on_verb(result.entry.lemma, len(result.assignments))
-        entries = [result.entry for result in results]
-        self.threshold_ = choice
+            assignments = list(done.assignments)
+        finally:
+            shutil.rmtree(spool, ignore_errors=True)
+        self.threshold_ = done.choice
         self.result_ = assemble_result(
-            results,
-            settings=resolved,
+            done.results,
+            assignments,
+            settings=done.settings,
             representation=self.representation,
-            run=run,
+            run=done.run,
             corpus=corpus,
-            occurrences={lemma: len(occs) for lemma, occs in kept.items()},
-            skipped_verbs=len(by_lemma) - len(kept),
-            stats=stats,
-            threshold_source=choice.source,
+            occurrences=done.counts,
+            skipped_verbs=done.selected - len(done.counts),
+            stats=done.stats,
+            threshold_source=done.choice.source,
             guided=(
-                None if self.guide is None else _guided_report(self.guide, entries, kept, wanted)
+                None
+                if self.guide is None
+                else _guided_report(
+                    self.guide, [r.entry for r in done.results], done.counts, wanted
+                )
             ),
         )
         return self
@@ -272,6 +187,7 @@ class SenseInducer:
 
 def assemble_result(
     results: Sequence[VerbResult],
+    assignments: Iterable[Assignment],
     *,
     settings: InductionSettings,
     representation: Representation,
@@ -285,7 +201,8 @@ def assemble_result(
 ) -> InductionResult:
     """One run's result from its verbs' results (in lemma order), wherever they were computed.
 
-    ``occurrences``: occurrences per induced verb (all, not only the clustered sample).
+    ``occurrences``: occurrences per induced verb (all, not only the clustered sample);
+    ``assignments``: a list, or a spool read when the folder is written (never held whole).
     """
     centroids: dict[str, npt.NDArray[np.float32]] = {}
     occurrence_vectors: dict[str, npt.NDArray[np.float32]] = {}
@@ -304,7 +221,7 @@ def assemble_result(
         entries=entries,
         centroids=centroids,
         occurrence_vectors=occurrence_vectors,
-        assignments=[a for result in results for a in result.assignments],
+        assignments=assignments,
         settings=settings,
         representation=representation.id,
         model=representation.model,
@@ -321,7 +238,7 @@ def assemble_result(
 def _guided_report(
     guide: Mapping[str, Any],
     entries: Sequence[Entry],
-    kept: Mapping[str, Sequence[Occurrence]],
+    kept: Mapping[str, int],
     wanted: frozenset[str] | None,
 ) -> dict[str, Any]:
     """Which induced senses are curated ones (merge keeps their ids) and which curated senses
@@ -355,11 +272,10 @@ def induce(
     corpus: Sequence[str | Path] = (),
     lemmas: Iterable[str] | None = None,
     on_verb: Callable[[str, int], None] | None = None,
-    on_encoded: Callable[[int], None] | None = None,
     **params: Any,
 ) -> InductionResult:
     """``SenseInducer(representation, settings=settings, ...).fit(occurrences).result_``."""
     inducer = SenseInducer(representation, settings=settings, cache=cache, **params)
     return inducer.fit(
-        occurrences, lemmas=lemmas, corpus=corpus, on_encoded=on_encoded, on_verb=on_verb
+        occurrences, lemmas=lemmas, corpus=corpus, on_verb=on_verb
     ).result_

@@ -14,10 +14,10 @@ import csv
 import io
 import json
 import zipfile
-from collections.abc import Iterator, Mapping, Sequence
+from collections.abc import Iterable, Iterator, Mapping
 from dataclasses import dataclass
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import IO, TYPE_CHECKING, Any
 
 import numpy as np
 import numpy.typing as npt
@@ -94,13 +94,12 @@ def read_centroids(path: str | Path) -> dict[str, Vector]:
 # ---------------------------------------------------------------------------- assignments
 
 
-def _assignments_tsv(assignments: Sequence[Assignment]) -> str:
-    buffer = io.StringIO()
-    writer = csv.writer(buffer, delimiter="\t", lineterminator="\n", quoting=csv.QUOTE_MINIMAL)
+def _write_assignments(handle: IO[str], assignments: Iterable[Assignment]) -> None:
+    # Row by row: a corpus's assignments come from a spool on disk, never whole in memory.
+    writer = csv.writer(handle, delimiter="\t", lineterminator="\n", quoting=csv.QUOTE_MINIMAL)
     writer.writerow(ASSIGNMENTS_HEADER)
     for a in assignments:
         writer.writerow((a.lemma, a.sense, a.corpus, a.sent_id, a.token))
-    return buffer.getvalue()
 
 
 def _assignment_rows(path: Path) -> Iterator[tuple[int, list[str]]]:
@@ -219,7 +218,9 @@ def write_induction(
         for entry in result.entries:
             atomic_write_text(stage / ENTRIES_DIR / f"{entry.id}.yaml", dump_entry(entry))
         atomic_write_bytes(stage / CENTROIDS_FILE, centroids_bytes(result.centroids))
-        atomic_write_text(stage / ASSIGNMENTS_FILE, _assignments_tsv(result.assignments))
+        # The staging folder is swapped in whole, so a plain write inside it is atomic too.
+        with (stage / ASSIGNMENTS_FILE).open("w", encoding="utf-8", newline="") as handle:
+            _write_assignments(handle, result.assignments)
         if result.occurrence_vectors:
             atomic_write_bytes(
                 stage / OCCURRENCE_VECTORS_FILE,
