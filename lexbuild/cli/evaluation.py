@@ -131,6 +131,7 @@ def run_calibrate(args: argparse.Namespace) -> int:
         comparison_markdown,
         write_calibration,
     )
+    from lexbuild.senses.reservoir import sample_corpus
 
     files = resolve_paths(args.corpus)
     if not files:
@@ -163,12 +164,19 @@ def run_calibrate(args: argparse.Namespace) -> int:
     )
     representation = representation_from_args(args)
     cache = open_cache(args)
-    occurrences = list(iter_occurrences(files, language=args.language))
     if args.guide:
         if args.workers is not None or args.scheduler is not None:
             raise InductionError("--guide runs in one process for now: drop --workers/--scheduler")
+        occurrences = list(iter_occurrences(files, language=args.language))
         return _calibrate_guided(args, occurrences, representation, settings, cache, thresholds)
     options = settings.calibration
+    # Pseudo-verbs take at most per_verb occurrences of a verb: read the corpus into one
+    # reservoir of that size per verb (memory constant in corpus size), keep the frequencies.
+    sample = sample_corpus(
+        iter_occurrences(files, language=args.language), options.per_verb,
+        settings.random_state,
+    )
+    occurrences = [occ for _lemma, occs in sample.iter_samples() for occ in occs]
     total = (options.pairs + options.matched_pairs + options.triples) * len(names)
     from lexbuild.distributed import executor_from_args
 
@@ -184,6 +192,7 @@ def run_calibrate(args: argparse.Namespace) -> int:
             cache=cache,
             progress=lambda n: update_bar(bar, n),
             executor=executor,
+            counts=sample.counts,
         )
     best_name = best_clusterer(calibrations)
     calibration = calibrations[best_name]

@@ -235,12 +235,17 @@ def _pseudo_verb_vectors(
     cache: VectorCache | None,
     stats: CacheStats | None,
     executor: Executor | None = None,
+    counts: Mapping[str, int] | None = None,
 ) -> tuple[list[_Scored], dict[str, Any] | None]:
     options = settings.calibration
     by_lemma: dict[str, list[Occurrence]] = defaultdict(list)
     for occ in occurrences:
         by_lemma[occ.lemma].append(occ)
-    counts = Counter({lemma: len(occs) for lemma, occs in by_lemma.items()})
+    # ``counts``: each verb's frequency in the whole corpus when ``occurrences`` is a sample
+    # (pseudo-verbs are matched by frequency, which a capped sample would flatten).
+    counts = Counter(counts) if counts is not None else Counter(
+        {lemma: len(occs) for lemma, occs in by_lemma.items()}
+    )
     pseudo_verbs = build_pseudo_verbs(
         counts, pairs=options.pairs, matched_pairs=options.matched_pairs,
         triples=options.triples, min_count=options.min_count,
@@ -433,6 +438,7 @@ def calibrate(
     stats: CacheStats | None = None,
     progress: Callable[[int], None] | None = None,
     executor: Executor | None = None,
+    counts: Mapping[str, int] | None = None,
     **options: Any,
 ) -> Calibration:
     """Sweep the clusterer's parameter on pseudo-verbs built from ``occurrences``.
@@ -442,10 +448,11 @@ def calibrate(
     them: ``pairs=10``, ``per_verb=80`` ...). The value with the best mean ARI is recommended.
     ``progress`` is called with 1 after each pseudo-verb is scored. ``executor`` (a Dask
     cluster): each pseudo-verb encoded and swept in a task of its own, the same result.
+    ``counts``: the verbs' corpus frequencies when ``occurrences`` is a per-verb sample.
     """
     settings = _settings(settings, thresholds, options)
     scored, layers = _pseudo_verb_vectors(
-        occurrences, representation, settings, cache, stats, executor
+        occurrences, representation, settings, cache, stats, executor, counts
     )
     return _sweep(scored, representation, settings, progress, layers, executor)
 
@@ -460,6 +467,7 @@ def compare_clusterers(
     stats: CacheStats | None = None,
     progress: Callable[[int], None] | None = None,
     executor: Executor | None = None,
+    counts: Mapping[str, int] | None = None,
     **options: Any,
 ) -> dict[str, Calibration]:
     """``calibrate`` for each of ``clusterers`` on the same pseudo-verbs and the same vectors.
@@ -475,7 +483,7 @@ def compare_clusterers(
     for name in clusterers:
         get_clusterer(name)  # an unknown name fails before any encoding
     scored, layers = _pseudo_verb_vectors(
-        occurrences, representation, settings, cache, stats, executor
+        occurrences, representation, settings, cache, stats, executor, counts
     )
     return {
         name: _sweep(

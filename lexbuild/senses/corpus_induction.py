@@ -421,7 +421,8 @@ def induce_partitions(
         raise InductionError("guide must map each lemma to its curated senses")
     stats = CacheStats()
     stage("calibrating")
-    # A calibration on the corpus sees each verb's sample (at most cap occurrences).
+    # A calibration on the corpus sees each verb's sample (at most cap occurrences) and its
+    # frequency in the whole corpus.
     choice = choose_threshold(
         [occ for _, occs in sample.iter_samples() for occ in occs] if calibrates else [],
         representation,
@@ -431,6 +432,7 @@ def induce_partitions(
         stats=stats,
         progress=on_calibrated,
         executor=executor if calibrate_on_executor else None,
+        counts=sample.counts if calibrates else None,
     )
     resolved = settings.with_threshold(choice.value)
     run = run_id(representation, resolved, sample, kept)

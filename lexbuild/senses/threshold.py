@@ -13,7 +13,7 @@ The clusterer's calibrated parameter (the "threshold") is chosen, in this order:
 
 from __future__ import annotations
 
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -86,6 +86,7 @@ def choose_threshold(
     stats: CacheStats | None = None,
     progress: Callable[[int], None] | None = None,
     executor: Any = None,
+    counts: Mapping[str, int] | None = None,
 ) -> ThresholdChoice:
     """Apply the policy of the module docstring.
 
@@ -111,7 +112,7 @@ def choose_threshold(
     try:
         calibrated = calibrate(
             occurrences, representation, settings, cache=cache, stats=stats, progress=progress,
-            executor=executor,
+            executor=executor, counts=counts,
         )
     except InductionError as error:
         if choose_layers:
