@@ -1,0 +1,206 @@
+"""Documents written one entry at a time, each entry's text reusable from a cache.
+
+The TEI and LMF writers put a header, then every entry (sorted by id), then a closing; an
+entry's text depends only on the entry, the object language and the declared corpora. So an
+incremental build keeps each entry's text (an ``EntryFragment``) under a content key and writes
+only the entries that changed. Both paths run the same code: ``write_entries`` is what
+``to_tei`` and ``to_lmf`` call with no cache, so a document built from cached fragments is
+byte-identical to a cold build by construction (and ``tests/test_incremental.py`` checks it).
+
+What is never reused from a cache, so that a cache hit cannot hide an error a cold build
+reports:
+
+* duplicate ids across the document: every id an entry wrote is replayed, in document order,
+  into the document's ``DocumentIds`` (same check, same message as a cold build);
+* an entry whose text holds a character XML forbids: it raises before anything is stored;
+* an entry that needed a generated id (``DocumentIds.fresh``: a frame or example without an
+  id): the id depends on every id in the lexicon, so that entry is written afresh every time.
+"""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Callable, Iterable, Sequence
+from dataclasses import dataclass
+from typing import Any, Protocol
+
+from lexbuild.formats.xmlsafe import XmlWriter, forbidden_character
+from lexbuild.lexicon.ids import DocumentIds
+from lexbuild.lexicon.model import Entry
+
+__all__ = [
+    "EntryFragment",
+    "EntryItem",
+    "FragmentCache",
+    "RecordingIds",
+    "WrittenDocument",
+    "entry_items",
+    "write_entries",
+]
+
+
+@dataclass(frozen=True, slots=True)
+class EntryFragment:
+    """The text one entry contributes to a document.
+
+    ``text``: the entry's lines (joined by newlines); ``tail``: lines it contributes after all
+    entries (LMF frames), None when it has none; ``ids``: the (id, owner) pairs it wrote.
+    """
+
+    text: str
+    tail: str | None
+    ids: tuple[tuple[str, str], ...]
+
+    def to_bytes(self) -> bytes:
+        return json.dumps(
+            {"text": self.text, "tail": self.tail, "ids": self.ids},
+            ensure_ascii=False,
+            separators=(",", ":"),
+        ).encode("utf-8")
+
+    @classmethod
+    def from_bytes(cls, data: bytes) -> EntryFragment:
+        value = json.loads(data)
+        return cls(value["text"], value["tail"], tuple((i, o) for i, o in value["ids"]))
+
+
+class EntryItem(Protocol):
+    """One entry as a writer sees it: its id, a content key (None: never cached), the entry."""
+
+    @property
+    def id(self) -> str: ...
+
+    @property
+    def key(self) -> str | None: ...
+
+    def entry(self) -> Entry: ...
+
+
+@dataclass(frozen=True, slots=True)
+class _Given:
+    """An entry already in memory (a cold build)."""
+
+    value: Entry
+
+    @property
+    def id(self) -> str:
+        return self.value.id
+
+    @property
+    def key(self) -> str | None:
+        return None
+
+    def entry(self) -> Entry:
+        return self.value
+
+
+def entry_items(entries: Iterable[Entry]) -> list[EntryItem]:
+    return [_Given(entry) for entry in entries]
+
+
+class FragmentCache(Protocol):
+    """Where fragments are kept between runs (``lexbuild.lexicon.build_cache.BuildCache``)."""
+
+    def get_many(self, kind: str, keys: Sequence[str]) -> dict[str, bytes]: ...
+
+    def put_many(self, kind: str, items: dict[str, bytes]) -> None: ...
+
+
+class RecordingIds:
+    """A ``DocumentIds`` that notes what one entry adds and whether it asked for a fresh id."""
+
+    def __init__(self, ids: DocumentIds) -> None:
+        self.ids = ids
+        self.added: list[tuple[str, str]] = []
+        self.used_fresh = False
+
+    def add(self, identifier: str, owner: str) -> str:
+        found = self.ids.add(identifier, owner)
+        self.added.append((identifier, owner))
+        return found
+
+    def fresh(self, parent: str, kind: str) -> str:
+        self.used_fresh = True
+        return self.ids.fresh(parent, kind)
+
+
+def _replay(ids: DocumentIds, pairs: tuple[tuple[str, str], ...]) -> None:
+    """Add a cached entry's ids: the fast path when none is taken, else one by one (the same
+    error, naming the first owner, as a cold build)."""
+    names = [identifier for identifier, _ in pairs]
+    if ids.owner.keys().isdisjoint(names) and len(set(names)) == len(names):
+        ids.owner.update(pairs)
+        ids.pool.update(names)
+        return
+    for identifier, owner in pairs:
+        ids.add(identifier, owner)
+
+
+@dataclass(frozen=True, slots=True)
+class WrittenDocument:
+    """A document in its parts: ``prefix`` + entry texts + entry tails + ``suffix`` (each part
+    a block of lines), with the content key of each entry's fragment (None: not cached)."""
+
+    prefix: str
+    fragments: tuple[EntryFragment, ...]
+    suffix: str
+
+    def data(self) -> bytes:
+        parts = [self.prefix]
+        parts += [fragment.text for fragment in self.fragments]
+        parts += [fragment.tail for fragment in self.fragments if fragment.tail is not None]
+        if self.suffix:
+            parts.append(self.suffix)
+        return ("\n".join(parts) + "\n").encode("utf-8")
+
+
+#: Writes one entry: (entry, main writer, tail writer, ids) -> None; raises on bad text.
+EntryWriter = Callable[[Entry, XmlWriter, XmlWriter, Any], None]
+
+
+def write_entries(
+    out: XmlWriter,
+    items: Sequence[EntryItem],
+    ids: DocumentIds,
+    write_one: EntryWriter,
+    text_error: Callable[[Entry], Exception],
+    *,
+    cache: FragmentCache | None = None,
+    kind: str = "",
+) -> list[EntryFragment]:
+    """Write ``items`` in id order at the current depth of ``out``; returns their fragments.
+
+    The caller writes the tails (``fragment.tail``) after closing nothing: they are returned,
+    not appended, so that LMF can put them after all entries.
+    """
+    ordered = sorted(items, key=lambda item: item.id)  # stable: same order as a cold build
+    keys = [item.key for item in ordered if item.key is not None]
+    found = cache.get_many(kind, keys) if cache is not None and keys else {}
+    fresh: dict[str, bytes] = {}
+    fragments = []
+    for item in ordered:
+        cached = found.get(item.key) if item.key is not None else None
+        fragment = None
+        if cached is not None:
+            try:
+                fragment = EntryFragment.from_bytes(cached)
+            except (ValueError, KeyError, TypeError):
+                fragment = None  # unreadable: written afresh below
+        if fragment is not None:
+            _replay(ids, fragment.ids)
+        else:
+            entry = item.entry()
+            recording = RecordingIds(ids)
+            main, tail = XmlWriter(), XmlWriter()
+            main.depth = tail.depth = out.depth
+            write_one(entry, main, tail, recording)
+            text, tail_text = main.text()[:-1], tail.text()[:-1] if tail.parts else None
+            if forbidden_character(text) or (tail_text and forbidden_character(tail_text)):
+                raise text_error(entry)
+            fragment = EntryFragment(text, tail_text, tuple(recording.added))
+            if item.key is not None and not recording.used_fresh:
+                fresh[item.key] = fragment.to_bytes()
+        fragments.append(fragment)
+    if cache is not None and fresh:
+        cache.put_many(kind, fresh)
+    return fragments
