@@ -19,7 +19,6 @@ reports:
 
 from __future__ import annotations
 
-import json
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from typing import Any, Protocol
@@ -44,24 +43,29 @@ class EntryFragment:
     """The text one entry contributes to a document.
 
     ``text``: the entry's lines (joined by newlines); ``tail``: lines it contributes after all
-    entries (LMF frames), None when it has none; ``ids``: the (id, owner) pairs it wrote.
+    entries (LMF frames), None when it has none; ``ids``: the (id, owner) pairs it wrote, in
+    order; ``key``: the content key it is cached under (None: written afresh, not cached).
     """
 
     text: str
     tail: str | None
     ids: tuple[tuple[str, str], ...]
+    key: str | None = None
 
     def to_bytes(self) -> bytes:
-        return json.dumps(
-            {"text": self.text, "tail": self.tail, "ids": self.ids},
-            ensure_ascii=False,
-            separators=(",", ":"),
-        ).encode("utf-8")
+        # Ids are NCNames, owners one line of text, and XML text holds no NUL: a tab ends an
+        # id, a newline an owner, NUL each of the three parts.
+        ids = "\n".join(f"{name}\t{owner}" for name, owner in self.ids)
+        tail = "\x01" if self.tail is None else self.tail
+        return "\x00".join((ids, tail, self.text)).encode("utf-8")
 
     @classmethod
-    def from_bytes(cls, data: bytes) -> EntryFragment:
-        value = json.loads(data)
-        return cls(value["text"], value["tail"], tuple((i, o) for i, o in value["ids"]))
+    def from_bytes(cls, data: bytes, key: str | None = None) -> EntryFragment:
+        ids, tail, text = data.decode("utf-8").split("\x00")
+        pairs = tuple(tuple(line.split("\t")) for line in ids.split("\n")) if ids else ()
+        if any(len(pair) != 2 for pair in pairs):
+            raise ValueError("damaged id list")
+        return cls(text, None if tail == "\x01" else tail, pairs, key)  # type: ignore[arg-type]
 
 
 class EntryItem(Protocol):
@@ -124,16 +128,14 @@ class RecordingIds:
         return self.ids.fresh(parent, kind)
 
 
-def _replay(ids: DocumentIds, pairs: tuple[tuple[str, str], ...]) -> None:
-    """Add a cached entry's ids: the fast path when none is taken, else one by one (the same
-    error, naming the first owner, as a cold build)."""
-    names = [identifier for identifier, _ in pairs]
-    if ids.owner.keys().isdisjoint(names) and len(set(names)) == len(names):
-        ids.owner.update(pairs)
-        ids.pool.update(names)
-        return
-    for identifier, owner in pairs:
-        ids.add(identifier, owner)
+def _fits(ids: DocumentIds, pairs: tuple[tuple[str, str], ...]) -> bool:
+    """Add a cached entry's ids when none is taken yet; False (nothing added) otherwise."""
+    owners = dict(pairs)
+    if len(owners) == len(pairs) and ids.owner.keys().isdisjoint(owners):
+        ids.owner.update(owners)
+        ids.pool.update(owners)
+        return True
+    return False
 
 
 @dataclass(frozen=True, slots=True)
@@ -183,12 +185,12 @@ def write_entries(
         fragment = None
         if cached is not None:
             try:
-                fragment = EntryFragment.from_bytes(cached)
-            except (ValueError, KeyError, TypeError):
+                fragment = EntryFragment.from_bytes(cached, item.key)
+            except ValueError:
                 fragment = None  # unreadable: written afresh below
-        if fragment is not None:
-            _replay(ids, fragment.ids)
-        else:
+        # A cached entry whose ids clash with ids already written is written afresh: the
+        # writer then raises the same error, naming the same owners, as a cold build.
+        if fragment is None or not _fits(ids, fragment.ids):
             entry = item.entry()
             recording = RecordingIds(ids)
             main, tail = XmlWriter(), XmlWriter()
@@ -197,8 +199,11 @@ def write_entries(
             text, tail_text = main.text()[:-1], tail.text()[:-1] if tail.parts else None
             if forbidden_character(text) or (tail_text and forbidden_character(tail_text)):
                 raise text_error(entry)
-            fragment = EntryFragment(text, tail_text, tuple(recording.added))
-            if item.key is not None and not recording.used_fresh:
+            cacheable = item.key is not None and not recording.used_fresh
+            fragment = EntryFragment(
+                text, tail_text, tuple(recording.added), item.key if cacheable else None
+            )
+            if cacheable and item.key is not None:
                 fresh[item.key] = fragment.to_bytes()
         fragments.append(fragment)
     if cache is not None and fresh:

@@ -702,6 +702,7 @@ def validate_file(
 CHUNK_KIND = "valid-fragment"
 SKELETON_KIND = "valid-skeleton"
 DOCUMENT_KIND = "valid-document"
+VALID = b"valid"  # the only verdict kept: problems are found afresh every time
 _ROOT_TAG = re.compile(r"<(?:TEI|LexicalResource)\b[^>]*>")
 
 
@@ -774,7 +775,17 @@ def _fragment_summary(
     if fmt == "lmf":
         references = {r for r in references if not re.fullmatch(r"slot-?[0-9]+", r)}
     outside = sorted(references - set(ids))
-    return json.dumps({"ids": ids, "outside": outside}, separators=(",", ":")).encode()
+    return _joined(ids, outside)
+
+
+def _joined(ids: Iterable[str], outside: Iterable[str]) -> bytes:
+    # Ids and pointers hold no newline (NCNames; pointers are split on white space).
+    return ("\n".join(ids) + "\x00" + "\n".join(outside)).encode("utf-8")
+
+
+def _split(record: bytes) -> tuple[list[str], list[str]]:
+    ids, outside = record.decode("utf-8").split("\x00")
+    return (ids.split("\n") if ids else []), (outside.split("\n") if outside else [])
 
 
 def validate_written(
@@ -819,13 +830,17 @@ def validate_written(
     schemas = load_schemas(schemas_dir)
     sums = _schema_sums(schemas_dir)
     whole_key = document_key(fingerprint, fmt, sums, data)
-    if cache.get(DOCUMENT_KIND, whole_key) is not None:
+    if cache.get(DOCUMENT_KIND, whole_key) == VALID:
         return []
     root_tag = _ROOT_TAG.search(document.prefix)
     context = root_tag.group(0) if root_tag else document.prefix
     fragments = list(document.fragments)
+    # A cached fragment's text is fixed by its content key; others are keyed by their text.
     keys = [
-        content_key(fingerprint, CHUNK_KIND, fmt, sums, context, f.text, f.tail or "")
+        content_key(fingerprint, CHUNK_KIND, fmt, sums, context, "key", f.key)
+        if f.key is not None
+        else content_key(fingerprint, CHUNK_KIND, fmt, sums, context, "text", f.text,
+                         f.tail or "")
         for f in fragments
     ]
     skeleton_key = content_key(fingerprint, SKELETON_KIND, fmt, sums, document.prefix,
@@ -861,27 +876,27 @@ def validate_written(
         except etree.XMLSyntaxError:
             return whole()
         ids, references = _ids_and_references(bare, fmt, idref_names)
-        skeleton = json.dumps({"ids": ids, "refs": sorted(references)}).encode()
+        skeleton = _joined(ids, sorted(references))
     try:
-        header = json.loads(skeleton)
-        header_ids = set(header["ids"])
-        if len(header_ids) != len(header["ids"]) or not header_ids.issuperset(header["refs"]):
+        listed, pointers = _split(skeleton)
+        header_ids = set(listed)
+        if len(header_ids) != len(listed) or not header_ids.issuperset(pointers):
             return whole()
         seen = set(header_ids)
         count = len(seen)
         for key in keys:
-            summary = json.loads(found[key])
-            seen.update(summary["ids"])
-            count += len(summary["ids"])
-            if not header_ids.issuperset(summary["outside"]):
+            chunk_ids, outside = _split(found[key])
+            seen.update(chunk_ids)
+            count += len(chunk_ids)
+            if not header_ids.issuperset(outside):
                 return whole()  # a pointer into another entry or nowhere
-    except (ValueError, KeyError, TypeError):
+    except ValueError:
         return whole()
     if len(seen) != count:
         return whole()  # an id borne twice
     cache.put_many(CHUNK_KIND, fresh)
     cache.put(SKELETON_KIND, skeleton_key, skeleton)
-    cache.put(DOCUMENT_KIND, whole_key, b"valid")
+    cache.put(DOCUMENT_KIND, whole_key, VALID)
     return []
 
 
@@ -906,12 +921,12 @@ def validate_cached(
         fmt = None
     usable = fmt is not None and not any(extra.format == fmt for extra in extras)
     key = document_key(fingerprint, fmt or "", _schema_sums(schemas_dir), data) if usable else ""
-    if usable and cache.get(DOCUMENT_KIND, key) is not None:
+    if usable and cache.get(DOCUMENT_KIND, key) == VALID:
         return []
     findings = validate_bytes(
         data, schemas_dir=schemas_dir, extra_schemas=extras, name=name,
         source_map=source_map, base_dir=base_dir,
     )
     if usable and not findings:
-        cache.put(DOCUMENT_KIND, key, b"valid")
+        cache.put(DOCUMENT_KIND, key, VALID)
     return findings

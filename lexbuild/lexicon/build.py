@@ -94,7 +94,8 @@ def _record(item: SourceEntry) -> bytes:
     return json.dumps(
         {
             "id": item.id,
-            "ids": [[identifier, list(path)] for identifier, path in item.ids],
+            "ids": [identifier for identifier, _ in item.ids],
+            "paths": [list(path) for _, path in item.ids],
             "problems": {
                 code: [
                     [list(p.path), p.message, None if p.first is None else list(p.first)]
@@ -112,7 +113,7 @@ def _from_record(file: Path, data: bytes, record: bytes, model_key: str) -> Sour
     try:
         value = json.loads(record)
         entry_id = value["id"]
-        ids = [(identifier, _path(path)) for identifier, path in value["ids"]]
+        ids = list(zip(value["ids"], map(tuple, value["paths"]), strict=True))
         problems = {
             code: [
                 Problem(entry_id, _path(path), message, None if first is None else _path(first))
@@ -139,6 +140,7 @@ class Build:
     fingerprint: str
     load_errors: list[SourceError] = field(default_factory=list)
     _lexicon: Lexicon | None = None
+    _all_ids: set[str] | None = None
 
     # ---------------------------------------------------------------- the typed model
 
@@ -174,10 +176,12 @@ class Build:
 
     def all_ids(self) -> set[str]:
         """``Lexicon.all_ids`` from the ids each entry holds."""
-        found = set(self.meta.retired_ids)
-        for item in self.items:
-            found.update(identifier for identifier, _ in item.ids)
-        return found
+        if self._all_ids is None:
+            found = set(self.meta.retired_ids)
+            for item in self.items:
+                found.update(identifier for identifier, _ in item.ids)
+            self._all_ids = found
+        return self._all_ids
 
     # ---------------------------------------------------------------- check
 
@@ -319,6 +323,7 @@ def open_build(
     )
     items: list[SourceEntry] = []
     fresh: dict[str, bytes] = {}
+    models: dict[str, bytes] = {}
     for index, (path, data, digest, key) in enumerate(
         zip(files, contents, digests, keys, strict=True)
     ):
@@ -338,9 +343,11 @@ def open_build(
             )
             item.digest = digest
             fresh[key] = _record(item)
+            models[model_key] = entry.model_dump_json().encode("utf-8")
         else:
             source_map.add_entry_ids(item.id, str(path), item.ids)
         items.append(item)
     if cache is not None and fresh:
         cache.put_many(ENTRY_KIND, fresh)
+        cache.put_many(MODEL_KIND, models)
     return Build(root, meta, items, source_map, cache, fingerprint, list(problems or []))

@@ -85,12 +85,12 @@ def code_fingerprint() -> str:
 
 def content_key(*parts: bytes | str) -> str:
     """sha256 over length-prefixed parts: ('ab', 'c') and ('a', 'bc') give different keys."""
-    digest = hashlib.sha256()
+    pieces = []
     for part in parts:
         data = part.encode("utf-8") if isinstance(part, str) else part
-        digest.update(len(data).to_bytes(8, "big"))
-        digest.update(data)
-    return digest.hexdigest()
+        pieces.append(len(data).to_bytes(8, "big"))
+        pieces.append(data)
+    return hashlib.sha256(b"".join(pieces)).hexdigest()
 
 
 class BuildCache:
