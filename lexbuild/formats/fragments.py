@@ -28,6 +28,7 @@ from lexbuild.lexicon.ids import DocumentIds
 from lexbuild.lexicon.model import Entry
 
 __all__ = [
+    "CachedFragmentsConflict",
     "EntryFragment",
     "EntryItem",
     "FragmentCache",
@@ -43,29 +44,25 @@ class EntryFragment:
     """The text one entry contributes to a document.
 
     ``text``: the entry's lines (joined by newlines); ``tail``: lines it contributes after all
-    entries (LMF frames), None when it has none; ``ids``: the (id, owner) pairs it wrote, in
-    order; ``key``: the content key it is cached under (None: written afresh, not cached).
+    entries (LMF frames), None when it has none; ``ids``: the ids it wrote, in order;
+    ``key``: the content key it is cached under (None: written afresh, not cached).
     """
 
     text: str
     tail: str | None
-    ids: tuple[tuple[str, str], ...]
+    ids: tuple[str, ...]
     key: str | None = None
 
     def to_bytes(self) -> bytes:
-        # Ids are NCNames, owners one line of text, and XML text holds no NUL: a tab ends an
-        # id, a newline an owner, NUL each of the three parts.
-        ids = "\n".join(f"{name}\t{owner}" for name, owner in self.ids)
+        # Ids are NCNames and XML text holds no NUL: a newline ends an id, NUL each part.
         tail = "\x01" if self.tail is None else self.tail
-        return "\x00".join((ids, tail, self.text)).encode("utf-8")
+        return "\x00".join(("\n".join(self.ids), tail, self.text)).encode("utf-8")
 
     @classmethod
     def from_bytes(cls, data: bytes, key: str | None = None) -> EntryFragment:
         ids, tail, text = data.decode("utf-8").split("\x00")
-        pairs = tuple(tuple(line.split("\t")) for line in ids.split("\n")) if ids else ()
-        if any(len(pair) != 2 for pair in pairs):
-            raise ValueError("damaged id list")
-        return cls(text, None if tail == "\x01" else tail, pairs, key)  # type: ignore[arg-type]
+        names = tuple(ids.split("\n")) if ids else ()
+        return cls(text, None if tail == "\x01" else tail, names, key)
 
 
 class EntryItem(Protocol):
@@ -128,12 +125,21 @@ class RecordingIds:
         return self.ids.fresh(parent, kind)
 
 
-def _fits(ids: DocumentIds, pairs: tuple[tuple[str, str], ...]) -> bool:
+#: The owner noted for the ids of a cached entry. It never reaches a message: any error while
+#: writing a document that reused fragments sends the document to a cold write, which raises
+#: the error with every owner named (``CachedFragmentsConflict``).
+_CACHED_OWNER = "an entry reused from the cache"
+
+
+class CachedFragmentsConflict(Exception):
+    """Raised inside ``write_entries`` when a document reusing fragments meets an error."""
+
+
+def _fits(ids: DocumentIds, names: tuple[str, ...]) -> bool:
     """Add a cached entry's ids when none is taken yet; False (nothing added) otherwise."""
-    owners = dict(pairs)
-    if len(owners) == len(pairs) and ids.owner.keys().isdisjoint(owners):
-        ids.owner.update(owners)
-        ids.pool.update(owners)
+    if ids.owner.keys().isdisjoint(names) and len(set(names)) == len(names):
+        ids.owner.update(dict.fromkeys(names, _CACHED_OWNER))
+        ids.pool.update(names)
         return True
     return False
 
@@ -170,16 +176,18 @@ def write_entries(
     cache: FragmentCache | None = None,
     kind: str = "",
 ) -> list[EntryFragment]:
-    """Write ``items`` in id order at the current depth of ``out``; returns their fragments.
+    """Write ``items`` in id order at the current depth of ``out``; returns their fragments
+    (with their tails: LMF puts them after all entries).
 
-    The caller writes the tails (``fragment.tail``) after closing nothing: they are returned,
-    not appended, so that LMF can put them after all entries.
+    Raises ``CachedFragmentsConflict`` when an error meets a document that reused cached
+    fragments; the caller then writes the document cold, which raises the exact error.
     """
     ordered = sorted(items, key=lambda item: item.id)  # stable: same order as a cold build
     keys = [item.key for item in ordered if item.key is not None]
     found = cache.get_many(kind, keys) if cache is not None and keys else {}
     fresh: dict[str, bytes] = {}
     fragments = []
+    reused = False
     for item in ordered:
         cached = found.get(item.key) if item.key is not None else None
         fragment = None
@@ -188,20 +196,28 @@ def write_entries(
                 fragment = EntryFragment.from_bytes(cached, item.key)
             except ValueError:
                 fragment = None  # unreadable: written afresh below
-        # A cached entry whose ids clash with ids already written is written afresh: the
-        # writer then raises the same error, naming the same owners, as a cold build.
-        if fragment is None or not _fits(ids, fragment.ids):
+        if fragment is not None and _fits(ids, fragment.ids):
+            reused = True
+        else:
+            if fragment is not None:
+                raise CachedFragmentsConflict  # an id clash: the cold write reports it
             entry = item.entry()
             recording = RecordingIds(ids)
             main, tail = XmlWriter(), XmlWriter()
             main.depth = tail.depth = out.depth
-            write_one(entry, main, tail, recording)
-            text, tail_text = main.text()[:-1], tail.text()[:-1] if tail.parts else None
-            if forbidden_character(text) or (tail_text and forbidden_character(tail_text)):
-                raise text_error(entry)
+            try:
+                write_one(entry, main, tail, recording)
+                text, tail_text = main.text()[:-1], tail.text()[:-1] if tail.parts else None
+                if forbidden_character(text) or (tail_text and forbidden_character(tail_text)):
+                    raise text_error(entry)
+            except Exception:
+                if reused:
+                    raise CachedFragmentsConflict from None
+                raise
             cacheable = item.key is not None and not recording.used_fresh
             fragment = EntryFragment(
-                text, tail_text, tuple(recording.added), item.key if cacheable else None
+                text, tail_text, tuple(name for name, _ in recording.added),
+                item.key if cacheable else None,
             )
             if cacheable and item.key is not None:
                 fresh[item.key] = fragment.to_bytes()

@@ -32,6 +32,7 @@ from typing import Any
 
 from lexbuild.errors import ExportError, LexbuildError
 from lexbuild.formats.fragments import (
+    CachedFragmentsConflict,
     EntryItem,
     FragmentCache,
     WrittenDocument,
@@ -254,15 +255,18 @@ def write_lmf(
     def write_one(entry: Entry, main: XmlWriter, frames: XmlWriter, entry_ids: Any) -> None:
         _entry(main, frames, entry, meta.language, entry_ids)
 
-    fragments = write_entries(
-        out,
-        items,
-        ids,
-        write_one,
-        lambda entry: _text_error(entry, f"entry {entry.id}"),
-        cache=cache,
-        kind=FRAGMENT_KIND,
-    )
+    try:
+        fragments = write_entries(
+            out,
+            items,
+            ids,
+            write_one,
+            lambda entry: _text_error(entry, f"entry {entry.id}"),
+            cache=cache,
+            kind=FRAGMENT_KIND,
+        )
+    except CachedFragmentsConflict:  # the cold write raises the error a cold build raises
+        return write_lmf(meta, items, pool=pool)
     closing = XmlWriter()
     closing.depth = out.depth
     closing.close("Lexicon")

@@ -43,6 +43,7 @@ from lxml import etree
 
 from lexbuild.errors import ExportError, LexbuildError, SourceError, SourceLocation
 from lexbuild.formats.fragments import (
+    CachedFragmentsConflict,
     EntryItem,
     FragmentCache,
     WrittenDocument,
@@ -496,15 +497,18 @@ def write_tei(
     def write_one(entry: Entry, main: XmlWriter, tail: XmlWriter, entry_ids: Any) -> None:
         _entry(main, entry, meta.language, corpora, entry_ids)
 
-    fragments = write_entries(
-        out,
-        items,
-        ids,
-        write_one,
-        lambda entry: _text_error(entry, f"entry {entry.id}"),
-        cache=cache,
-        kind=FRAGMENT_KIND,
-    )
+    try:
+        fragments = write_entries(
+            out,
+            items,
+            ids,
+            write_one,
+            lambda entry: _text_error(entry, f"entry {entry.id}"),
+            cache=cache,
+            kind=FRAGMENT_KIND,
+        )
+    except CachedFragmentsConflict:  # the cold write raises the error a cold build raises
+        return write_tei(meta, items, changes=changes, pool=pool)
     closing = XmlWriter()
     closing.depth = out.depth
     closing.close("body")
