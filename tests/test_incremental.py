@@ -383,3 +383,30 @@ def test_check_cli_same_with_and_without_cache(tmp_path: Path) -> None:
     assert cold.stdout == first.stdout == second.stdout
     codes = {finding["code"] for finding in json.loads(cold.stdout)["findings"]}
     assert {"E104", "E202"} <= codes
+
+
+def test_locked_cache_is_left_alone(
+    tmp_path: Path, schemas_dir: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """Another process holding the write lock past the timeout: this run builds without the
+    cache (same output) and neither waits forever nor removes the other run's file."""
+    from lexbuild.lexicon import build_cache
+
+    folder = _copy_sample(tmp_path / "sources")
+    cache_dir = tmp_path / "cache"
+    with BuildCache(cache_dir) as cache:
+        expected = cached_outcome(folder, schemas_dir, cache)
+    monkeypatch.setattr(build_cache, "BUSY_SECONDS", 0.2)
+    holder = sqlite3.connect(cache_dir / "results.sqlite", isolation_level=None)
+    holder.execute("BEGIN EXCLUSIVE")
+    try:
+        apply_edit(folder, ("gloss", "donner", "changé"))
+        with BuildCache(cache_dir) as cache:
+            got = cached_outcome(folder, schemas_dir, cache)
+    finally:
+        holder.execute("ROLLBACK")
+        holder.close()
+    assert got == cold_outcome(folder, schemas_dir) != expected
+    with sqlite3.connect(cache_dir / "results.sqlite") as connection:
+        (count,) = connection.execute("SELECT count(*) FROM results").fetchone()
+    assert count > 0

@@ -5,8 +5,9 @@ on (see ``content_key``), so a record is never stale, only unused. They live in 
 ``<cache>/build/results.sqlite``, where ``<cache>`` follows the vector cache's rule:
 ``$LEXBUILD_CACHE``, else ``$XDG_CACHE_HOME/lexbuild``, else ``~/.cache/lexbuild``.
 
-* Concurrent runs: SQLite's locks serialise writers; a writer that waits longer than
-  ``BUSY_SECONDS`` gives up storing (a cache write is never worth failing a build for).
+* Concurrent runs: SQLite's locks serialise writers; a run that waits longer than
+  ``BUSY_SECONDS`` for a lock reads nothing or stores nothing (a cache is never worth failing
+  a build for), and leaves the file alone.
 * Damage: each record carries a CRC-32 of its bytes, checked on every read; a record that does
   not match, or a file SQLite cannot read (truncated, overwritten), is a miss. A damaged file is
   replaced by an empty one. Nothing read from the cache is trusted beyond its checksum: callers
@@ -112,6 +113,9 @@ class BuildCache:
         try:
             self.folder.mkdir(parents=True, exist_ok=True)
             self._connection = self._open()
+        except sqlite3.OperationalError as error:  # locked past the timeout, read-only, ...
+            _LOG.warning("build cache %s not used (%s)", self.path, error)
+            self._broken = True
         except sqlite3.DatabaseError as error:
             _LOG.warning("build cache %s unreadable (%s): starting an empty one", self.path, error)
             self._discard()
@@ -179,6 +183,9 @@ class BuildCache:
                         data = bytes(value)
                         if zlib.crc32(data) == crc:
                             found[key] = data
+            except sqlite3.OperationalError as error:  # busy past the timeout: all misses
+                _LOG.warning("build cache %s not read (%s)", self.path, error)
+                found = {}
             except sqlite3.DatabaseError as error:
                 _LOG.warning("build cache %s unreadable (%s): starting an empty one", self.path,
                              error)
