@@ -410,3 +410,18 @@ def test_locked_cache_is_left_alone(
     with sqlite3.connect(cache_dir / "results.sqlite") as connection:
         (count,) = connection.execute("SELECT count(*) FROM results").fetchone()
     assert count > 0
+
+
+def test_cached_entries_are_located_like_loaded_ones(tmp_path: Path) -> None:
+    """Validation findings name the YAML line of an id: a cached entry's ids (paths read
+    lazily) are found at the same file, line and column as after a plain load."""
+    folder = _copy_sample(tmp_path / "sources")
+    loaded = sources.load_lexicon(folder)
+    with BuildCache(tmp_path / "cache") as cache:
+        open_build(folder, cache=cache)
+        build = open_build(folder, cache=cache)
+    assert build.items[0].parsed is None  # every entry came from the cache
+    identifiers = [name for entry in loaded.lexicon.entries for name, _ in
+                   sources.id_paths(entry)]
+    for identifier in identifiers[::7]:
+        assert build.source_map.locate_id(identifier) == loaded.source_map.locate_id(identifier)

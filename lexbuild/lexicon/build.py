@@ -27,7 +27,7 @@ from __future__ import annotations
 
 import hashlib
 import json
-from collections.abc import Iterable, Sequence
+from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -73,12 +73,25 @@ class SourceEntry:
     file: Path
     data: bytes
     id: str
-    ids: list[tuple[str, FieldPath]]
+    names: list[str]  # every id the entry holds, in ``id_paths`` order
     problems: dict[str, list[Problem]]
     model_key: str
     parsed: Entry | None = None
     digest: str = ""  # sha256 of ``data``
     key: str | None = None  # the fragment key of the document being written
+    paths_text: str | None = None  # the ids' paths as JSON, until asked for
+    _ids: list[tuple[str, FieldPath]] | None = None
+
+    @property
+    def ids(self) -> list[tuple[str, FieldPath]]:
+        """Every id the entry holds with its field path (``sources.id_paths``)."""
+        if self._ids is None:
+            if self.paths_text is not None:
+                paths = [tuple(path) for path in json.loads(self.paths_text)]
+                self._ids = list(zip(self.names, paths, strict=True))
+            else:
+                self._ids = list(id_paths(self.entry()))
+        return self._ids
 
     def entry(self) -> Entry:
         if self.parsed is None:
@@ -94,8 +107,9 @@ def _record(item: SourceEntry) -> bytes:
     return json.dumps(
         {
             "id": item.id,
-            "ids": [identifier for identifier, _ in item.ids],
-            "paths": [list(path) for _, path in item.ids],
+            "ids": item.names,
+            # decoded only when a message or a whole-document rule needs them
+            "paths": json.dumps([list(path) for _, path in item.ids], ensure_ascii=False),
             "problems": {
                 code: [
                     [list(p.path), p.message, None if p.first is None else list(p.first)]
@@ -113,7 +127,10 @@ def _from_record(file: Path, data: bytes, record: bytes, model_key: str) -> Sour
     try:
         value = json.loads(record)
         entry_id = value["id"]
-        ids = list(zip(value["ids"], map(tuple, value["paths"]), strict=True))
+        names = value["ids"]
+        paths = value["paths"]
+        if not isinstance(names, list) or not isinstance(paths, str):
+            return None
         problems = {
             code: [
                 Problem(entry_id, _path(path), message, None if first is None else _path(first))
@@ -125,7 +142,7 @@ def _from_record(file: Path, data: bytes, record: bytes, model_key: str) -> Sour
         return None  # unreadable record: a miss
     if not isinstance(entry_id, str) or entry_id != file.stem:
         return None
-    return SourceEntry(file, data, entry_id, ids, problems, model_key)
+    return SourceEntry(file, data, entry_id, names, problems, model_key, paths_text=paths)
 
 
 @dataclass
@@ -179,7 +196,7 @@ class Build:
         if self._all_ids is None:
             found = set(self.meta.retired_ids)
             for item in self.items:
-                found.update(identifier for identifier, _ in item.ids)
+                found.update(item.names)
             self._all_ids = found
         return self._all_ids
 
@@ -190,17 +207,23 @@ class Build:
     ) -> list[Finding]:
         """``checks.check_lexicon`` over this build: the same findings, in the same order."""
         chosen = choose_rules(select, ignore)
-        summaries = [(item.id, item.ids) for item in self.items]
         found: list[tuple[Any, list[Problem]]] = []
         for rule in chosen:
             if rule.find_ids is not None:
-                problems = list(rule.find_ids(self.meta, summaries))
+                problems = []
+                if self._ids_repeat():  # such rules find nothing where no id repeats
+                    summaries = [(item.id, item.ids) for item in self.items]
+                    problems = list(rule.find_ids(self.meta, summaries))
             else:
                 problems = meta_problems(self.meta, rule)
                 for item in self.items:
                     problems += item.problems.get(rule.code, ())
             found.append((rule, problems))
         return located_findings(self.source_map, found)
+
+    def _ids_repeat(self) -> bool:
+        total = sum(len(item.names) for item in self.items)
+        return len(set().union(*(item.names for item in self.items))) != total
 
     # ---------------------------------------------------------------- export
 
@@ -278,6 +301,10 @@ class Build:
         )
 
 
+def _paths_of(item: SourceEntry) -> Callable[[], list[tuple[str, FieldPath]]]:
+    return lambda: item.ids
+
+
 def open_build(
     folder: str | Path,
     *,
@@ -337,15 +364,16 @@ def open_build(
                     raise
                 problems.append(error)
                 continue
+            pairs = list(id_paths(entry))
             item = SourceEntry(
-                path, data, entry.id, list(id_paths(entry)), entry_problems(meta, entry),
-                model_key, entry,
+                path, data, entry.id, [name for name, _ in pairs], entry_problems(meta, entry),
+                model_key, entry, _ids=pairs,
             )
             item.digest = digest
             fresh[key] = _record(item)
             models[model_key] = entry.model_dump_json().encode("utf-8")
         else:
-            source_map.add_entry_ids(item.id, str(path), item.ids)
+            source_map.add_entry_ids(item.id, str(path), item.names, _paths_of(item))
         items.append(item)
     if cache is not None and fresh:
         cache.put_many(ENTRY_KIND, fresh)

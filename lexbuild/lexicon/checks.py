@@ -69,7 +69,8 @@ class Rule:
     only on that entry and the metadata, and what they find about the metadata (entry None)
     comes first, so an incremental build can run them entry by entry and keep the results.
     A rule that compares entries (``find_ids`` set) runs over the whole document every time,
-    on the ids of each entry (``IdSummary``), which a build keeps for every entry."""
+    on the ids of each entry (``IdSummary``), which a build keeps for every entry; it finds
+    problems only among ids that more than one place holds (a build skips it otherwise)."""
 
     code: str
     name: str

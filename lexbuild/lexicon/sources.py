@@ -90,6 +90,9 @@ class SourceMap:
     _id_paths: dict[str, tuple[str, FieldPath]] = field(default_factory=dict)
     meta_file: str = META_FILE
     _meta: dict[FieldPath, tuple[int, int]] = field(default_factory=dict)
+    _lazy_paths: dict[str, typing.Callable[[], typing.Iterable[tuple[str, FieldPath]]]] = field(
+        default_factory=dict
+    )
 
     def add_entry(self, entry_id: str, file: str, node: Any) -> None:
         """Record an entry file already parsed with positions (the round-trip parser)."""
@@ -109,12 +112,18 @@ class SourceMap:
             self._id_paths.setdefault(identifier, (entry.id, path))
 
     def add_entry_ids(
-        self, entry_id: str, file: str, paths: typing.Iterable[tuple[str, FieldPath]]
+        self,
+        entry_id: str,
+        file: str,
+        names: typing.Iterable[str],
+        paths: typing.Callable[[], typing.Iterable[tuple[str, FieldPath]]],
     ) -> None:
-        """Record an entry known by its ids alone (an incremental build's cached entry)."""
+        """Record an entry known by its ids alone (an incremental build's cached entry);
+        ``paths`` gives each id's path, asked for only when a message needs one."""
         self._files[entry_id] = file
-        for identifier, path in paths:
-            self._id_paths.setdefault(identifier, (entry_id, path))
+        self._lazy_paths[entry_id] = paths
+        for identifier in names:
+            self._id_paths.setdefault(identifier, (entry_id, ()))
 
     def add_meta(self, file: str, node: Any) -> None:
         self.meta_file = file
@@ -148,7 +157,13 @@ class SourceMap:
     def locate_id(self, identifier: str) -> SourceLocation | None:
         """Location of the ``id`` value of an entry, sense, frame or example."""
         found = self._id_paths.get(identifier)
-        return None if found is None else self.locate(*found)
+        if found is None:
+            return None
+        entry_id, path = found
+        lazy = self._lazy_paths.get(entry_id)
+        if lazy is not None:
+            path = next((p for name, p in lazy() if name == identifier), path)
+        return self.locate(entry_id, path)
 
     def meta_location(self, path: FieldPath = ()) -> SourceLocation:
         for length in range(len(path), -1, -1):
