@@ -10,20 +10,21 @@ a fresh process, as a user's command does.
 
     python benchmarks/bench_lexicon.py [--entries 10000] [--schemas DIR]
 
-Measured (10,000 entries; 2 cores shared with other jobs, load average 8.4 at the start, 7.3 at
-the end; seconds):
+Measured (10,000 entries; 2 cores shared with other jobs, load average 6.0 at the start, 1.7 at
+the end; each chain in a fresh process; seconds):
 
     chain (load, check, TEI, LMF, validate)     seconds  x cold
-    cold, no cache                                81.00   1.000
-    cold, filling the cache                      106.64   1.317
-    rebuild after one edit                         6.69   0.083
+    cold, no cache                                51.30   1.000
+    cold, filling the cache                       56.30   1.097
+    rebuild after one edit                         2.38   0.046
 
-The rebuild: load 3.37, check 0.10, TEI 1.13, validate TEI 0.43, LMF 1.21, validate LMF 0.45;
-its TEI and LMF byte-identical to a cold write. An earlier run under load 12 to 19: cold 306.6,
-filling 216.3, rebuild 7.42 (0.024x). Targets: rebuild <= 0.1x cold is met, <= 2 s is not on
-this shared machine (reading the 10,000 entry files and their cache records dominates); cold
-<= 45 s is not met (64.5 s on the quiet machine before incremental builds: load 22.3, check 4.0,
-TEI 3.5, LMF 3.5, validation 31.3).
+Cold: load 17.25, check 2.58, TEI 3.43, LMF 3.28, validation 24.77. Rebuild: load 0.57, check
+0.03, TEI 0.68, validate TEI 0.20, LMF 0.69, validate LMF 0.20; its TEI and LMF byte-identical
+to a cold build of the edited sources. Targets: rebuild <= 0.1x cold met; <= 2 s not met (2.38:
+reading 176 MB of cached fragments and joining the two documents dominate); cold <= 45 s not
+met (51.3; the issue measured 74 s, an earlier quiet run of this script 64.5 s). Runs on the
+same machine under load average 8 to 19 gave rebuild 0.083x and 0.024x cold (6.7 s and 7.4 s):
+compare ratios, not seconds.
 """
 
 from __future__ import annotations
