@@ -20,11 +20,11 @@ the end; each chain in a fresh process; seconds):
 
 Cold: load 17.25, check 2.58, TEI 3.43, LMF 3.28, validation 24.77. Rebuild: load 0.57, check
 0.03, TEI 0.68, validate TEI 0.20, LMF 0.69, validate LMF 0.20; its TEI and LMF byte-identical
-to a cold build of the edited sources. Targets: rebuild <= 0.1x cold met; <= 2 s not met (2.38:
-reading 176 MB of cached fragments and joining the two documents dominate); cold <= 45 s not
-met (51.3; the issue measured 74 s, an earlier quiet run of this script 64.5 s). Runs on the
-same machine under load average 8 to 19 gave rebuild 0.083x and 0.024x cold (6.7 s and 7.4 s):
-compare ratios, not seconds.
+to a cold build of the edited sources. Targets: rebuild <= 0.1x cold met; <= 2 s not met
+(2.38: the two exports, reading 176 MB of cached fragments and assembling the documents, take
+1.37); cold <= 45 s not met (51.3; the issue measured 74 s, an earlier quiet run 64.5 s).
+Runs on the same machine under load average 8 to 19 gave rebuild 0.083x and 0.024x cold (6.7 s
+and 7.4 s): compare ratios, not seconds.
 """
 
 from __future__ import annotations
