@@ -42,6 +42,20 @@ SHARED: Path | None = (
 )
 
 
+@pytest.fixture(autouse=True, scope="session")
+def _session_cache(tmp_path_factory: pytest.TempPathFactory) -> Generator[None, None, None]:
+    """Commands run by the tests keep build results and vectors in a folder of the test
+    session, not in the user's cache (unless $LEXBUILD_CACHE names one already)."""
+    if os.environ.get("LEXBUILD_CACHE"):
+        yield
+        return
+    os.environ["LEXBUILD_CACHE"] = str(tmp_path_factory.mktemp("lexbuild-cache"))
+    try:
+        yield
+    finally:
+        os.environ.pop("LEXBUILD_CACHE", None)
+
+
 @pytest.fixture(scope="session")
 def schemas_dir() -> Path:
     """A folder with the three published schemas, sha256 verified."""

@@ -3,9 +3,19 @@
 from __future__ import annotations
 
 import argparse
+import contextlib
+from collections.abc import Iterator
 from pathlib import Path
+from typing import Any
 
-__all__ = ["EXIT_FINDINGS", "EXIT_OK", "EXIT_USAGE", "add_schemas_option"]
+__all__ = [
+    "EXIT_FINDINGS",
+    "EXIT_OK",
+    "EXIT_USAGE",
+    "add_no_cache_option",
+    "add_schemas_option",
+    "build_cache",
+]
 
 EXIT_OK = 0  # clean
 EXIT_FINDINGS = 1  # check or validation findings
@@ -22,3 +32,26 @@ def add_schemas_option(parser: argparse.ArgumentParser) -> None:
         help="folder with the published schema files (default: $LEXBUILD_SCHEMAS, else the "
         "per-user cache filled by `lexbuild schemas fetch`)",
     )
+
+
+def add_no_cache_option(parser: argparse.ArgumentParser) -> None:
+    """``--no-cache``: neither read nor write the per-user cache of build results."""
+    parser.add_argument(
+        "--no-cache",
+        action="store_true",
+        help="build everything afresh, neither reading nor writing the cache of build results "
+        "($LEXBUILD_CACHE/build, else $XDG_CACHE_HOME/lexbuild/build, else "
+        "~/.cache/lexbuild/build)",
+    )
+
+
+@contextlib.contextmanager
+def build_cache(args: argparse.Namespace) -> Iterator[Any]:
+    """The per-user cache of build results, or None with ``--no-cache``; closed at the end."""
+    if getattr(args, "no_cache", False):
+        yield None
+        return
+    from lexbuild.lexicon.build_cache import BuildCache
+
+    with BuildCache() as cache:
+        yield cache

@@ -8,7 +8,13 @@ import sys
 from pathlib import Path
 from typing import Any
 
-from lexbuild.cli.common import EXIT_FINDINGS, EXIT_OK, add_schemas_option
+from lexbuild.cli.common import (
+    EXIT_FINDINGS,
+    EXIT_OK,
+    add_no_cache_option,
+    add_schemas_option,
+    build_cache,
+)
 
 __all__ = ["register"]
 
@@ -84,6 +90,7 @@ def register(subparsers: Any) -> None:
     release.add_argument("--no-site", action="store_true",
                          help="do not write the review site (edition-N/site)")
     add_schemas_option(release)
+    add_no_cache_option(release)
     release.set_defaults(handler=run_release)
 
     diff = subparsers.add_parser(
@@ -126,10 +133,11 @@ def run_release(args: argparse.Namespace) -> int:
     from lexbuild.editions.release import ReleaseRefused, release
 
     try:
-        result = release(
-            args.sources, edition=args.edition, output=args.output, date=args.date,
-            schemas_dir=args.schemas, site=not args.no_site,
-        )
+        with build_cache(args) as cache:
+            result = release(
+                args.sources, edition=args.edition, output=args.output, date=args.date,
+                schemas_dir=args.schemas, site=not args.no_site, cache=cache,
+            )
     except ReleaseRefused as refused:
         print(f"lexbuild release: {refused.message}", file=sys.stderr)
         return EXIT_FINDINGS

@@ -7,7 +7,7 @@ import sys
 from pathlib import Path
 from typing import Any
 
-from lexbuild.cli.common import EXIT_FINDINGS, EXIT_OK
+from lexbuild.cli.common import EXIT_FINDINGS, EXIT_OK, add_no_cache_option, build_cache
 
 
 def register(subparsers: Any) -> None:
@@ -35,6 +35,7 @@ def register(subparsers: Any) -> None:
         "--strict", action="store_true", help="warnings count as findings for the exit code"
     )
     check.add_argument("--list-rules", action="store_true", help="print the rule table and exit")
+    add_no_cache_option(check)
     check.set_defaults(handler=run_check)
 
     schema = subparsers.add_parser(
@@ -49,15 +50,14 @@ def register(subparsers: Any) -> None:
 
 def run_check(args: argparse.Namespace) -> int:
     from lexbuild.errors import SourceError
+    from lexbuild.lexicon.build import open_build
     from lexbuild.lexicon.checks import (
         RULES,
         Severity,
-        check_lexicon,
         findings_json,
         findings_text,
         load_problem_findings,
     )
-    from lexbuild.lexicon.sources import load_lexicon
 
     if args.list_rules:
         for rule in RULES.values():
@@ -66,10 +66,11 @@ def run_check(args: argparse.Namespace) -> int:
     if args.sources is None:
         raise SourceError("give the sources folder to check (or --list-rules)")
     problems: list[SourceError] = []
-    loaded = load_lexicon(args.sources, problems=problems)
-    findings = load_problem_findings(problems) + check_lexicon(
-        loaded, select=args.select, ignore=args.ignore
-    )
+    with build_cache(args) as cache:
+        build = open_build(args.sources, cache=cache, problems=problems)
+        findings = load_problem_findings(problems) + build.check(
+            select=args.select, ignore=args.ignore
+        )
     output = findings_json(findings) if args.format == "json" else findings_text(findings)
     sys.stdout.write(output)
     counted = {Severity.ERROR, Severity.WARNING} if args.strict else {Severity.ERROR}

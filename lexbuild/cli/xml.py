@@ -13,7 +13,13 @@ import sys
 from pathlib import Path
 from typing import Any
 
-from lexbuild.cli.common import EXIT_FINDINGS, EXIT_OK, add_schemas_option
+from lexbuild.cli.common import (
+    EXIT_FINDINGS,
+    EXIT_OK,
+    add_no_cache_option,
+    add_schemas_option,
+    build_cache,
+)
 from lexbuild.formats.registry import FORMAT_MODULES
 
 
@@ -38,6 +44,7 @@ def register(subparsers: Any) -> None:
         metavar="TEXT",
         help="a change-log line for the TEI header (repeatable)",
     )
+    add_no_cache_option(export)
     export.set_defaults(handler=run_export)
 
     validate = subparsers.add_parser(
@@ -56,6 +63,7 @@ def register(subparsers: Any) -> None:
         "--sources", type=Path, default=None, help="the sources folder the files come from"
     )
     validate.add_argument("--format", choices=("text", "json"), default="text")
+    add_no_cache_option(validate)
     validate.set_defaults(handler=run_validate)
 
 
@@ -64,51 +72,43 @@ def run_export(args: argparse.Namespace) -> int:
     from lexbuild.errors import SourceError
     from lexbuild.formats.registry import ValidationContext, get_format
     from lexbuild.formats.validate import findings_text as xml_findings_text
-    from lexbuild.lexicon.checks import (
-        check_lexicon,
-        findings_text,
-        has_errors,
-        load_problem_findings,
-    )
-    from lexbuild.lexicon.sources import load_lexicon
+    from lexbuild.lexicon.build import open_build
+    from lexbuild.lexicon.checks import findings_text, has_errors, load_problem_findings
 
     problems: list[SourceError] = []
-    loaded = load_lexicon(args.sources, problems=problems)
-    findings = load_problem_findings(problems) + check_lexicon(loaded)
-    if has_errors(findings):
-        errors = [finding for finding in findings if finding.severity.value == "error"]
-        sys.stdout.write(findings_text(errors))
-        print(f"lexbuild export: nothing written to {args.output}", file=sys.stderr)
-        return EXIT_FINDINGS
-    lexicon = loaded.lexicon
-    output_format = get_format(args.format)
-    data = output_format.write(lexicon, args.change)
-    problems_found = output_format.validate(
-        data,
-        ValidationContext(
-            schemas_dir=args.schemas,
-            extra_schemas=tuple(lexicon.meta.extra_schemas),
-            name=f"{args.output} (not written)",
-            source_map=loaded.source_map,
-            base_dir=loaded.root,
-        ),
-    )
+    with build_cache(args) as cache:
+        build = open_build(args.sources, cache=cache, problems=problems)
+        findings = load_problem_findings(problems) + build.check()
+        if has_errors(findings):
+            errors = [finding for finding in findings if finding.severity.value == "error"]
+            sys.stdout.write(findings_text(errors))
+            print(f"lexbuild export: nothing written to {args.output}", file=sys.stderr)
+            return EXIT_FINDINGS
+        output_format = get_format(args.format)
+        data, document = build.write(output_format, changes=args.change)
+        problems_found = build.validate(
+            output_format,
+            data,
+            document,
+            ValidationContext(
+                schemas_dir=args.schemas,
+                extra_schemas=tuple(build.meta.extra_schemas),
+                name=f"{args.output} (not written)",
+                source_map=build.source_map,
+                base_dir=build.root,
+            ),
+        )
     if problems_found:
         sys.stdout.write(xml_findings_text(problems_found))
         print(f"lexbuild export: nothing written to {args.output}", file=sys.stderr)
         return EXIT_FINDINGS
     atomic_write_bytes(args.output, data)
-    print(
-        f"{args.output}: {output_format.title} export of {len(lexicon.entries)} entries, valid"
-    )
+    print(f"{args.output}: {output_format.title} export of {len(build.items)} entries, valid")
     return EXIT_OK
 
 
 def run_validate(args: argparse.Namespace) -> int:
-    from lexbuild.errors import UnsafeXMLError
-    from lexbuild.formats.registry import ValidationContext, format_for_file
     from lexbuild.formats.validate import XmlFinding, findings_json, findings_text
-    from lexbuild.formats.xmlsafe import DEFAULT_MAX_BYTES
 
     source_map = None
     extra_schemas: list[Any] = []
@@ -121,26 +121,54 @@ def run_validate(args: argparse.Namespace) -> int:
         extra_schemas = list(loaded.lexicon.meta.extra_schemas)
         base_dir = loaded.root
     findings: list[XmlFinding] = []
-    for path in args.files:
-        output_format = format_for_file(path)
-        size = path.stat().st_size
-        if size > DEFAULT_MAX_BYTES:
-            raise UnsafeXMLError(
-                f"{path}: {size} bytes is over the limit of {DEFAULT_MAX_BYTES} bytes"
-            )
-        findings += output_format.validate(
-            path.read_bytes(),
-            ValidationContext(
-                schemas_dir=args.schemas,
-                extra_schemas=tuple(extra_schemas),
-                name=str(path),
-                source_map=source_map,
-                base_dir=base_dir,
-            ),
-        )
+    with build_cache(args) as cache:
+        for path in args.files:
+            findings += _validate_file(path, args, cache, source_map, extra_schemas, base_dir)
     if args.format == "json":
         sys.stdout.write(findings_json(findings))
     else:
         sys.stdout.write(findings_text(findings))
     return EXIT_FINDINGS if findings else EXIT_OK
 
+
+def _validate_file(
+    path: Path,
+    args: argparse.Namespace,
+    cache: Any,
+    source_map: Any,
+    extra_schemas: list[Any],
+    base_dir: Any,
+) -> list[Any]:
+    from lexbuild.errors import UnsafeXMLError
+    from lexbuild.formats.registry import ValidationContext, format_for_file
+    from lexbuild.formats.xmlsafe import DEFAULT_MAX_BYTES
+
+    output_format = format_for_file(path)
+    size = path.stat().st_size
+    if size > DEFAULT_MAX_BYTES:
+        raise UnsafeXMLError(f"{path}: {size} bytes is over the limit of {DEFAULT_MAX_BYTES} bytes")
+    data = path.read_bytes()
+    if cache is not None and output_format.name in ("tei", "lmf"):
+        from lexbuild.formats.validate import validate_cached
+        from lexbuild.lexicon.build_cache import code_fingerprint
+
+        return validate_cached(
+            data,
+            cache=cache,
+            fingerprint=code_fingerprint(),
+            schemas_dir=args.schemas,
+            extra_schemas=extra_schemas,
+            name=str(path),
+            source_map=source_map,
+            base_dir=base_dir,
+        )
+    return output_format.validate(
+        data,
+        ValidationContext(
+            schemas_dir=args.schemas,
+            extra_schemas=tuple(extra_schemas),
+            name=str(path),
+            source_map=source_map,
+            base_dir=base_dir,
+        ),
+    )

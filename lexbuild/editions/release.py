@@ -30,7 +30,7 @@ import json
 import re
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from lexbuild._atomic import staging_dir, swap_dir
 from lexbuild.editions.changes import LexiconDiff
@@ -41,6 +41,9 @@ from lexbuild.errors import ReleaseError
 from lexbuild.formats.tei import tei_snapshot
 from lexbuild.lexicon.model import Lexicon
 from lexbuild.lexicon.snapshot import count_items
+
+if TYPE_CHECKING:
+    from lexbuild.lexicon.build_cache import BuildCache
 
 __all__ = [
     "CHANGELOG_FILE",
@@ -155,14 +158,18 @@ def release(
     date: dt.date | None = None,
     schemas_dir: str | Path | None = None,
     site: bool = True,
+    cache: BuildCache | None = None,
 ) -> ReleaseResult:
-    """Check, export, validate and publish ``output/edition-<edition>``; see the module doc."""
+    """Check, export, validate and publish ``output/edition-<edition>``; see the module doc.
+
+    ``cache``: the cache of build results (``lexbuild.lexicon.build_cache``) whose entries,
+    fragments and verdicts are reused; None builds everything afresh. Same bytes either way.
+    """
     from lexbuild import __version__
-    from lexbuild.formats.registry import ValidationContext, all_formats
+    from lexbuild.formats.registry import ValidationContext, all_formats, get_format
     from lexbuild.formats.schemastore import checksums
-    from lexbuild.formats.tei import to_tei
-    from lexbuild.lexicon.checks import Severity, check_lexicon, has_errors
-    from lexbuild.lexicon.sources import load_lexicon
+    from lexbuild.lexicon.build import open_build
+    from lexbuild.lexicon.checks import Severity, has_errors
 
     if edition < 1:
         raise ReleaseError(f"edition numbers start at 1, got {edition}")
@@ -177,8 +184,8 @@ def release(
                            f"({max(later)})")
     previous = max(earlier) if earlier else None
 
-    loaded = load_lexicon(sources)
-    findings = check_lexicon(loaded)
+    build = open_build(sources, cache=cache)
+    findings = build.check()
     if has_errors(findings):
         errors = [str(f) for f in findings if f.severity is Severity.ERROR]
         raise ReleaseRefused(
@@ -187,10 +194,10 @@ def release(
             errors,
         )
     warnings = [str(f) for f in findings if f.severity is not Severity.ERROR]
-    meta = loaded.lexicon.meta.model_copy(
-        update={"edition": edition, "release_date": date or loaded.lexicon.meta.release_date}
+    meta = build.meta.model_copy(
+        update={"edition": edition, "release_date": date or build.meta.release_date}
     )
-    lexicon = loaded.lexicon.model_copy(update={"meta": meta})
+    lexicon = build.lexicon().model_copy(update={"meta": meta})
     counts = count_items(lexicon)
 
     changes: LexiconDiff | None = None
@@ -198,7 +205,7 @@ def release(
         # compare what TEI keeps on both sides: the new edition as it will read back
         changes = diff_snapshots(
             tei_snapshot(earlier[previous] / TEI_FILE),
-            tei_snapshot(to_tei(lexicon)),
+            tei_snapshot(build.write(get_format("tei"), meta=meta)[0]),
             old_label=f"edition {previous}",
             new_label=f"edition {edition}",
         )
@@ -207,21 +214,26 @@ def release(
     else:
         changelog = _first_changelog(edition, counts)
         tei_changes = [changelog.splitlines()[-1]]
-    published = {
-        output_format.file_name: (output_format, output_format.write(lexicon, tei_changes))
+    written = {
+        output_format.file_name: (
+            output_format, build.write(output_format, changes=tei_changes, meta=meta)
+        )
         for output_format in all_formats()
     }
+    published = {name: (fmt, data) for name, (fmt, (data, _)) in written.items()}
 
     problems: list[str] = []
-    for name, (output_format, data) in published.items():
+    for name, (output_format, (data, document)) in written.items():
         context = ValidationContext(
             schemas_dir=schemas_dir,
             extra_schemas=tuple(meta.extra_schemas),
             name=name,
-            source_map=loaded.source_map,
-            base_dir=loaded.root,
+            source_map=build.source_map,
+            base_dir=build.root,
         )
-        problems += [str(finding) for finding in output_format.validate(data, context)]
+        problems += [
+            str(finding) for finding in build.validate(output_format, data, document, context)
+        ]
     if problems:
         raise ReleaseRefused(
             f"{len(problems)} validation problem(s); nothing was published:\n"

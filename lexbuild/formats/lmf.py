@@ -27,17 +27,26 @@ constrain them); the others are this project's conventions. All ids are unique i
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Iterable, Sequence
 from typing import Any
 
 from lexbuild.errors import ExportError, LexbuildError
+from lexbuild.formats.fragments import (
+    CachedFragmentsConflict,
+    EntryItem,
+    FragmentCache,
+    WrittenDocument,
+    entry_items,
+    write_entries,
+)
 from lexbuild.formats.registry import OutputFormat, validate_xml
 from lexbuild.formats.xmlsafe import XmlWriter, describe_forbidden, forbidden_character
 from lexbuild.lexicon.ids import DocumentIds
 from lexbuild.lexicon.model import Entry, Frame, Function, Lexicon, LexiconMeta, Realisation
 
 __all__ = [
-    "DTD_FILE", "DTD_VERSION", "FORMAT", "SUPPORTED_VERSIONS", "LMFError", "is_lmf", "to_lmf"
+    "DTD_FILE", "DTD_VERSION", "FORMAT", "SUPPORTED_VERSIONS", "LMFError", "is_lmf", "to_lmf",
+    "write_lmf",
 ]
 
 DTD_VERSION = "16"
@@ -211,10 +220,27 @@ def to_lmf(lexicon: Lexicon) -> bytes:
 
     Entries are sorted by id. Raises ``LMFError`` for duplicate ids or characters XML forbids.
     """
-    if not lexicon.entries:
+    document = write_lmf(lexicon.meta, entry_items(lexicon.entries), pool=lexicon.all_ids())
+    return document.data()
+
+
+#: The kind under which LMF entry fragments are cached (``lexbuild.lexicon.build_cache``).
+FRAGMENT_KIND = "lmf-entry"
+
+
+def write_lmf(
+    meta: LexiconMeta,
+    items: Sequence[EntryItem],
+    *,
+    pool: Iterable[str] = (),
+    cache: FragmentCache | None = None,
+) -> WrittenDocument:
+    """The LMF document in its parts (``lexbuild.formats.fragments``): each entry's fragment
+    holds its ``LexicalEntry`` and, as its tail, its ``SubcategorizationFrame`` elements
+    (written after all entries). ``to_lmf`` is this with no cache."""
+    if not items:
         raise LMFError("the lexicon has no entry; an LMF Lexicon needs at least one LexicalEntry")
-    meta = lexicon.meta
-    ids = DocumentIds(lexicon.all_ids(), LMFError)
+    ids = DocumentIds(pool, LMFError)
     out = XmlWriter()
     out.parts.append('<?xml version="1.0" encoding="UTF-8"?>')
     out.parts.append(f'<!DOCTYPE LexicalResource SYSTEM "{DTD_FILE}">')
@@ -225,17 +251,27 @@ def to_lmf(lexicon: Lexicon) -> bytes:
         raise _text_error(meta, "lexicon metadata")
     out.open("Lexicon")
     _feat(out, "language", meta.language)
-    frames = XmlWriter()
-    frames.depth = out.depth
-    for entry in sorted(lexicon.entries, key=lambda e: e.id):
-        mark, frames_mark = out.mark(), frames.mark()
-        _entry(out, frames, entry, meta.language, ids)
-        if forbidden_character(out.since(mark)) or forbidden_character(frames.since(frames_mark)):
-            raise _text_error(entry, f"entry {entry.id}")
-    out.parts.extend(frames.parts)
-    out.close("Lexicon")
-    out.close("LexicalResource")
-    return out.text().encode("utf-8")
+
+    def write_one(entry: Entry, main: XmlWriter, frames: XmlWriter, entry_ids: Any) -> None:
+        _entry(main, frames, entry, meta.language, entry_ids)
+
+    try:
+        fragments = write_entries(
+            out,
+            items,
+            ids,
+            write_one,
+            lambda entry: _text_error(entry, f"entry {entry.id}"),
+            cache=cache,
+            kind=FRAGMENT_KIND,
+        )
+    except CachedFragmentsConflict:  # the cold write raises the error a cold build raises
+        return write_lmf(meta, items, pool=pool)
+    closing = XmlWriter()
+    closing.depth = out.depth
+    closing.close("Lexicon")
+    closing.close("LexicalResource")
+    return WrittenDocument("\n".join(out.parts), tuple(fragments), "\n".join(closing.parts))
 
 
 def _write(lexicon: Lexicon, changes: Sequence[str]) -> bytes:

@@ -34,7 +34,7 @@ from __future__ import annotations
 
 import datetime as dt
 import re
-from collections.abc import Sequence
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -42,6 +42,14 @@ from typing import Any
 from lxml import etree
 
 from lexbuild.errors import ExportError, LexbuildError, SourceError, SourceLocation
+from lexbuild.formats.fragments import (
+    CachedFragmentsConflict,
+    EntryItem,
+    FragmentCache,
+    WrittenDocument,
+    entry_items,
+    write_entries,
+)
 from lexbuild.formats.registry import OutputFormat, validate_xml
 from lexbuild.formats.xmlsafe import (
     XmlWriter,
@@ -71,7 +79,7 @@ from lexbuild.lexicon.snapshot import EntryView, SenseView, Snapshot
 
 __all__ = [
     "FORMAT", "SUPPORTED_VERSIONS", "TEI_NS", "TEIError", "is_tei", "read_tei", "tei_snapshot",
-    "to_tei",
+    "to_tei", "write_tei",
 ]
 
 SUPPORTED_VERSIONS = ("0.9.4",)
@@ -443,10 +451,36 @@ def to_tei(lexicon: Lexicon, *, changes: Sequence[str] = ()) -> bytes:
     Entries are sorted by id; ``changes`` are change-log lines written as ``change`` elements
     after the edition's own. Raises ``TEIError`` for duplicate ids or characters XML forbids.
     """
-    if not lexicon.entries:
+    document = write_tei(
+        lexicon.meta, entry_items(lexicon.entries), changes=changes, pool=lexicon.all_ids()
+    )
+    return _encoded(document)
+
+
+def _encoded(document: WrittenDocument) -> bytes:
+    try:
+        return document.data()
+    except UnicodeEncodeError as error:  # a lone surrogate slipped past the checks above
+        raise TEIError(f"text cannot be encoded as UTF-8: {error}") from None
+
+
+def write_tei(
+    meta: LexiconMeta,
+    items: Sequence[EntryItem],
+    *,
+    changes: Sequence[str] = (),
+    pool: Iterable[str] = (),
+    cache: FragmentCache | None = None,
+) -> WrittenDocument:
+    """The TEI document in its parts (``lexbuild.formats.fragments``): the header, one
+    fragment per entry (reused from ``cache`` when its key is there), the closing.
+
+    ``pool``: every id of the lexicon (``Lexicon.all_ids``), from which generated ids keep
+    clear. ``to_tei`` is this with no cache.
+    """
+    if not items:
         raise TEIError("the lexicon has no entry; a TEI Lex-0 body needs at least one")
-    meta = lexicon.meta
-    ids = DocumentIds(lexicon.all_ids(), TEIError)
+    ids = DocumentIds(pool, TEIError)
     out = XmlWriter()
     out.parts.append('<?xml version="1.0" encoding="UTF-8"?>')
     out.open("TEI", [("xmlns", TEI_NS), ("type", "lex-0")])
@@ -459,18 +493,32 @@ def to_tei(lexicon: Lexicon, *, changes: Sequence[str] = ()) -> bytes:
     out.open("text")
     out.open("body")
     corpora = {corpus.id for corpus in meta.corpora}
-    for entry in sorted(lexicon.entries, key=lambda e: e.id):
-        mark = out.mark()
-        _entry(out, entry, meta.language, corpora, ids)
-        if forbidden_character(out.since(mark)):
-            raise _text_error(entry, f"entry {entry.id}")
-    out.close("body")
-    out.close("text")
-    out.close("TEI")
+
+    def write_one(entry: Entry, main: XmlWriter, tail: XmlWriter, entry_ids: Any) -> None:
+        _entry(main, entry, meta.language, corpora, entry_ids)
+
     try:
-        return out.text().encode("utf-8")
-    except UnicodeEncodeError as error:  # a lone surrogate slipped past the checks above
-        raise TEIError(f"text cannot be encoded as UTF-8: {error}") from None
+        fragments = write_entries(
+            out,
+            items,
+            ids,
+            write_one,
+            lambda entry: _text_error(entry, f"entry {entry.id}"),
+            cache=cache,
+            kind=FRAGMENT_KIND,
+        )
+    except CachedFragmentsConflict:  # the cold write raises the error a cold build raises
+        return write_tei(meta, items, changes=changes, pool=pool)
+    closing = XmlWriter()
+    closing.depth = out.depth
+    closing.close("body")
+    closing.close("text")
+    closing.close("TEI")
+    return WrittenDocument("\n".join(out.parts), tuple(fragments), "\n".join(closing.parts))
+
+
+#: The kind under which TEI entry fragments are cached (``lexbuild.lexicon.build_cache``).
+FRAGMENT_KIND = "tei-entry"
 
 
 # ------------------------------------------------------------------------------------ reader

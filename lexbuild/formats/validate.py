@@ -694,3 +694,239 @@ def validate_file(
         max_bytes=max_bytes,
         workers=workers,
     )
+
+
+# ------------------------------------------------------------------------------ incremental
+
+#: Cache kinds of validation verdicts (``lexbuild.lexicon.build_cache``).
+CHUNK_KIND = "valid-fragment"
+SKELETON_KIND = "valid-skeleton"
+DOCUMENT_KIND = "valid-document"
+VALID = b"valid"  # the only verdict kept: problems are found afresh every time
+_ROOT_TAG = re.compile(r"<(?:TEI|LexicalResource)\b[^>]*>")
+
+
+def _schema_sums(schemas_dir: str | Path | None) -> str:
+    from lexbuild.formats.schemastore import checksums
+
+    return json.dumps(checksums(schemas_dir), sort_keys=True)
+
+
+def document_key(fingerprint: str, fmt: str, sums: str, data: bytes) -> str:
+    """The key of a whole document's verdict: its bytes' hash, format and schemas."""
+    import hashlib
+
+    from lexbuild.lexicon.build_cache import content_key
+
+    return content_key(fingerprint, DOCUMENT_KIND, fmt, sums, hashlib.sha256(data).hexdigest())
+
+
+def _lmf_reference_attributes(schemas: SchemaSet) -> frozenset[str]:
+    """Names of the attributes the LMF DTD declares IDREF or IDREFS."""
+    return frozenset(
+        attribute.name
+        for element in schemas.lmf_dtd.iterelements()
+        for attribute in element.iterattributes()
+        if attribute.type in ("idref", "idrefs")
+    )
+
+
+def _ids_and_references(
+    root: etree._Element, fmt: str, idref_names: frozenset[str]
+) -> tuple[list[str], set[str]]:
+    """Every id borne under ``root`` and every id pointed at (TEI ``#id`` pointers; LMF
+    IDREF(S) attributes and the ``feat`` values naming frames and slots)."""
+    ids: list[str] = []
+    references: set[str] = set()
+    id_attribute = _XML_ID if fmt == "tei" else "id"
+    for element in root.iter(tag=etree.Element):
+        value = element.get(id_attribute)
+        if value is not None:
+            ids.append(value)
+        if fmt == "tei":
+            for name in _POINTER_ATTRIBUTES:
+                pointer = element.get(name)
+                if pointer:
+                    references.update(t[1:] for t in pointer.split() if t.startswith("#"))
+        else:
+            for name in idref_names:
+                pointer = element.get(name)
+                if pointer:
+                    references.update(pointer.split())
+            if element.tag == "feat" and element.get("att") in (
+                "subcategorizationFrame", "argumentPosition"
+            ):
+                references.add((element.get("val") or "").split("=", 1)[0])
+    return ids, references
+
+
+def _fragment_summary(
+    text: str, tail: str | None, fmt: str, idref_names: frozenset[str]
+) -> bytes | None:
+    """What a validated fragment keeps: the ids it bears and the ids it points at outside
+    itself (None when it cannot be read on its own)."""
+    try:
+        root = etree.fromstring(
+            f"<fragment>{text}{tail or ''}</fragment>".encode(), safe_parser()
+        )
+    except etree.XMLSyntaxError:
+        return None
+    ids, references = _ids_and_references(root, fmt, idref_names)
+    if fmt == "lmf":
+        references = {r for r in references if not re.fullmatch(r"slot-?[0-9]+", r)}
+    outside = sorted(references - set(ids))
+    return _joined(ids, outside)
+
+
+def _joined(ids: Iterable[str], outside: Iterable[str]) -> bytes:
+    # Ids and pointers hold no newline (NCNames; pointers are split on white space).
+    return ("\n".join(ids) + "\x00" + "\n".join(outside)).encode("utf-8")
+
+
+def _split(record: bytes) -> tuple[list[str], list[str]]:
+    ids, outside = record.decode("utf-8").split("\x00")
+    return (ids.split("\n") if ids else []), (outside.split("\n") if outside else [])
+
+
+def validate_written(
+    document: Any,
+    fmt: str,
+    *,
+    data: bytes,
+    cache: Any,
+    fingerprint: str,
+    schemas_dir: str | Path | None = None,
+    extra_schemas: Iterable[ExtraSchema] = (),
+    name: str = "<bytes>",
+    source_map: _Locator | None = None,
+    base_dir: str | Path | None = None,
+) -> list[XmlFinding]:
+    """``validate_bytes(data)`` for a document written entry by entry
+    (``lexbuild.formats.fragments.WrittenDocument``), validating only the fragments no
+    earlier run validated; the same findings as ``validate_bytes``.
+
+    Why the parts may be validated apart: every rule of the published schemas is local to an
+    entry (RelaxNG and the DTD's content models; the three TEI Lex-0 Schematron rules look at
+    an element's siblings or parent), except ids, which must be unique in the whole document,
+    and references, which must land on an id. So a fragment is validated once, in a document
+    made of the real header and the fragments to check; what it keeps is its verdict, its ids
+    and the ids it points at outside itself. A later run checks, over the whole document, that
+    no id is borne twice and that every outside pointer lands in the header. Anything
+    else (an invalid fragment, a duplicate id, a pointer from one entry into another, a
+    lexicon with extra schemas, whose rules lexbuild cannot know to be local) sends the
+    document to ``validate_bytes`` whole: only a document proven valid skips it.
+    """
+    from lexbuild.lexicon.build_cache import content_key
+
+    def whole() -> list[XmlFinding]:
+        return validate_bytes(
+            data, schemas_dir=schemas_dir, extra_schemas=extras, name=name,
+            source_map=source_map, base_dir=base_dir,
+        )
+
+    extras = [extra for extra in extra_schemas if extra.format == fmt]
+    if extras or fmt not in ("tei", "lmf"):
+        return whole()
+    schemas = load_schemas(schemas_dir)
+    sums = _schema_sums(schemas_dir)
+    whole_key = document_key(fingerprint, fmt, sums, data)
+    if cache.get(DOCUMENT_KIND, whole_key) == VALID:
+        return []
+    root_tag = _ROOT_TAG.search(document.prefix)
+    context = root_tag.group(0) if root_tag else document.prefix
+    fragments = list(document.fragments)
+    # A cached fragment's text is fixed by its content key; others are keyed by their text.
+    keys = [
+        content_key(fingerprint, CHUNK_KIND, fmt, sums, context, "key", f.key)
+        if f.key is not None
+        else content_key(fingerprint, CHUNK_KIND, fmt, sums, context, "text", f.text,
+                         f.tail or "")
+        for f in fragments
+    ]
+    skeleton_key = content_key(fingerprint, SKELETON_KIND, fmt, sums, document.prefix,
+                               document.suffix)
+    found = cache.get_many(CHUNK_KIND, keys)
+    skeleton = cache.get(SKELETON_KIND, skeleton_key)
+    missing = [k for k, key in enumerate(keys) if key not in found]
+    if not missing and skeleton is None:
+        missing = [0]
+    idref_names = _lmf_reference_attributes(schemas) if fmt == "lmf" else frozenset()
+    fresh: dict[str, bytes] = {}
+    if missing:
+        if len(missing) == len(fragments):
+            part = data
+        else:
+            part = type(document)(
+                document.prefix, tuple(fragments[k] for k in missing), document.suffix
+            ).data()
+        problems = validate_bytes(part, schemas_dir=schemas_dir, name=name,
+                                  source_map=source_map, base_dir=base_dir)
+        if problems:
+            return problems if part is data else whole()
+        for k in missing:
+            summary = _fragment_summary(fragments[k].text, fragments[k].tail, fmt, idref_names)
+            if summary is None:
+                return whole()
+            found[keys[k]] = fresh[keys[k]] = summary
+    if skeleton is None:
+        try:
+            bare = etree.fromstring(
+                (document.prefix + "\n" + document.suffix).encode(), safe_parser()
+            )
+        except etree.XMLSyntaxError:
+            return whole()
+        ids, references = _ids_and_references(bare, fmt, idref_names)
+        skeleton = _joined(ids, sorted(references))
+    try:
+        listed, pointers = _split(skeleton)
+        header_ids = set(listed)
+        if len(header_ids) != len(listed) or not header_ids.issuperset(pointers):
+            return whole()
+        seen = set(header_ids)
+        count = len(seen)
+        for key in keys:
+            chunk_ids, outside = _split(found[key])
+            seen.update(chunk_ids)
+            count += len(chunk_ids)
+            if not header_ids.issuperset(outside):
+                return whole()  # a pointer into another entry or nowhere
+    except ValueError:
+        return whole()
+    if len(seen) != count:
+        return whole()  # an id borne twice
+    cache.put_many(CHUNK_KIND, fresh)
+    cache.put(SKELETON_KIND, skeleton_key, skeleton)
+    cache.put(DOCUMENT_KIND, whole_key, VALID)
+    return []
+
+
+def validate_cached(
+    data: bytes,
+    *,
+    cache: Any,
+    fingerprint: str,
+    schemas_dir: str | Path | None = None,
+    extra_schemas: Iterable[ExtraSchema] = (),
+    name: str = "<bytes>",
+    source_map: _Locator | None = None,
+    base_dir: str | Path | None = None,
+) -> list[XmlFinding]:
+    """``validate_bytes``, skipped for a document whose exact bytes an earlier run (export,
+    release or validate) found valid against the same schemas. A lexicon's extra schemas
+    bypass the cache: lexbuild does not follow the files they load."""
+    extras = list(extra_schemas)
+    try:
+        fmt: str | None = detect_format(data)
+    except ValidationFailed:
+        fmt = None
+    usable = fmt is not None and not any(extra.format == fmt for extra in extras)
+    key = document_key(fingerprint, fmt or "", _schema_sums(schemas_dir), data) if usable else ""
+    if usable and cache.get(DOCUMENT_KIND, key) == VALID:
+        return []
+    findings = validate_bytes(
+        data, schemas_dir=schemas_dir, extra_schemas=extras, name=name,
+        source_map=source_map, base_dir=base_dir,
+    )
+    if usable and not findings:
+        cache.put(DOCUMENT_KIND, key, VALID)
+    return findings

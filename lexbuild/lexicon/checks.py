@@ -17,15 +17,15 @@ import json
 import re
 import unicodedata
 from collections import Counter, defaultdict
-from collections.abc import Callable, Iterable, Iterator
+from collections.abc import Callable, Iterable, Iterator, Sequence
 from dataclasses import dataclass
 from enum import StrEnum
 from typing import Any
 
 from lexbuild.errors import SourceError, SourceLocation
 from lexbuild.formats.xmlsafe import forbidden_characters
-from lexbuild.lexicon.model import NEEDS_MARKER, Entry, Lexicon, Sense, Status
-from lexbuild.lexicon.sources import FieldPath, LoadedLexicon, format_path, id_paths
+from lexbuild.lexicon.model import NEEDS_MARKER, Entry, Lexicon, LexiconMeta, Sense, Status
+from lexbuild.lexicon.sources import FieldPath, LoadedLexicon, SourceMap, format_path, id_paths
 
 __all__ = [
     "RULES",
@@ -33,10 +33,14 @@ __all__ = [
     "Rule",
     "Severity",
     "check_lexicon",
+    "choose_rules",
+    "entry_problems",
     "findings_json",
     "findings_text",
     "has_errors",
     "load_problem_findings",
+    "located_findings",
+    "meta_problems",
 ]
 
 
@@ -55,13 +59,29 @@ class Problem:
     first: FieldPath | None = None  # in the same file: an earlier value this one repeats
 
 
+#: What a whole-document rule reads of each entry: its id and every id it holds with its path.
+IdSummary = tuple[str, Sequence[tuple[str, FieldPath]]]
+
+
 @dataclass(frozen=True, slots=True)
 class Rule:
+    """A coded rule. Most rules are local to one entry: what they find about an entry depends
+    only on that entry and the metadata, and what they find about the metadata (entry None)
+    comes first, so an incremental build can run them entry by entry and keep the results.
+    A rule that compares entries (``find_ids`` set) runs over the whole document every time,
+    on the ids of each entry (``IdSummary``), which a build keeps for every entry; it finds
+    problems only among ids that more than one place holds (a build skips it otherwise)."""
+
     code: str
     name: str
     severity: Severity
     hint: str  # how to fix it, shown with every finding
     find: Callable[[Lexicon], Iterator[Problem]]
+    find_ids: Callable[[LexiconMeta, Sequence[IdSummary]], Iterator[Problem]] | None = None
+
+    @property
+    def local(self) -> bool:
+        return self.find_ids is None
 
 
 @dataclass(frozen=True, slots=True)
@@ -101,10 +121,14 @@ RULES: dict[str, Rule] = {}
 
 
 def _rule(
-    code: str, name: str, severity: Severity, hint: str
+    code: str,
+    name: str,
+    severity: Severity,
+    hint: str,
+    find_ids: Callable[[LexiconMeta, Sequence[IdSummary]], Iterator[Problem]] | None = None,
 ) -> Callable[[Callable[[Lexicon], Iterator[Problem]]], Callable[[Lexicon], Iterator[Problem]]]:
     def register(find: Callable[[Lexicon], Iterator[Problem]]) -> Callable[..., Iterator[Problem]]:
-        RULES[code] = Rule(code, name, severity, hint, find)
+        RULES[code] = Rule(code, name, severity, hint, find, find_ids)
         return find
 
     return register
@@ -153,12 +177,27 @@ def _sense_without_example(lexicon: Lexicon) -> Iterator[Problem]:
                 yield Problem(entry.id, ("senses", index), f"sense {sense.id!r} has no example")
 
 
+def _duplicate_ids(meta: LexiconMeta, summaries: Sequence[IdSummary]) -> Iterator[Problem]:
+    first_seen: dict[str, str] = {}
+    for entry_id, paths in summaries:
+        for identifier, path in paths:
+            if identifier in first_seen:
+                yield Problem(
+                    entry_id,
+                    path,
+                    f"id {identifier!r} is already used in entry {first_seen[identifier]!r}",
+                )
+            else:
+                first_seen[identifier] = entry_id
+
+
 @_rule(
     "E104",
     "duplicate-id",
     Severity.ERROR,
     "give each entry, sense, frame and example its own id"
     " (lexbuild.lexicon.ids.next_free_id finds one)",
+    find_ids=_duplicate_ids,
 )
 def _duplicate_id(lexicon: Lexicon) -> Iterator[Problem]:
     first_seen: dict[str, str] = {}
@@ -575,16 +614,16 @@ def _unknown_corpus(lexicon: Lexicon) -> Iterator[Problem]:
 # ------------------------------------------------------------------------------------ running
 
 
-def _locate(loaded: LoadedLexicon, problem: Problem) -> SourceLocation:
+def _locate(source_map: SourceMap, problem: Problem) -> SourceLocation:
     if problem.entry is None:
-        return loaded.source_map.meta_location(problem.path)
-    return loaded.source_map.locate(problem.entry, problem.path)
+        return source_map.meta_location(problem.path)
+    return source_map.locate(problem.entry, problem.path)
 
 
-def _with_first(loaded: LoadedLexicon, problem: Problem) -> str:
+def _with_first(source_map: SourceMap, problem: Problem) -> str:
     if problem.first is None:
         return problem.message
-    first = _locate(loaded, Problem(problem.entry, problem.first, ""))
+    first = _locate(source_map, Problem(problem.entry, problem.first, ""))
     return f"{problem.message} (line {first.line})" if first.line else problem.message
 
 
@@ -595,18 +634,27 @@ def check_lexicon(
     ignore: Iterable[str] = (),
 ) -> list[Finding]:
     """Run the rules (all, or those whose code starts with a ``select`` prefix)."""
-    chosen = _choose(select, ignore)
+    chosen = choose_rules(select, ignore)
+    return located_findings(
+        loaded.source_map, [(rule, rule.find(loaded.lexicon)) for rule in chosen]
+    )
+
+
+def located_findings(
+    source_map: SourceMap, found: Iterable[tuple[Rule, Iterable[Problem]]]
+) -> list[Finding]:
+    """Each rule's problems as findings located in the sources, in the report's order."""
     findings = []
-    for rule in chosen:
-        for problem in rule.find(loaded.lexicon):
+    for rule, problems in found:
+        for problem in problems:
             findings.append(
                 Finding(
                     code=rule.code,
                     name=rule.name,
                     severity=rule.severity,
-                    message=_with_first(loaded, problem),
+                    message=_with_first(source_map, problem),
                     hint=rule.hint,
-                    location=_locate(loaded, problem),
+                    location=_locate(source_map, problem),
                     entry=problem.entry,
                     field=format_path(problem.path),
                 )
@@ -614,7 +662,26 @@ def check_lexicon(
     return sorted(findings, key=_finding_order)
 
 
-def _choose(select: Iterable[str] | None, ignore: Iterable[str]) -> list[Rule]:
+def entry_problems(meta: LexiconMeta, entry: Entry) -> dict[str, list[Problem]]:
+    """What the local rules find about one entry (its part of a whole check), by code."""
+    alone = Lexicon.model_construct(meta=meta, entries=[entry])
+    found: dict[str, list[Problem]] = {}
+    for code, rule in RULES.items():
+        if rule.local:
+            problems = [problem for problem in rule.find(alone) if problem.entry is not None]
+            if problems:
+                found[code] = problems
+    return found
+
+
+def meta_problems(meta: LexiconMeta, rule: Rule) -> list[Problem]:
+    """What a local rule finds about the metadata alone (its part before any entry's)."""
+    return list(rule.find(Lexicon.model_construct(meta=meta, entries=[])))
+
+
+def choose_rules(select: Iterable[str] | None, ignore: Iterable[str]) -> list[Rule]:
+    """The rules to run: codes starting with a ``select`` prefix (all when None), less those
+    starting with an ``ignore`` prefix; an unknown prefix raises ``SourceError``."""
     selected = list(select) if select is not None else [""]
     ignored = list(ignore)
     for prefix in [*selected, *ignored]:

@@ -45,7 +45,11 @@ __all__ = [
     "id_paths",
     "lexicon_json_schema",
     "load_entry",
+    "load_entry_bytes",
     "load_lexicon",
+    "load_meta",
+    "parse_all_bytes",
+    "parse_entry_bytes",
     "schema_text",
     "write_entry",
     "write_meta",
@@ -86,6 +90,9 @@ class SourceMap:
     _id_paths: dict[str, tuple[str, FieldPath]] = field(default_factory=dict)
     meta_file: str = META_FILE
     _meta: dict[FieldPath, tuple[int, int]] = field(default_factory=dict)
+    _lazy_paths: dict[str, typing.Callable[[], typing.Iterable[tuple[str, FieldPath]]]] = field(
+        default_factory=dict
+    )
 
     def add_entry(self, entry_id: str, file: str, node: Any) -> None:
         """Record an entry file already parsed with positions (the round-trip parser)."""
@@ -103,6 +110,20 @@ class SourceMap:
         self._files[entry.id] = file
         for identifier, path in id_paths(entry):
             self._id_paths.setdefault(identifier, (entry.id, path))
+
+    def add_entry_ids(
+        self,
+        entry_id: str,
+        file: str,
+        names: typing.Iterable[str],
+        paths: typing.Callable[[], typing.Iterable[tuple[str, FieldPath]]],
+    ) -> None:
+        """Record an entry known by its ids alone (an incremental build's cached entry);
+        ``paths`` gives each id's path, asked for only when a message needs one."""
+        self._files[entry_id] = file
+        self._lazy_paths[entry_id] = paths
+        for identifier in names:
+            self._id_paths.setdefault(identifier, (entry_id, ()))
 
     def add_meta(self, file: str, node: Any) -> None:
         self.meta_file = file
@@ -136,7 +157,13 @@ class SourceMap:
     def locate_id(self, identifier: str) -> SourceLocation | None:
         """Location of the ``id`` value of an entry, sense, frame or example."""
         found = self._id_paths.get(identifier)
-        return None if found is None else self.locate(*found)
+        if found is None:
+            return None
+        entry_id, path = found
+        lazy = self._lazy_paths.get(entry_id)
+        if lazy is not None:
+            path = next((p for name, p in lazy() if name == identifier), path)
+        return self.locate(entry_id, path)
 
     def meta_location(self, path: FieldPath = ()) -> SourceLocation:
         for length in range(len(path), -1, -1):
@@ -597,6 +624,65 @@ def _nfc_lemma(entry: Entry) -> Entry:
     decomposed lemma from another source compares equal to the composed one."""
     lemma = unicodedata.normalize("NFC", entry.lemma)
     return entry if lemma == entry.lemma else entry.model_copy(update={"lemma": lemma})
+
+
+def parse_entry_bytes(path: Path, data: bytes) -> Any:
+    """The plain data of an entry file's bytes, or None when it needs the careful path."""
+    if len(data) > MAX_YAML_BYTES:
+        return None
+    try:
+        text = data.decode("utf-8")
+        _guard_yaml(text, str(path))
+        return _fast_load(text)
+    except Exception:  # any problem: the careful path reports it
+        return None
+
+
+def _parse_pair(pair: tuple[Path, bytes]) -> Any:
+    return parse_entry_bytes(*pair)
+
+
+def parse_all_bytes(pairs: list[tuple[Path, bytes]]) -> list[Any]:
+    """``parse_entry_bytes`` over many files, spread over processes from PARALLEL_FILES on."""
+    workers = min(os.cpu_count() or 1, 8)
+    if len(pairs) < PARALLEL_FILES or workers < 2:
+        return [parse_entry_bytes(path, data) for path, data in pairs]
+    with ProcessPoolExecutor(max_workers=workers) as pool:
+        return list(pool.map(_parse_pair, pairs, chunksize=64))
+
+
+_UNPARSED = object()
+
+
+def load_entry_bytes(
+    path: Path, data: bytes, source_map: SourceMap, parsed: Any = _UNPARSED
+) -> Entry:
+    """Load an entry file from its bytes, already read (an incremental build hashed them, so
+    what it keeps under their hash must come from them, not from a second read). ``parsed``:
+    what ``parse_entry_bytes`` gave for them, when it ran already."""
+    if parsed is _UNPARSED:
+        parsed = parse_entry_bytes(path, data)
+    entry: Entry | None = None
+    if isinstance(parsed, dict):
+        try:
+            entry = Entry.model_validate(parsed)
+        except ValidationError:
+            entry = None
+    if entry is not None and entry.id == path.stem:
+        source_map.add_loaded_entry(entry, str(path))
+        return _nfc_lemma(entry)
+    if len(data) > MAX_YAML_BYTES:
+        _read_text(path, str(path))  # raises the size error
+    try:
+        text = data.decode("utf-8")
+    except UnicodeDecodeError:
+        text = _read_text(path, str(path))  # raises the located encoding error
+    return _load_entry_located(path, text, source_map)
+
+
+def load_meta(root: Path, source_map: SourceMap) -> LexiconMeta:
+    """Load ``lexicon.yaml`` of a sources folder, its positions recorded in ``source_map``."""
+    return _load_meta(root, source_map)
 
 
 def load_entry(path: str | Path) -> Entry:

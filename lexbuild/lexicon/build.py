@@ -1,0 +1,381 @@
+"""Incremental builds: ``check``, ``export``, ``validate`` and ``release`` reuse what earlier
+runs computed for the entries that did not change.
+
+A ``Build`` is a sources folder read for one command. Each entry file is read as bytes and
+hashed; its results are cached (``lexbuild.lexicon.build_cache``) under content keys:
+
+=============== ===========================================================================
+kind            key (besides the code fingerprint: tool version + text of the modules)
+=============== ===========================================================================
+entry           file name, file bytes, bytes of ``lexicon.yaml``: the entry's ids with their
+                paths and what the local check rules found
+entry-model     file name, file bytes: the typed entry (JSON), when a whole lexicon is needed
+tei-entry       file bytes, object language, declared corpus ids: the TEI fragment
+lmf-entry       file bytes, object language: the LMF fragment (entry and its frames)
+valid-*         fragment text, format, published schemas' checksums: its validation verdict
+=============== ===========================================================================
+
+A record is only written for an entry that loaded, and a verdict only for a fragment that
+validated: errors are recomputed on every run, so a cache hit never hides one. Whole-document
+rules run every time, on what the records keep: duplicate ids across entries (check E104 and
+the writers' id registry), pointers from an entry into the header, id uniqueness across the
+document (validation). Output is byte-identical to a build without the cache
+(``tests/test_incremental.py`` edits sources at random and compares).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from collections.abc import Callable, Iterable, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+from lexbuild.errors import SourceError, SourceLocation
+from lexbuild.lexicon.build_cache import BuildCache, code_fingerprint, content_key
+from lexbuild.lexicon.checks import (
+    Finding,
+    Problem,
+    choose_rules,
+    entry_problems,
+    located_findings,
+    meta_problems,
+)
+from lexbuild.lexicon.model import Entry, Lexicon, LexiconMeta
+from lexbuild.lexicon.sources import (
+    META_FILE,
+    FieldPath,
+    LoadedLexicon,
+    SourceMap,
+    entry_files,
+    id_paths,
+    load_entry_bytes,
+    load_meta,
+    parse_all_bytes,
+)
+
+if TYPE_CHECKING:
+    from lexbuild.formats.fragments import WrittenDocument
+    from lexbuild.formats.registry import OutputFormat, ValidationContext
+    from lexbuild.formats.validate import XmlFinding
+
+__all__ = ["Build", "SourceEntry", "open_build"]
+
+ENTRY_KIND = "entry"
+MODEL_KIND = "entry-model"
+
+
+@dataclass(eq=False)
+class SourceEntry:
+    """One entry file of a build: its bytes, and what the cache or a parse gave for them."""
+
+    file: Path
+    data: bytes
+    id: str
+    names: list[str]  # every id the entry holds, in ``id_paths`` order
+    problems: dict[str, list[Problem]]
+    model_key: str
+    parsed: Entry | None = None
+    digest: str = ""  # sha256 of ``data``
+    key: str | None = None  # the fragment key of the document being written
+    paths_text: str | None = None  # the ids' paths as JSON, until asked for
+    _ids: list[tuple[str, FieldPath]] | None = None
+
+    @property
+    def ids(self) -> list[tuple[str, FieldPath]]:
+        """Every id the entry holds with its field path (``sources.id_paths``)."""
+        if self._ids is None:
+            if self.paths_text is not None:
+                paths = [tuple(path) for path in json.loads(self.paths_text)]
+                self._ids = list(zip(self.names, paths, strict=True))
+            else:
+                self._ids = list(id_paths(self.entry()))
+        return self._ids
+
+    def entry(self) -> Entry:
+        if self.parsed is None:
+            self.parsed = load_entry_bytes(self.file, self.data, SourceMap())
+        return self.parsed
+
+
+def _path(value: Sequence[Any]) -> FieldPath:
+    return tuple(part for part in value if isinstance(part, str | int))
+
+
+def _record(item: SourceEntry) -> bytes:
+    return json.dumps(
+        {
+            "id": item.id,
+            "ids": item.names,
+            # decoded only when a message or a whole-document rule needs them
+            "paths": json.dumps([list(path) for _, path in item.ids], ensure_ascii=False),
+            "problems": {
+                code: [
+                    [list(p.path), p.message, None if p.first is None else list(p.first)]
+                    for p in problems
+                ]
+                for code, problems in item.problems.items()
+            },
+        },
+        ensure_ascii=False,
+        separators=(",", ":"),
+    ).encode("utf-8")
+
+
+def _from_record(file: Path, data: bytes, record: bytes, model_key: str) -> SourceEntry | None:
+    try:
+        value = json.loads(record)
+        entry_id = value["id"]
+        names = value["ids"]
+        paths = value["paths"]
+        if not isinstance(names, list) or not isinstance(paths, str):
+            return None
+        problems = {
+            code: [
+                Problem(entry_id, _path(path), message, None if first is None else _path(first))
+                for path, message, first in items
+            ]
+            for code, items in value["problems"].items()
+        }
+    except (ValueError, KeyError, TypeError):
+        return None  # unreadable record: a miss
+    if not isinstance(entry_id, str) or entry_id != file.stem:
+        return None
+    return SourceEntry(file, data, entry_id, names, problems, model_key, paths_text=paths)
+
+
+@dataclass
+class Build:
+    """A sources folder read for one command, with its cache (None: a cold build)."""
+
+    root: Path
+    meta: LexiconMeta
+    items: list[SourceEntry]
+    source_map: SourceMap
+    cache: BuildCache | None
+    fingerprint: str
+    load_errors: list[SourceError] = field(default_factory=list)
+    _lexicon: Lexicon | None = None
+    _all_ids: set[str] | None = None
+
+    # ---------------------------------------------------------------- the typed model
+
+    def lexicon(self) -> Lexicon:
+        """The whole typed lexicon (entries from the cache's JSON where it has them)."""
+        if self._lexicon is None:
+            missing = [item for item in self.items if item.parsed is None]
+            found = (
+                self.cache.get_many(MODEL_KIND, [item.model_key for item in missing])
+                if self.cache is not None and missing
+                else {}
+            )
+            fresh: dict[str, bytes] = {}
+            for item in missing:
+                record = found.get(item.model_key)
+                if record is not None:
+                    try:
+                        item.parsed = Entry.model_validate_json(record)
+                    except ValueError:
+                        item.parsed = None
+                if item.parsed is None or item.parsed.id != item.id:
+                    item.parsed = None
+                    fresh[item.model_key] = item.entry().model_dump_json().encode("utf-8")
+            if self.cache is not None and fresh:
+                self.cache.put_many(MODEL_KIND, fresh)
+            self._lexicon = Lexicon.model_construct(
+                meta=self.meta, entries=[item.entry() for item in self.items]
+            )
+        return self._lexicon
+
+    def loaded(self) -> LoadedLexicon:
+        return LoadedLexicon(self.lexicon(), self.source_map, self.root)
+
+    def all_ids(self) -> set[str]:
+        """``Lexicon.all_ids`` from the ids each entry holds."""
+        if self._all_ids is None:
+            found = set(self.meta.retired_ids)
+            for item in self.items:
+                found.update(item.names)
+            self._all_ids = found
+        return self._all_ids
+
+    # ---------------------------------------------------------------- check
+
+    def check(
+        self, *, select: Iterable[str] | None = None, ignore: Iterable[str] = ()
+    ) -> list[Finding]:
+        """``checks.check_lexicon`` over this build: the same findings, in the same order."""
+        chosen = choose_rules(select, ignore)
+        found: list[tuple[Any, list[Problem]]] = []
+        for rule in chosen:
+            if rule.find_ids is not None:
+                problems = []
+                if self._ids_repeat():  # such rules find nothing where no id repeats
+                    summaries = [(item.id, item.ids) for item in self.items]
+                    problems = list(rule.find_ids(self.meta, summaries))
+            else:
+                problems = meta_problems(self.meta, rule)
+                for item in self.items:
+                    problems += item.problems.get(rule.code, ())
+            found.append((rule, problems))
+        return located_findings(self.source_map, found)
+
+    def _ids_repeat(self) -> bool:
+        total = sum(len(item.names) for item in self.items)
+        return len(set().union(*(item.names for item in self.items))) != total
+
+    # ---------------------------------------------------------------- export
+
+    def written(
+        self, format_name: str, *, changes: Sequence[str] = (), meta: LexiconMeta | None = None
+    ) -> WrittenDocument | None:
+        """The TEI or LMF document in its parts, entries reused from the cache; None for a
+        format written from the whole typed lexicon (OntoLex-Lemon)."""
+        meta = meta or self.meta
+        corpora = ",".join(sorted({corpus.id for corpus in meta.corpora}))
+        if format_name == "tei":
+            from lexbuild.formats.tei import FRAGMENT_KIND, write_tei
+
+            self._keys(FRAGMENT_KIND, meta.language, corpora)
+            return write_tei(
+                meta, self.items, changes=changes, pool=self.all_ids(), cache=self.cache
+            )
+        if format_name == "lmf":
+            from lexbuild.formats.lmf import FRAGMENT_KIND as LMF_KIND
+            from lexbuild.formats.lmf import write_lmf
+
+            self._keys(LMF_KIND, meta.language)
+            return write_lmf(meta, self.items, pool=self.all_ids(), cache=self.cache)
+        return None
+
+    def _keys(self, kind: str, *context: str) -> None:
+        for item in self.items:
+            item.key = content_key(self.fingerprint, kind, item.digest, *context)
+
+    def write(
+        self,
+        output_format: OutputFormat,
+        *,
+        changes: Sequence[str] = (),
+        meta: LexiconMeta | None = None,
+    ) -> tuple[bytes, WrittenDocument | None]:
+        """The document's bytes, and its parts when it was written entry by entry."""
+        document = self.written(output_format.name, changes=changes, meta=meta)
+        if document is None:
+            lexicon = self.lexicon()
+            if meta is not None:
+                lexicon = lexicon.model_copy(update={"meta": meta})
+            return output_format.write(lexicon, changes), None
+        if output_format.name == "tei":
+            from lexbuild.formats.tei import _encoded
+
+            return _encoded(document), document
+        return document.data(), document
+
+    # ---------------------------------------------------------------- validate
+
+    def validate(
+        self,
+        output_format: OutputFormat,
+        data: bytes,
+        document: WrittenDocument | None,
+        context: ValidationContext,
+    ) -> list[XmlFinding]:
+        """``output_format.validate(data, context)``, reusing fragment verdicts (TEI, LMF)."""
+        if self.cache is None or document is None:
+            return output_format.validate(data, context)
+        from lexbuild.formats.validate import validate_written
+
+        return validate_written(
+            document,
+            output_format.name,
+            data=data,
+            cache=self.cache,
+            fingerprint=self.fingerprint,
+            schemas_dir=context.schemas_dir,
+            extra_schemas=context.extra_schemas,
+            name=context.name,
+            source_map=context.source_map,
+            base_dir=context.base_dir,
+        )
+
+
+def _paths_of(item: SourceEntry) -> Callable[[], list[tuple[str, FieldPath]]]:
+    return lambda: item.ids
+
+
+def open_build(
+    folder: str | Path,
+    *,
+    cache: BuildCache | None = None,
+    problems: list[SourceError] | None = None,
+) -> Build:
+    """Read a sources folder like ``sources.load_lexicon`` (same errors, same ``problems``),
+    taking each unchanged entry's results from ``cache``."""
+    root = Path(folder)
+    if not root.is_dir():
+        raise SourceError(f"sources folder not found: {root}", SourceLocation(str(root)))
+    source_map = SourceMap()
+    meta = load_meta(root, source_map)
+    meta_bytes = (root / META_FILE).read_bytes()
+    fingerprint = code_fingerprint()
+    files = entry_files(root)
+    contents = []
+    for path in files:
+        try:
+            contents.append(path.read_bytes())
+        except OSError:
+            contents.append(b"")  # the careful path below reports it
+    digests = [hashlib.sha256(data).hexdigest() for data in contents]
+    keys = [
+        content_key(fingerprint, ENTRY_KIND, path.name, digest, meta_bytes)
+        for path, digest in zip(files, digests, strict=True)
+    ]
+    found = cache.get_many(ENTRY_KIND, keys) if cache is not None else {}
+    reused: dict[int, SourceEntry] = {}
+    for index, (path, data, digest, key) in enumerate(
+        zip(files, contents, digests, keys, strict=True)
+    ):
+        record = found.get(key)
+        if record is not None:
+            model_key = content_key(fingerprint, MODEL_KIND, path.name, digest)
+            item = _from_record(path, data, record, model_key)
+            if item is not None:
+                item.digest = digest
+                reused[index] = item
+    missing = [index for index in range(len(files)) if index not in reused]
+    parsed = dict(
+        zip(missing, parse_all_bytes([(files[i], contents[i]) for i in missing]), strict=True)
+    )
+    items: list[SourceEntry] = []
+    fresh: dict[str, bytes] = {}
+    models: dict[str, bytes] = {}
+    for index, (path, data, digest, key) in enumerate(
+        zip(files, contents, digests, keys, strict=True)
+    ):
+        model_key = content_key(fingerprint, MODEL_KIND, path.name, digest)
+        item = reused.get(index)
+        if item is None:
+            try:
+                entry = load_entry_bytes(path, data, source_map, parsed[index])
+            except SourceError as error:
+                if problems is None:
+                    raise
+                problems.append(error)
+                continue
+            pairs = list(id_paths(entry))
+            item = SourceEntry(
+                path, data, entry.id, [name for name, _ in pairs], entry_problems(meta, entry),
+                model_key, entry, _ids=pairs,
+            )
+            item.digest = digest
+            fresh[key] = _record(item)
+            models[model_key] = entry.model_dump_json().encode("utf-8")
+        else:
+            source_map.add_entry_ids(item.id, str(path), item.names, _paths_of(item))
+        items.append(item)
+    if cache is not None and fresh:
+        cache.put_many(ENTRY_KIND, fresh)
+        cache.put_many(MODEL_KIND, models)
+    return Build(root, meta, items, source_map, cache, fingerprint, list(problems or []))
