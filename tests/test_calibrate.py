@@ -173,3 +173,32 @@ def test_sweep_equals_one_fit_per_threshold(exact_max: int) -> None:
         fitted = SenseClusterer(threshold=t, exact_max=exact_max, n_micro=30).fit(X).labels_
         np.testing.assert_array_equal(labels, fitted)
     assert len({len(set(labels.tolist())) for labels in swept}) > 1  # the cuts differ
+
+
+def test_a_per_verb_sample_with_corpus_frequencies_builds_the_same_pseudo_verbs(
+    occurrences: list[Occurrence], calibration: Calibration
+) -> None:
+    """``lexbuild calibrate`` reads the corpus into reservoirs of per_verb occurrences per verb
+    (memory constant in corpus size); with the corpus frequencies beside the sample, the
+    pseudo-verbs (matched by frequency) are those of the whole corpus, and the recommended
+    threshold still clears the floor measured on the whole corpus."""
+    from lexbuild.senses.reservoir import sample_corpus
+
+    sample = sample_corpus(occurrences, 80, 0)
+    held = [occ for _lemma, occs in sample.iter_samples() for occ in occs]
+    assert max(Counter(o.lemma for o in held).values()) == 80 < len(occurrences) // 20
+    from_sample = calibrate(
+        held, StaticSyntacticVectors(), counts=sample.counts, pairs=10, matched_pairs=5,
+        triples=3, per_verb=80, thresholds=SWEEP,
+    )
+    def verbs(c: Calibration) -> list[tuple[str, ...]]:
+        return [tuple(p["verbs"]) for p in c.pseudo_verbs]
+
+    assert verbs(from_sample) == verbs(calibration)
+    # Without the frequencies every frequent verb looks 80-frequent: other matched pairs.
+    flattened = calibrate(
+        held, StaticSyntacticVectors(), pairs=10, matched_pairs=5, triples=3, per_verb=80,
+        thresholds=SWEEP,
+    )
+    assert verbs(flattened) != verbs(calibration)
+    assert from_sample.recommended.ari >= ARI_FLOOR
