@@ -627,24 +627,3 @@ def test_results_come_back_in_task_order(local_executor: DaskExecutor) -> None:
 def _slow_square(n: int) -> int:
     time.sleep(0.05 * (12 - n) / 12)  # later tasks finish first
     return n * n
-
-
-def test_spilled_verbs_read_back_in_corpus_order(
-    ud_dir: Path, tmp_path: Path, monkeypatch: pytest.MonkeyPatch
-) -> None:
-    import lexbuild.corpus.sharded as sharded
-
-    monkeypatch.setattr(sharded, "_OPEN_FILES", 3)  # files closed and reopened on the way
-    corpus = [ud_dir / "fr_sequoia-ud-dev.conllu"]
-    spilled = sharded.spill_by_verb(
-        corpus, InProcessExecutor(), tmp_path / "spill", shard_bytes=100_000
-    )
-    expected = list(iter_occurrences(corpus))
-    assert spilled.shards > 3 and len(spilled.counts) > 100
-    assert [o.key for o in sharded.iter_spilled_in_corpus_order(spilled)] == [
-        o.key for o in expected
-    ]
-    for lemma in ("faire", "dire", "être"):
-        assert sharded.read_spilled(spilled.folder, lemma, spilled.shards_of[lemma]) == [
-            o for o in expected if o.lemma == lemma
-        ]

@@ -1,4 +1,4 @@
-"""Corpus passes run shard by shard on an executor: frame counts, and verbs spilled to disk.
+"""Corpus passes run shard by shard on an executor: frame counts.
 
 Obliques are admitted as in one process (``lexbuild.corpus.argumenthood``): with
 ``obliques="evidence"`` a first pass counts every shard's obliques on the workers
@@ -7,21 +7,16 @@ second pass; ``obliques="labels"`` trusts the treebank's labels in one pass.
 
 ``count_frames_sharded``: each shard's frame patterns are counted where it is read and the
 counts are added up in shard order, so the table is the one ``count_frames`` gives in one
-process. ``spill_by_verb``: each shard writes its verbs' occurrences to one file per verb in a
-spill folder (a folder every worker can reach), so that a verb's occurrences can later be read
-on their own without the corpus in memory; each file keeps the occurrences in corpus order.
+process. Induction reads shards with ``CorpusPass`` too (``lexbuild.senses.corpus_induction``).
 """
 
 from __future__ import annotations
 
-import hashlib
-import pickle
 import unicodedata
 from collections import Counter
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from dataclasses import dataclass, field, replace
 from pathlib import Path
-from typing import IO
 
 from lexbuild.corpus.argumenthood import Decision, ObliqueCounts, apply
 from lexbuild.corpus.occurrences import Occurrence, extract_occurrences, profile_for
@@ -34,10 +29,7 @@ from lexbuild.senses.executor import Executor
 __all__ = [
     "CorpusPass",
     "ShardCounts",
-    "SpilledVerbs",
     "count_frames_sharded",
-    "read_spilled",
-    "spill_by_verb",
 ]
 
 
@@ -50,7 +42,6 @@ class CorpusPass:
     lemmas: frozenset[str] | None = None
     on_error: str = "raise"
     include_auxiliaries: bool = False
-    spill: str | None = None  # spill_by_verb: the folder of this pass's per-verb files
     index: int = 0  # the shard's position in reading order
     decision: Decision | None = None  # obliques admitted by the corpus-level decision
 
@@ -124,7 +115,7 @@ def decide_obliques_sharded(
     jobs: Sequence[CorpusPass], executor: Executor
 ) -> Decision:
     """The argument/adjunct decision of the whole corpus, counted shard by shard."""
-    every_verb = [replace(job, lemmas=None, spill=None, decision=None) for job in jobs]
+    every_verb = [replace(job, lemmas=None, decision=None) for job in jobs]
     total = ObliqueCounts()
     for counts in executor.map(count_oblique_shard, every_verb):
         total = total + counts
@@ -140,14 +131,13 @@ def _jobs(
     on_error: str,
     include_auxiliaries: bool,
     obliques: str = "evidence",
-    spill: str | None = None,
     shard_bytes: int | None = None,
     on_decision: Callable[[Decision], None] | None = None,
 ) -> list[CorpusPass]:
     shards = plan_shards(paths, shard_bytes=shard_bytes or SHARD_BYTES)
     wanted = None if lemmas is None else frozenset(unicodedata.normalize("NFC", x) for x in lemmas)
     jobs = [
-        CorpusPass(shard, language, wanted, on_error, include_auxiliaries, spill, index)
+        CorpusPass(shard, language, wanted, on_error, include_auxiliaries, index)
         for index, shard in enumerate(shards)
     ]
     if obliques != "evidence":
@@ -208,134 +198,3 @@ def count_frames_sharded(
             for slots, frequency, _ in selected
         ]
     return table, stats, errors
-
-
-# ------------------------------------------------------------------------ verbs spilled to disk
-
-
-def _verb_file(folder: str, index: int, lemma: str) -> Path:
-    # A digest, not the lemma: a lemma may hold characters a file name cannot.
-    digest = hashlib.sha256(lemma.encode()).hexdigest()[:24]
-    return Path(folder) / f"{index:06d}" / f"{digest}.pkl"
-
-
-#: Per-verb files a shard task keeps open at once (well under the usual limit of 1024).
-_OPEN_FILES = 256
-
-
-@dataclass
-class SpilledShard:
-    counts: dict[str, int] = field(default_factory=dict)  # occurrences per lemma
-    errors: list[str] = field(default_factory=list)
-    failure: str | None = None
-
-
-def spill_shard(job: CorpusPass) -> SpilledShard:
-    """Write one shard's occurrences to one file per verb (a worker task).
-
-    Each record is (position in the shard, occurrence): the position restores corpus order
-    across verbs when a stage needs it (calibration).
-    """
-    assert job.spill is not None
-    result = SpilledShard()
-    errors: list[CorpusError] = []
-    handles: dict[str, IO[bytes]] = {}
-    folder = Path(job.spill) / f"{job.index:06d}"
-    folder.mkdir(parents=True, exist_ok=True)
-    try:
-        for position, occurrence in enumerate(job.occurrences(errors)):
-            lemma = occurrence.lemma
-            handle = handles.get(lemma)
-            if handle is None:
-                if len(handles) >= _OPEN_FILES:  # a shard may hold thousands of verbs
-                    for other in handles.values():
-                        other.close()
-                    handles.clear()
-                # Truncated when first met in this shard (a rerun), appended to afterwards.
-                path = _verb_file(job.spill, job.index, lemma)
-                handle = path.open("ab" if lemma in result.counts else "wb")
-                handles[lemma] = handle
-            pickle.dump((position, occurrence), handle, protocol=pickle.HIGHEST_PROTOCOL)
-            result.counts[lemma] = result.counts.get(lemma, 0) + 1
-    except CorpusError as error:
-        result.failure = str(error)
-    finally:
-        for handle in handles.values():
-            handle.close()
-    result.errors = [str(error) for error in errors]
-    return result
-
-
-@dataclass
-class SpilledVerbs:
-    """Where a corpus pass left its verbs: the folder, the shards, counts per lemma."""
-
-    folder: str
-    shards: int
-    counts: dict[str, int]  # lemma -> occurrences
-    shards_of: dict[str, list[int]]  # lemma -> shards holding it, in order
-    errors: list[str] = field(default_factory=list)
-
-
-def spill_by_verb(
-    paths: Iterable[str | Path],
-    executor: Executor,
-    folder: str | Path,
-    *,
-    language: str = "fr",
-    lemmas: Iterable[str] | None = None,
-    on_error: str = "raise",
-    include_auxiliaries: bool = False,
-    obliques: str = "evidence",
-    shard_bytes: int | None = None,
-    on_shard: Callable[[int], None] | None = None,
-) -> SpilledVerbs:
-    """One pass over the corpus, each shard's verbs spilled to ``folder`` (see module doc)."""
-    jobs = _jobs(
-        paths, executor, language=language, lemmas=lemmas, on_error=on_error,
-        include_auxiliaries=include_auxiliaries, obliques=obliques, spill=str(folder),
-        shard_bytes=shard_bytes,
-    )
-    counts: dict[str, int] = {}
-    shards_of: dict[str, list[int]] = {}
-    errors: list[str] = []
-    for index, spilled in enumerate(executor.map(spill_shard, jobs)):
-        if spilled.failure is not None:
-            raise CorpusError(spilled.failure)
-        for lemma, n in spilled.counts.items():
-            counts[lemma] = counts.get(lemma, 0) + n
-            shards_of.setdefault(lemma, []).append(index)
-        errors.extend(spilled.errors)
-        if on_shard is not None:
-            on_shard(1)
-    return SpilledVerbs(str(folder), len(jobs), counts, shards_of, errors)
-
-
-def _records(path: Path) -> Iterator[tuple[int, Occurrence]]:
-    with path.open("rb") as handle:
-        while True:
-            try:
-                yield pickle.load(handle)
-            except EOFError:
-                return
-
-
-def read_spilled(folder: str, lemma: str, shards: Sequence[int]) -> list[Occurrence]:
-    """One verb's occurrences, in corpus order."""
-    return [occ for index in shards for _, occ in _records(_verb_file(folder, index, lemma))]
-
-
-def iter_spilled_in_corpus_order(spilled: SpilledVerbs) -> Iterator[Occurrence]:
-    """Every spilled occurrence in corpus order (shard by shard; one shard in memory)."""
-    by_shard: dict[int, list[str]] = {}
-    for lemma, shards in spilled.shards_of.items():
-        for index in shards:
-            by_shard.setdefault(index, []).append(lemma)
-    for index in range(spilled.shards):
-        records = [
-            record
-            for lemma in by_shard.get(index, [])
-            for record in _records(_verb_file(spilled.folder, index, lemma))
-        ]
-        records.sort(key=lambda record: record[0])
-        yield from (occ for _, occ in records)
