@@ -208,18 +208,21 @@ def test_fast_loader_reads_what_ruamel_reads(scalar: str) -> None:
     # the same Python values, or the same entries would load differently by path.
     from lexbuild.lexicon.sources import _fast_load, _plain, _yaml
 
+    from lexbuild.lexicon.sources import _guarded_load
+
     text = f"value: {scalar}\n"
     expected = _plain(_yaml().load(text))
-    got = _fast_load(text)
-    assert type(got["value"]) is type(expected["value"])
-    if scalar == ".nan":
-        assert got["value"] != got["value"] and expected["value"] != expected["value"]
-    else:
-        assert got == expected
+    # the one-pass path (values built from the guard's events) must read the same too
+    for got in (_fast_load(text), _guarded_load(text, "<test>")):
+        assert type(got["value"]) is type(expected["value"])
+        if scalar == ".nan":
+            assert got["value"] != got["value"] and expected["value"] != expected["value"]
+        else:
+            assert got == expected
 
 
 def test_fast_loader_agrees_on_every_shipped_yaml_file(sample_lexicon_dir: Path) -> None:
-    from lexbuild.lexicon.sources import _fast_load, _plain, _yaml
+    from lexbuild.lexicon.sources import _fast_load, _guarded_load, _plain, _yaml
 
     files = [
         *sorted(sample_lexicon_dir.rglob("*.yaml")),
@@ -233,3 +236,18 @@ def test_fast_loader_agrees_on_every_shipped_yaml_file(sample_lexicon_dir: Path)
         except Exception:
             continue  # fixtures that are broken on purpose
         assert _fast_load(text) == expected, path
+        try:
+            one_pass = _guarded_load(text, str(path))
+        except SourceError:
+            continue  # refused by the guard on purpose (tests/test_sources_limits.py)
+        assert one_pass == expected, path
+        assert _types(one_pass) == _types(expected), path
+
+
+def _types(value: object) -> object:
+    """The value's shape with every scalar replaced by its type: 1 == True, 1.0 == 1."""
+    if isinstance(value, dict):
+        return {key: _types(item) for key, item in value.items()}
+    if isinstance(value, list):
+        return [_types(item) for item in value]
+    return type(value)
