@@ -206,9 +206,7 @@ TRICKY_SCALARS = [
 def test_fast_loader_reads_what_ruamel_reads(scalar: str) -> None:
     # Reference: ruamel.yaml's round-trip loader (YAML 1.2). The fast libyaml path must give
     # the same Python values, or the same entries would load differently by path.
-    from lexbuild.lexicon.sources import _fast_load, _plain, _yaml
-
-    from lexbuild.lexicon.sources import _guarded_load
+    from lexbuild.lexicon.sources import _fast_load, _guarded_load, _plain, _yaml
 
     text = f"value: {scalar}\n"
     expected = _plain(_yaml().load(text))
