@@ -33,8 +33,8 @@ process): the YAML load builds values from the guard's event stream instead of p
 file a second time, 3.42 -> 1.97 s (0.58x); the LMF pointer check walks the tree once instead
 of four '//' queries, 0.71 -> 0.16 s, whole LMF validation 1.29 -> 0.83 s. TEI RelaxNG
 validation (libxml2; 3.6 s CPU per 2,000 entries, linear in the entries, ~70% of the cold
-validation) is unchanged. The whole benchmark after them, on a machine far busier (load average 1.3 at the
-start, 4.6 at the end, other jobs on both cores; wall seconds 2.7x the CPU seconds):
+validation) is unchanged. The whole benchmark after them, on a machine far busier (load
+average 1.3 at the start, 4.6 at the end, other jobs on both cores; wall 2.7x CPU seconds):
 
     chain                          seconds  x cold    cpu s  x cold
     cold, no cache                  187.55   1.000    70.00   1.000
