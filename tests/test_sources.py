@@ -8,6 +8,8 @@ from pathlib import Path
 
 import jsonschema
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from ruamel.yaml import YAML
 
 from lexbuild.cli import main
@@ -249,3 +251,33 @@ def _types(value: object) -> object:
     if isinstance(value, list):
         return [_types(item) for item in value]
     return type(value)
+
+
+_YAML_SCALARS = st.one_of(
+    st.none(),
+    st.booleans(),
+    st.integers(min_value=-(10**12), max_value=10**12),
+    st.floats(allow_nan=False, width=32),
+    st.text(st.characters(codec="utf-8", exclude_categories=("Cs", "Cc")), max_size=12),
+    st.sampled_from(TRICKY_SCALARS),
+)
+_YAML_DOCUMENTS = st.recursive(
+    _YAML_SCALARS,
+    lambda inner: st.lists(inner, max_size=4)
+    | st.dictionaries(st.text("abcdéxyz_ 0123456789:-", min_size=1, max_size=8), inner, max_size=4),
+    max_leaves=20,
+)
+
+
+@settings(max_examples=150, deadline=None)
+@given(document=_YAML_DOCUMENTS)
+def test_one_pass_load_equals_the_libyaml_loader(document: object) -> None:
+    # Reference: PyYAML's libyaml loader with the core schema (_fast_load), itself checked
+    # against ruamel above. Text written by ruamel's dumper, as an editor's file would be.
+    from lexbuild.lexicon.sources import _dump, _fast_load, _guarded_load
+
+    text = _dump({"value": document})
+    expected = _fast_load(text)
+    got = _guarded_load(text, "<random>")
+    assert got == expected
+    assert _types(got) == _types(expected)
