@@ -8,6 +8,8 @@ from pathlib import Path
 
 import jsonschema
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from ruamel.yaml import YAML
 
 from lexbuild.cli import main
@@ -206,20 +208,21 @@ TRICKY_SCALARS = [
 def test_fast_loader_reads_what_ruamel_reads(scalar: str) -> None:
     # Reference: ruamel.yaml's round-trip loader (YAML 1.2). The fast libyaml path must give
     # the same Python values, or the same entries would load differently by path.
-    from lexbuild.lexicon.sources import _fast_load, _plain, _yaml
+    from lexbuild.lexicon.sources import _fast_load, _guarded_load, _plain, _yaml
 
     text = f"value: {scalar}\n"
     expected = _plain(_yaml().load(text))
-    got = _fast_load(text)
-    assert type(got["value"]) is type(expected["value"])
-    if scalar == ".nan":
-        assert got["value"] != got["value"] and expected["value"] != expected["value"]
-    else:
-        assert got == expected
+    # the one-pass path (values built from the guard's events) must read the same too
+    for got in (_fast_load(text), _guarded_load(text, "<test>")):
+        assert type(got["value"]) is type(expected["value"])
+        if scalar == ".nan":
+            assert got["value"] != got["value"] and expected["value"] != expected["value"]
+        else:
+            assert got == expected
 
 
 def test_fast_loader_agrees_on_every_shipped_yaml_file(sample_lexicon_dir: Path) -> None:
-    from lexbuild.lexicon.sources import _fast_load, _plain, _yaml
+    from lexbuild.lexicon.sources import _fast_load, _guarded_load, _plain, _yaml
 
     files = [
         *sorted(sample_lexicon_dir.rglob("*.yaml")),
@@ -233,3 +236,48 @@ def test_fast_loader_agrees_on_every_shipped_yaml_file(sample_lexicon_dir: Path)
         except Exception:
             continue  # fixtures that are broken on purpose
         assert _fast_load(text) == expected, path
+        try:
+            one_pass = _guarded_load(text, str(path))
+        except SourceError:
+            continue  # refused by the guard on purpose (tests/test_sources_limits.py)
+        assert one_pass == expected, path
+        assert _types(one_pass) == _types(expected), path
+
+
+def _types(value: object) -> object:
+    """The value's shape with every scalar replaced by its type: 1 == True, 1.0 == 1."""
+    if isinstance(value, dict):
+        return {key: _types(item) for key, item in value.items()}
+    if isinstance(value, list):
+        return [_types(item) for item in value]
+    return type(value)
+
+
+_YAML_SCALARS = st.one_of(
+    st.none(),
+    st.booleans(),
+    st.integers(min_value=-(10**12), max_value=10**12),
+    st.floats(allow_nan=False, width=32),
+    st.text(st.characters(codec="utf-8", exclude_categories=("Cs", "Cc")), max_size=12),
+    st.sampled_from(TRICKY_SCALARS),
+)
+_YAML_DOCUMENTS = st.recursive(
+    _YAML_SCALARS,
+    lambda inner: st.lists(inner, max_size=4)
+    | st.dictionaries(st.text("abcdéxyz_ 0123456789:-", min_size=1, max_size=8), inner, max_size=4),
+    max_leaves=20,
+)
+
+
+@settings(max_examples=150, deadline=None)
+@given(document=_YAML_DOCUMENTS)
+def test_one_pass_load_equals_the_libyaml_loader(document: object) -> None:
+    # Reference: PyYAML's libyaml loader with the core schema (_fast_load), itself checked
+    # against ruamel above. Text written by ruamel's dumper, as an editor's file would be.
+    from lexbuild.lexicon.sources import _dump, _fast_load, _guarded_load
+
+    text = _dump({"value": document})
+    expected = _fast_load(text)
+    got = _guarded_load(text, "<random>")
+    assert got == expected
+    assert _types(got) == _types(expected)

@@ -185,6 +185,20 @@ def test_dangling_pointers_are_found(tei_bytes: bytes, lmf_bytes: bytes, schemas
     findings = validate_bytes(data, schemas_dir=schemas_dir)
     assert [f.schema for f in findings] == ["lexbuild pointer check"]
     assert "douter.s2.f7" in findings[0].message
+    # An argument slot that names no SyntacticArgument, before a dangling frame pointer in the
+    # document: findings list the frame pointers first, then the slots (each in document order).
+    last = lmf_bytes.rindex(b'att="subcategorizationFrame" val="')
+    data = lmf_bytes[:last] + re.sub(
+        rb'(att="subcategorizationFrame" val=")[^"]*"', rb'\1douter.s2.f7"', lmf_bytes[last:],
+        count=1,
+    )
+    data = re.sub(
+        rb'(att="argumentPosition" val=")[^"=]*=', rb'\1agir.s1.f1.a9=', data, count=1
+    )
+    findings = validate_bytes(data, schemas_dir=schemas_dir)
+    assert [f.schema for f in findings] == ["lexbuild pointer check"] * 2
+    assert "douter.s2.f7" in findings[0].message and "agir.s1.f1.a9" in findings[1].message
+    assert findings[1].line < findings[0].line
 
 
 def test_lmf_duplicate_ids_found_by_the_dtd(lmf_bytes: bytes, schemas_dir: Path) -> None:
