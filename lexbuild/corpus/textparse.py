@@ -35,6 +35,8 @@ Labels (spaCy -> UD)
       lost, not mapped (a causee comes out as ``obj`` or ``obl:arg``).
     * ``ccomp`` with an adverbial subordinator (lorsque, puisque, parce que, comme ...) ->
       ``advcl``; so is a verb's ``xcomp``/``ccomp`` after pour, sans, après, avant, en.
+    * ``obj`` with a ``case`` dependent other than de/des/du (partitive articles the parser
+      sometimes labels case) -> plain ``obl``: a UD object has no preposition.
     * ``expl:subj`` on a subject that cannot be an expletive (feminine, plural, first or
       second person, French "on") -> ``nsubj``.
     * Lexical repairs (``lexical_repairs``, French closed classes written from memory):
@@ -175,6 +177,7 @@ _CLEARNLP = {
 _PREPOSITIONS = {"prep", "agent", "dative"}  # ClearNLP: heads of their noun (pobj)
 _CONTRACTIONS = {"fr": {"du": "de", "des": "de", "au": "à", "aux": "à"}}
 _VERBAL = {"VERB", "AUX"}
+_PARTITIVES = {"de", "d'", "du", "des", "of"}
 # Subordinators that introduce adverbial clauses only (French, English; from memory). Not
 # quand/when: they also introduce indirect questions ("je me demande quand"), a ccomp.
 _ADVERBIAL_MARKS = {
@@ -266,6 +269,14 @@ def ud_relations(
         )
         if subordinated or after_preposition:
             new_deps[k] = "advcl"
+    # An object never has a preposition (UD): one with a case child is an oblique. Not the
+    # French partitive/indefinite "de"/"des", which the parser sometimes labels case.
+    for k in range(n):
+        if new_deps[k] == "obj" and any(
+            new_heads[m] == k and new_deps[m] == "case" and words[m].lower() not in _PARTITIVES
+            for m in range(n)
+        ):
+            new_deps[k] = "obl"
     for k in range(n):
         if new_deps[k] == "pobj":  # an object of something that is not a preposition
             new_deps[k] = "obj"
