@@ -97,7 +97,9 @@ Agreement with gold trees (``benchmarks/parse_agreement.py``, measured once, 202
     lexical repairs and clauses after pour/sans/... as advcl (mapping version 6, same day): GSD
     test 0.632, slot F1 0.775 (P .803 / R .749); GSD dev 0.610, slot F1 0.768 (P .819 / R
     .723); Sequoia test 0.715, slot F1 0.832; ``fr_core_news_md`` on GSD test 0.687, slot F1
-    0.819 (README, "Arguments and adjuncts").
+    0.819 (README, "Arguments and adjuncts"). With subjects and conjuncts re-hung and obj with
+    case as obl (mapping version 7, same day): GSD test 0.633, slot F1 0.777 (P .804 / R
+    .751); GSD dev 0.612, slot F1 0.770 (P .820 / R .726).
 
     By relation (P / R / F1): nsubj .835/.765/.798, obj .740/.734/.737, obl:arg
     .398/.500/.443, obl:mod .474/.371/.416, xcomp .658/.670/.664, ccomp .622/.479/.541,
