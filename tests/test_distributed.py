@@ -627,3 +627,28 @@ def test_results_come_back_in_task_order(local_executor: DaskExecutor) -> None:
 def _slow_square(n: int) -> int:
     time.sleep(0.05 * (12 - n) / 12)  # later tasks finish first
     return n * n
+
+
+def test_shard_jobs_carry_only_the_read_verbs_verdicts(ud_dir: Path) -> None:
+    """A pass over some verbs ships only their oblique verdicts with each shard job: the
+    corpus-level decision travelled whole with every task and the Dask client kept the copies
+    (memory grew with the number of shards)."""
+    from lexbuild.senses.corpus_induction import _narrowed
+    from lexbuild.senses.distributed_induce import corpus_partitions
+
+    parts = corpus_partitions(
+        [ud_dir / "fr_gsd-ud-test.conllu"], InProcessExecutor(), shard_bytes=100_000
+    )
+    wanted = frozenset({"faire", "dire"})
+    narrowed = [_narrowed(part, wanted) for part in parts]
+    whole = parts[0].decision
+    assert whole is not None and {verb for verb, _slot in whole.verdicts} - wanted
+    assert all(job.decision is narrowed[0].decision for job in narrowed)  # shared, not copied
+    kept = narrowed[0].decision.verdicts
+    assert kept == {k: v for k, v in whole.verdicts.items() if k[0] in wanted} and kept
+    # The same occurrences of those verbs either way.
+    for part, job in zip(parts, narrowed, strict=True):
+        errors: list[Any] = []
+        assert [o for o in part.occurrences(errors) if o.lemma in wanted] == list(
+            job.occurrences(errors)
+        )

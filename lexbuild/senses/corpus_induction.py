@@ -87,12 +87,33 @@ def partition_occurrences(partition: Any, errors: list[CorpusError]) -> Iterator
 
 
 def _narrowed(partition: Any, lemmas: frozenset[str] | None) -> Any:
-    """A shard job that skips the sentences without a wanted verb (extraction is the cost)."""
+    """A shard job that skips the sentences without a wanted verb (extraction is the cost),
+    carrying only those verbs' oblique verdicts (the whole corpus's decision is far larger
+    than a task and would travel with every shard)."""
     if lemmas is None or not dataclasses.is_dataclass(partition) or not hasattr(
         partition, "lemmas"
     ):
         return partition
-    return dataclasses.replace(partition, lemmas=lemmas)  # type: ignore[type-var]
+    changes: dict[str, Any] = {"lemmas": lemmas}
+    decision = getattr(partition, "decision", None)
+    if decision is not None:
+        changes["decision"] = _decision_for(decision, lemmas)
+    return dataclasses.replace(partition, **changes)  # type: ignore[type-var]
+
+
+_NARROWED_DECISIONS: dict[tuple[int, frozenset[str]], Any] = {}
+
+
+def _decision_for(decision: Any, lemmas: frozenset[str]) -> Any:
+    """The decision restricted to ``lemmas`` (one object shared by every shard job)."""
+    key = (id(decision), lemmas)
+    cached = _NARROWED_DECISIONS.get(key)
+    if cached is None or cached[0] is not decision:
+        verdicts = {k: v for k, v in decision.verdicts.items() if k[0] in lemmas}
+        _NARROWED_DECISIONS.clear()  # one run's decision at a time
+        cached = _NARROWED_DECISIONS[key] = (decision, dataclasses.replace(decision,
+                                                                           verdicts=verdicts))
+    return cached[1]
 
 
 def _open_cache(cache: Cache) -> Any:
