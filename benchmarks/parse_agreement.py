@@ -88,7 +88,7 @@ from pathlib import Path
 
 from lexbuild.corpus.argumenthood import ObliqueCounts, apply
 from lexbuild.corpus.conllu import Sentence, iter_sentences
-from lexbuild.corpus.occurrences import Occurrence, extract_occurrences, profile_for
+from lexbuild.corpus.occurrences import Occurrence, extract_occurrences, profile_for, word_spans
 from lexbuild.corpus.textparse import DEFAULT_PIPELINE, doc_to_conllu, load_pipeline
 
 DEFAULT_GOLD = Path(__file__).resolve().parents[2] / "shared/corpora/ud/fr_gsd-ud-test.conllu"
@@ -159,21 +159,8 @@ def frame_agreement(gold: list[Occurrence], predicted: list[Occurrence]) -> tupl
 def word_starts(sentence: Sentence) -> list[int] | None:
     """First character of each syntactic word in the text (the words of a multiword token
     share its start); None when the forms cannot be found in the text in order."""
-    ranges = {first: (last, form) for first, last, form, _ in sentence.multiword}
-    starts: list[int] = []
-    position = index = 0
-    tokens, text = sentence.tokens, sentence.text
-    while index < len(tokens):
-        first = tokens[index].id
-        last, form = ranges.get(first, (first, tokens[index].form))
-        while position < len(text) and text[position].isspace():
-            position += 1
-        if not text.startswith(form, position):
-            return None
-        starts.extend([position] * (last - first + 1))
-        position += len(form)
-        index += last - first + 1
-    return starts if len(starts) == len(tokens) else None
+    spans = word_spans(sentence)
+    return None if spans is None else [start for start, _end in spans]
 
 
 @dataclass

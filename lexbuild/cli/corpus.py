@@ -6,7 +6,7 @@ import argparse
 import json
 import sys
 from collections.abc import Iterable, Iterator, Sequence
-from typing import TYPE_CHECKING, TextIO
+from typing import TYPE_CHECKING, Any, TextIO
 
 if TYPE_CHECKING:
     from lexbuild.corpus.argumenthood import Decision, Verdict
@@ -148,7 +148,6 @@ def _with_progress(
 
 
 def run_frames(args: argparse.Namespace) -> int:
-    from lexbuild._atomic import atomic_write_text
     from lexbuild.corpus.argumenthood import count_obliques
     from lexbuild.corpus.occurrences import iter_occurrences
     from lexbuild.corpus.valency import FrameThresholds, count_frames
@@ -194,6 +193,16 @@ def run_frames(args: argparse.Namespace) -> int:
     )
     table = count_frames(_with_progress(occurrences, stats), thresholds)
     explained = decision if args.explain else None
+    return _write_frames(args, table, stats, errors, thresholds, explained)
+
+
+def _write_frames(
+    args: argparse.Namespace, table: dict[str, list[FrameCount]], stats: Any,
+    errors: list[Any], thresholds: Any, explained: Decision | None,
+) -> int:
+    """The frames table (or the decision's TSV with --explain) to --output or stdout."""
+    from lexbuild._atomic import atomic_write_text
+
     if explained is not None and args.format == "tsv":
         text = format_decision_tsv(explained, set(table))
     else:
@@ -253,7 +262,6 @@ def _run_frames_distributed(args: argparse.Namespace, thresholds: FrameThreshold
     """``frames`` with shards of the corpus read on a Dask cluster (same output)."""
     from tqdm import tqdm
 
-    from lexbuild._atomic import atomic_write_text
     from lexbuild.corpus.conllu import resolve_paths
     from lexbuild.corpus.sharded import count_frames_sharded
     from lexbuild.distributed import executor_from_args
@@ -279,16 +287,7 @@ def _run_frames_distributed(args: argparse.Namespace, thresholds: FrameThreshold
             on_decision=decisions.append,
         )
     explained = decisions[0] if args.explain and decisions else None
-    if explained is not None and args.format == "tsv":
-        text = format_decision_tsv(explained, set(table))
-    else:
-        text = format_table(table, stats, args.format, len(errors), thresholds, explained)
-    if args.output:
-        atomic_write_text(args.output, text)
-    else:
-        sys.stdout.write(text)
-    _report_errors(errors, sys.stderr)
-    return 1 if errors else 0
+    return _write_frames(args, table, stats, errors, thresholds, explained)
 
 
 def format_table(

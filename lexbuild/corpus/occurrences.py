@@ -337,7 +337,7 @@ class _Tree:
         for index, token in enumerate(self.tokens):
             kids[token.head - 1 if 0 < token.head <= n else n].append(index)
         self.kids = kids
-        self.spans = _word_spans(sentence)
+        self.spans = word_spans(sentence)
         self._subtree: list[tuple[int, int]] | None = None
         self._first: dict[int, int] = {}
         self._implicit: dict[int, Slot] = {}
@@ -400,7 +400,7 @@ class _Tree:
         return result
 
 
-def _word_spans(sentence: Sentence) -> list[tuple[int, int]] | None:
+def word_spans(sentence: Sentence) -> list[tuple[int, int]] | None:
     """Character span of each word in the text, or None when the forms cannot be aligned."""
     text, tokens = sentence.text, sentence.tokens
     ranges = {first: (last, form) for first, last, form, _ in sentence.multiword}
