@@ -4,8 +4,11 @@ Usage:
     python benchmarks/bench_clustering.py [--sizes 2000,10000] [--dim 768] [--noise 1.0]
     python benchmarks/bench_clustering.py --real [--real-max 12000]
 
-Rows: ``exact`` (the upper-triangle float32 distance kernel), ``full-square`` (the same linkage
-over a condensed matrix cut from whole square blocks, as before: the accuracy and speed
+Rows: ``exact`` (the clusterer's exact path: rows split into the components of the graph of
+pairs within the cut unless one holds over 80% of them, each clustered on the upper-triangle
+float32 distance kernel), ``one tree`` (the same without the split: the cost on data that makes
+one large component, as real occurrence vectors do, see ``--real``), ``full-square`` (the same
+linkage over a condensed matrix cut from whole square blocks, as before: the accuracy and speed
 reference), ``two-stage`` and scikit-learn's ``AgglomerativeClustering``. ``--noise 1.0`` gives
 overlapping blobs, the hard case for the two-stage approximation; ``--refine-max`` forces the
 two-stage path to cut its tree at sizes where exact is still computable (``n/5`` is the share
@@ -42,8 +45,9 @@ from sklearn.metrics import adjusted_rand_score
 ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))  # this checkout's lexbuild, not an installed one
 
+from lexbuild.senses import agglomerative  # noqa: E402
+from lexbuild.senses.agglomerative import DEFAULT_THRESHOLDS, _linkage  # noqa: E402
 from lexbuild.senses.agglomerative import AgglomerativeClusterer as SenseClusterer  # noqa: E402
-from lexbuild.senses.agglomerative import _linkage  # noqa: E402
 from lexbuild.senses.clustering import normalise_rows  # noqa: E402
 
 UD_FILES = (
@@ -86,6 +90,17 @@ def _full_square_exact(X: np.ndarray, threshold: float) -> np.ndarray:
     Xn = normalise_rows(X)
     Z = _linkage(_full_square_condensed(Xn), "average")
     return np.asarray(fcluster(Z, t=threshold, criterion="distance"))
+
+
+def _one_tree_exact(X: np.ndarray, threshold: float) -> np.ndarray:
+    """The exact path without the split into components: what data with one large component
+    (real occurrence vectors, see ``--real``) costs."""
+    saved = agglomerative._SPLIT_MIN_ROWS
+    agglomerative._SPLIT_MIN_ROWS = X.shape[0] + 1
+    try:
+        return SenseClusterer(threshold=threshold, exact_max=X.shape[0], **NO_MERGE).fit(X).labels_
+    finally:
+        agglomerative._SPLIT_MIN_ROWS = saved
 
 
 def _float64_tree(X: np.ndarray) -> np.ndarray:
@@ -168,6 +183,17 @@ def run_real(args: argparse.Namespace, thresholds: list[float]) -> None:
             f"{adjusted_rand_score(square, labels):.4f}, vs float64 "
             f"{adjusted_rand_score(ref64, labels):.4f}"
         )
+    # Time where the rows make one large component (the split gives up at once).
+    cut = DEFAULT_THRESHOLDS["average"]
+    _, exact_s, exact_mib = _measure(SenseClusterer(threshold=cut, exact_max=n, **NO_MERGE).fit, X)
+    agg = AgglomerativeClustering(
+        n_clusters=None, metric="cosine", linkage="average", distance_threshold=cut
+    )
+    _, sk_s, sk_mib = _measure(agg.fit_predict, X)
+    print(
+        f"  time at t={cut}: exact {exact_s:.2f} s {exact_mib:.0f} MiB, scikit-learn "
+        f"{sk_s:.2f} s {sk_mib:.0f} MiB: exact x{sk_s / exact_s:.1f} faster; {_load()}"
+    )
     refine = args.refine_max or max(2, n // 5)
     print(f"pooled, two-stage forced (refine_max={refine}, n_micro={args.n_micro}):")
     for t, ke, ks, ari in fidelity(X, thresholds, refine, args.n_micro, args.random_state):
@@ -230,6 +256,7 @@ def main(argv: list[str] | None = None) -> None:
         if n <= args.exact_limit:
             m, t, mem = _measure(SenseClusterer(exact_max=n, **common).fit, X)
             rows["exact"] = (m.labels_, t, mem)
+            rows["one tree"] = _measure(_one_tree_exact, X, args.threshold)
             rows["full-square"] = _measure(_full_square_exact, X, args.threshold)
         m, t, mem = _measure(SenseClusterer(exact_max=1, **common, **two_stage).fit, X)
         rows["two-stage"] = (m.labels_, t, mem)

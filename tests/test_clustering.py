@@ -301,3 +301,54 @@ def test_one_blas_thread_inside_a_parallel_worker(monkeypatch: pytest.MonkeyPatc
     with clustering.blas_threads():
         assert blas() and set(blas()) == {1}
     assert blas() == outside
+
+
+@pytest.mark.parametrize(("cut", "k"), [(0.1, 14), (0.2, 5), (0.9, 1)])
+def test_threshold_components_are_the_single_linkage_clusters(
+    cut: float, k: int, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # Reference: scipy single linkage cut at t (fcluster "distance") gives the connected
+    # components of the graph of pairs within t. Small blocks make the joins span many blocks.
+    from lexbuild.senses import agglomerative
+
+    monkeypatch.setattr(agglomerative, "_BLOCK_ELEMENTS", 300)
+    X, _ = _blobs(30, 5, 16, 0.3, random_state=21)
+    Xn = (X / np.linalg.norm(X, axis=1, keepdims=True)).astype(np.float32)
+    expected = fcluster(linkage(pdist(Xn.astype(np.float64), "cosine"), "single"), t=cut,
+                        criterion="distance")
+    found = agglomerative.threshold_components(Xn, cut)
+    assert found is not None
+    assert adjusted_rand_score(expected, found) == 1.0
+    assert len(set(expected)) == k  # (k read from scipy: the low cuts really split)
+
+
+def test_threshold_components_give_up_on_one_large_component() -> None:
+    from lexbuild.senses.agglomerative import threshold_components
+
+    X, _ = _blobs(40, 2, 16, 0.1, random_state=22)
+    Xn = (X / np.linalg.norm(X, axis=1, keepdims=True)).astype(np.float32)
+    assert threshold_components(Xn, 1.9, largest_share=0.8) is None  # one component
+    split = threshold_components(Xn, 0.3, largest_share=0.8)  # two blobs of half each
+    assert split is not None and int(split.max()) == 1
+
+
+@pytest.mark.parametrize("random_state", [0, 1])
+@pytest.mark.parametrize("threshold", [0.3, 0.6, 1.0])
+def test_exact_path_split_into_components_equals_scipy_average(
+    random_state: int, threshold: float, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # Reference: scipy.cluster.hierarchy.linkage(pdist(X, "cosine"), "average") cut by
+    # fcluster; the exact path here splits the rows into components first (a few blobs, some
+    # overlapping at the higher cuts: at 0.3 they make 5-6 components, from 0.6 on one holds
+    # more than 80% and the path keeps one tree), fit and sweep alike.
+    from lexbuild.senses import agglomerative
+
+    monkeypatch.setattr(agglomerative, "_SPLIT_MIN_ROWS", 2)
+    X, _ = _blobs(40, 6, 16, 0.5, random_state=random_state)
+    expected = fcluster(linkage(pdist(X, "cosine"), "average"), t=threshold, criterion="distance")
+    model = SenseClusterer(threshold=threshold, **NO_MERGE)
+    assert adjusted_rand_score(expected, model.fit(X).labels_) == 1.0
+    low = fcluster(linkage(pdist(X, "cosine"), "average"), t=threshold / 2, criterion="distance")
+    swept = model.sweep(X, [threshold / 2, threshold])
+    assert adjusted_rand_score(low, swept[0]) == 1.0
+    assert adjusted_rand_score(expected, swept[1]) == 1.0

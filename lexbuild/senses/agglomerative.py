@@ -17,6 +17,8 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 from scipy.cluster.hierarchy import fcluster
+from scipy.sparse import coo_matrix
+from scipy.sparse.csgraph import connected_components
 
 from lexbuild.errors import InductionError
 from lexbuild.senses.clustering import (
@@ -38,6 +40,7 @@ __all__ = [
     "AgglomerativeClusterer",
     "condensed_cosine",
     "refinement_groups",
+    "threshold_components",
 ]
 
 IntArray = npt.NDArray[np.intp]
@@ -65,6 +68,15 @@ _PIECE_SHARE = 1.0
 # Rows of the similarity block computed at once: bounds the temporary to ~16 MB of float32
 # (at 20,000 rows the condensed float64 matrix alone is 1.49 GiB, so every MiB counts).
 _BLOCK_ELEMENTS = 4_000_000
+# The exact average-linkage path splits its rows into the components of the graph of pairs
+# within the cut (``threshold_components``) from this many rows on: below, one tree is cheap.
+_SPLIT_MIN_ROWS = 2000
+# ... and gives up splitting once one component holds more than this share of the rows: the
+# trees over the parts then save less than the pass that found them cost.
+_SPLIT_LARGEST_SHARE = 0.8
+# Pairs this far above the cut still join components: float32 products of unit rows round
+# differently in other block shapes (up to ~4e-7), and one join too many is always safe.
+_CUT_SLACK = 1e-5
 
 
 def condensed_cosine(Xn: npt.NDArray[np.float32]) -> npt.NDArray[np.float64]:
@@ -89,6 +101,87 @@ def condensed_cosine(Xn: npt.NDArray[np.float32]) -> npt.NDArray[np.float64]:
             out[off : off + n - i - 1] = d[i - start, i - start + 1 :]
         start = stop
     return out
+
+
+def threshold_components(
+    Xn: npt.NDArray[np.float32], cut: float, largest_share: float = 1.0
+) -> IntArray | None:
+    """Connected components of the graph joining rows at cosine distance <= ``cut``.
+
+    An average-linkage merge at height h joins two clusters whose mean pairwise distance is h,
+    so some pair across them lies within h: every cluster of the average-linkage tree cut at
+    ``cut`` lies inside one component (they are the single-linkage clusters at ``cut``), and
+    each component can be clustered alone. The similarity blocks are those of
+    ``condensed_cosine``, but only the joins between components found so far are kept, so
+    memory stays O(n + block). Returns None as soon as one component holds more than
+    ``largest_share`` of the rows.
+    """
+    n = Xn.shape[0]
+    # Rows in a fixed random order: the first blocks then sample every region, so a component
+    # too large to be worth splitting shows at once (rows often come sorted, e.g. by lemma).
+    order = np.random.default_rng(0).permutation(n)
+    Xn = Xn[order]
+    component = np.arange(n)
+    most = largest_share * n
+    min_similarity = np.float32(1.0 - cut - _CUT_SLACK)
+    start, rows_wanted = 0, 32  # small first blocks: a giant component costs little to find
+    while start < n:
+        stop = min(n, start + max(1, min(rows_wanted, _BLOCK_ELEMENTS // (n - start))))
+        rows_wanted *= 2
+        joining = Xn[start:stop] @ Xn[start:].T >= min_similarity
+        # Most close pairs already share a component: drop them before taking indices.
+        joining &= component[start:stop, None] != component[None, start:]
+        rows, cols = np.nonzero(joining)
+        if rows.size:
+            a, b = component[rows + start], component[cols + start]
+            joins = coo_matrix((np.ones(a.size, dtype=np.int8), (a, b)), shape=(n, n))
+            component = connected_components(joins, directed=False)[1][component]
+            if np.bincount(component).max() > most:
+                return None
+        start = stop
+    in_input_order = np.empty(n, dtype=np.intp)
+    in_input_order[order] = component
+    return relabel(in_input_order)
+
+
+class _Forest:
+    """Average-linkage trees of the parts of the rows, cut like one tree up to ``top``.
+
+    The parts are components of the graph of pairs within ``top`` (or all rows as one part):
+    the tree of all rows has no merge at or below ``top`` across two parts.
+    """
+
+    def __init__(
+        self,
+        parts: list[IntArray],
+        trees: list[npt.NDArray[np.float64] | None],
+        n: int,
+        top: float,
+    ) -> None:
+        self.parts = parts
+        self.trees = trees
+        self.n = n
+        self.top = top
+
+    def heights(self) -> npt.NDArray[np.float64]:
+        """Merge heights of all trees (those across parts, all above ``top``, are missing)."""
+        found = [t[:, 2] for t in self.trees if t is not None]
+        return np.concatenate(found) if found else np.empty(0)
+
+    def cut(self, t: float) -> IntArray:
+        """Labels of fcluster(tree, t, "distance") on the tree of all rows."""
+        if t > self.top:
+            raise ValueError(f"a forest split at {self.top} cannot be cut at {t}")
+        labels = np.empty(self.n, dtype=np.intp)
+        next_label = 0
+        for members, tree in zip(self.parts, self.trees, strict=True):
+            if tree is None:
+                sub = np.zeros(members.size, dtype=np.intp)
+            else:
+                sub = relabel(fcluster(tree, t=t, criterion="distance"))
+            labels[members] = next_label + sub
+            next_label += int(sub.max()) + 1
+        return relabel(labels)
 
 
 def _linkage(condensed: npt.NDArray[np.float64], method: str) -> npt.NDArray[np.float64]:
@@ -352,11 +445,8 @@ class AgglomerativeClusterer:
                 out.append(clone.fit(Xn).labels_)
             return out
         with blas_threads():
-            Z = self._tree(Xn)
-        return [
-            self._merge_small(Xn, relabel(fcluster(Z, t=t, criterion="distance")))
-            for t in cuts
-        ]
+            forest = self._forest(Xn, max(cuts))
+        return [self._merge_small(Xn, forest.cut(t)) for t in cuts]
 
     def get_params(self, deep: bool = True) -> dict[str, Any]:
         """Constructor parameters (scikit-learn convention)."""
@@ -380,9 +470,27 @@ class AgglomerativeClusterer:
             np.sqrt(condensed, out=condensed)
         return _linkage(condensed, self.linkage)
 
+    def _forest(self, Xn: npt.NDArray[np.float32], top: float) -> _Forest:
+        """The tree of the rows, as trees of the components within ``top`` where that pays.
+
+        Only average linkage splits: a Ward merge can join clusters with no pair within its
+        height (two far points around a third close to their midpoint).
+        """
+        n = Xn.shape[0]
+        component = None
+        if self.linkage == "average" and n >= _SPLIT_MIN_ROWS:
+            component = threshold_components(Xn, top, _SPLIT_LARGEST_SHARE)
+        if component is None:
+            whole = np.arange(n)
+            return _Forest([whole], [self._tree(Xn) if n >= 2 else None], n, np.inf)
+        order = np.argsort(component, kind="stable")
+        bounds = np.searchsorted(component[order], np.arange(int(component.max()) + 2))
+        parts = [order[bounds[c] : bounds[c + 1]] for c in range(bounds.size - 1)]
+        trees = [self._tree(Xn[members]) if members.size >= 2 else None for members in parts]
+        return _Forest(parts, trees, n, top)
+
     def _fit_exact(self, Xn: npt.NDArray[np.float32]) -> IntArray:
-        Z = self._tree(Xn)
-        return np.asarray(fcluster(Z, t=self.threshold, criterion="distance"), dtype=np.intp)
+        return self._forest(Xn, float(self.threshold)).cut(float(self.threshold))
 
     def _fit_two_stage(self, Xn: npt.NDArray[np.float32]) -> IntArray:
         """k-means micro-clusters, a tree over them, exact clustering inside its subtrees.
@@ -448,19 +556,17 @@ class AgglomerativeClusterer:
         order = np.argsort(group, kind="stable")
         bounds = np.searchsorted(group[order], np.arange(len(refine) + 1))
         members_of = [order[bounds[g] : bounds[g + 1]] for g in range(len(refine))]
-        trees = [
-            self._tree(Xn[members]) if exact and members.size >= 2 else None
+        top = float(self.threshold)
+        forests = [
+            self._forest(Xn[members], top) if exact and members.size >= 2 else None
             for members, exact in zip(members_of, refine, strict=True)
         ]
         rejoin = self.linkage == "average" and len(refine) > 1
-        cut = self._piece_height(trees, Xn.shape[0]) if rejoin else float(self.threshold)
+        cut = self._piece_height(forests, Xn.shape[0]) if rejoin else top
         labels = np.empty(Xn.shape[0], dtype=np.intp)
         next_label = 0
-        for members, tree_g in zip(members_of, trees, strict=True):
-            if tree_g is None:
-                sub = np.zeros(members.size, dtype=np.intp)
-            else:
-                sub = relabel(fcluster(tree_g, t=cut, criterion="distance"))
+        for members, forest in zip(members_of, forests, strict=True):
+            sub = np.zeros(members.size, dtype=np.intp) if forest is None else forest.cut(cut)
             labels[members] = next_label + sub
             next_label += int(sub.max()) + 1
         if not rejoin:
@@ -481,7 +587,7 @@ class AgglomerativeClusterer:
         spans = bool(np.any(first_group[joined] != group))
         return np.asarray(joined, dtype=np.intp), spans
 
-    def _piece_height(self, trees: list[npt.NDArray[np.float64] | None], n: int) -> float:
+    def _piece_height(self, forests: list[_Forest | None], n: int) -> float:
         """Height at which the subtrees are cut into pieces before they join again.
 
         A piece made inside one subtree is a node of the exact tree unless a point outside the
@@ -490,7 +596,8 @@ class AgglomerativeClusterer:
         float32 matrix takes as much memory as a refined subtree's condensed distances).
         """
         budget = max(1, int(self.refine_max * _PIECE_SHARE))
-        found = [t[:, 2] for t in trees if t is not None]
+        # Merges missing from split forests lie above the threshold, where the cut is clamped.
+        found = [f.heights() for f in forests if f is not None]
         heights = np.sort(np.concatenate(found)) if found else np.empty(0)
         unmerged = n - budget  # merges to apply before at most ``budget`` pieces remain
         if unmerged <= 0:
