@@ -228,21 +228,22 @@ def _group_average_merges(
     np.fill_diagonal(dist, np.inf)
     sizes = sizes.astype(np.float64).copy()
     node = np.arange(m)  # scipy id of the cluster held in each row
-    alive = np.ones(m, dtype=bool)
     nearest = np.argmin(dist, axis=1)
     nearest_dist = dist[np.arange(m), nearest]
     # A row whose nearest cluster merged keeps its old distance as a lower bound (average
     # linkage is reducible: a merged cluster is no nearer than the nearer of its parts) and is
     # rescanned only when it comes out on top, as in Muellner's generic algorithm.
     verified = np.ones(m, dtype=bool)
+    # inf for merged-away clusters, 0 otherwise: added to a row, it hides them (cheaper than
+    # writing inf down their columns).
+    gone = np.zeros(m, dtype=dist.dtype)
     done = 0
     for step in range(m - 1):
         while True:
             i = int(np.argmin(nearest_dist))
             if verified[i]:
                 break
-            row = dist[i].copy()
-            row[~alive] = np.inf
+            row = dist[i] + gone
             nearest[i] = int(np.argmin(row))
             nearest_dist[i] = row[nearest[i]]
             verified[i] = True
@@ -251,23 +252,27 @@ def _group_average_merges(
         if not height <= stop_above:
             break
         i, j = min(i, j), max(i, j)
-        ni, nj = sizes[i], sizes[j]
+        ni, nj = float(sizes[i]), float(sizes[j])
         merges[step] = (node[i], node[j], height, ni + nj)
         done = step + 1
-        merged = (ni * dist[i] + nj * dist[j]) / (ni + nj)
-        alive[j] = False
-        merged[~alive] = np.inf  # dead rows and columns are masked, never overwritten
+        # Python-float weights keep the row in float32.
+        merged = dist[i] * (ni / (ni + nj))
+        merged += dist[j] * (nj / (ni + nj))
+        gone[j] = np.inf
+        merged += gone
         merged[i] = np.inf
         dist[i, :] = merged
         dist[:, i] = merged  # the one strided write: rows rescanned later read column i
         sizes[i] = ni + nj
         node[i] = m + step
         nearest_dist[j] = np.inf
-        stale = ((nearest == i) | (nearest == j)) & alive
-        verified[stale] = False
-        closer = (merged < nearest_dist) & ~stale
-        nearest[closer] = i
-        nearest_dist[closer] = merged[closer]
+        stale = nearest == i
+        stale |= nearest == j
+        np.copyto(verified, False, where=stale)
+        closer = merged < nearest_dist
+        closer &= ~stale
+        np.copyto(nearest, i, where=closer)
+        np.copyto(nearest_dist, merged, where=closer)
         nearest[i] = int(np.argmin(merged))
         nearest_dist[i] = merged[nearest[i]]
         verified[i] = True
