@@ -71,8 +71,12 @@ slots that do not match, paired by the first character of their head word: gold 
 predicted slot ("-": none there; in brackets: a slot that is right as a slot, counted on another
 head), the N most frequent with an example.
 
+``--cache DIR`` keeps the pipeline's raw parses (spaCy ``DocBin``, keyed by the gold file,
+its size and the pipeline) in DIR and reuses them, so that a change to the mapping is measured
+without parsing again.
+
     python benchmarks/parse_agreement.py [GOLD.conllu] [--pipeline NAME] [--limit N]
-        [--obliques evidence|labels] [--errors N]
+        [--obliques evidence|labels] [--errors N] [--cache DIR]
 """
 
 from __future__ import annotations
@@ -85,11 +89,16 @@ import time
 from collections import Counter
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from lexbuild.corpus.argumenthood import ObliqueCounts, apply
 from lexbuild.corpus.conllu import Sentence, iter_sentences
 from lexbuild.corpus.occurrences import Occurrence, extract_occurrences, profile_for, word_spans
 from lexbuild.corpus.textparse import DEFAULT_PIPELINE, doc_to_conllu, load_pipeline
+
+if TYPE_CHECKING:
+    from spacy.language import Language
+    from spacy.tokens import Doc
 
 DEFAULT_GOLD = Path(__file__).resolve().parents[2] / "shared/corpora/ud/fr_gsd-ud-test.conllu"
 ARGUMENT_BASES = {"nsubj", "csubj", "obj", "iobj", "obl", "ccomp", "xcomp", "expl"}
@@ -267,6 +276,23 @@ def prf(matched: int, predicted: int, gold: int) -> tuple[float, float, float]:
     return precision, recall, f1
 
 
+def parsed_docs(nlp: Language, texts: list[str], gold: Path, cache: Path | None) -> list[Doc]:
+    """The pipeline's parses of the texts, from the cache folder when it has them."""
+    from spacy.tokens import DocBin
+
+    if cache is None:
+        return list(nlp.pipe(texts, batch_size=64))
+    meta = nlp.meta
+    key = f"{gold.name}-{gold.stat().st_size}-{len(texts)}-{meta['name']}-{meta['version']}"
+    path = cache / f"{key}.spacy"
+    if path.exists():
+        return list(DocBin().from_disk(path).get_docs(nlp.vocab))
+    docs = list(nlp.pipe(texts, batch_size=64))
+    cache.mkdir(parents=True, exist_ok=True)
+    DocBin(store_user_data=False, docs=docs).to_disk(path)
+    return docs
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("gold", nargs="?", type=Path, default=DEFAULT_GOLD)
@@ -275,6 +301,7 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--limit", type=int, default=0, help="first N sentences only")
     parser.add_argument("--obliques", choices=("evidence", "labels"), default="evidence")
     parser.add_argument("--errors", type=int, default=0, metavar="N", help="error analysis")
+    parser.add_argument("--cache", type=Path, help="folder for the raw parses (reused)")
     args = parser.parse_args(argv)
 
     gold = list(iter_sentences(args.gold))
@@ -282,7 +309,7 @@ def main(argv: list[str] | None = None) -> int:
         gold = gold[: args.limit]
     nlp = load_pipeline(args.pipeline)
     started = time.perf_counter()
-    docs = list(nlp.pipe((s.text for s in gold), batch_size=64))
+    docs = parsed_docs(nlp, [s.text for s in gold], args.gold, args.cache)
     seconds = time.perf_counter() - started
     chunks = [doc_to_conllu(doc, "pred", n, one_sentence=True)[0] for n, doc in enumerate(docs, 1)]
     with tempfile.TemporaryDirectory() as folder:
