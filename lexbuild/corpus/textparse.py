@@ -324,14 +324,26 @@ def verbal_upos(upos: Sequence[str], heads: Sequence[int], deps: Sequence[str]) 
     return retagged
 
 
-# Endings of French past participles (regular -é/-i/-u, and -t/-s of écrit, pris, ouvert, with
-# their feminine and plural; grammar-book knowledge, from memory).
+# Endings of French past participles (regular -é/-i/-u, and -t/-s of écrit, pris, clos, with
+# their feminine and plural; grammar-book knowledge, from memory) ...
 _PAST_PARTICIPLE_ENDINGS = {
     "fr": tuple(
-        stem + tail for stem in ("é", "i", "u", "û", "t", "s") for tail in ("", "e", "s", "es")
+        stem + tail
+        for stem in ("é", "i", "is", "u", "û", "t", "os")
+        for tail in ("", "e", "s", "es")
     ),
 }
-# Endings of present-tense and past-historic forms the tagger also reads as participles
+# ... of adjectives (-ique, -al, -el, -if, -ien, -ain, -eux, -able, -aire ...; same source),
+# which win over them ("historiques" ends like "vues") ...
+_ADJECTIVE_ENDINGS = {
+    "fr": tuple(
+        stem + tail
+        for stem in ("ique", "al", "el", "ien", "ain", "able", "ible", "aire", "ais", "if")
+        for tail in ("", "e", "s", "es", "le", "les", "ne", "nes")
+    )
+    + ("aux", "ive", "ives", "eux", "euse", "euses")
+}
+# ... and of present-tense and past-historic forms the tagger also reads as participles
 # ("innove", "assista", "pensez"): such a word is left a verb.
 _FINITE_LOOKING_ENDINGS = ("e", "a", "ez", "er")
 _NOUN_MODIFIER_RELATIONS = {"acl", "amod"}
@@ -350,17 +362,23 @@ def nonverbal_upos(
     that could be a finite verb ("innove", "assista") stays a verb; a language without a
     table of endings keeps its tags.
     """
-    endings = _PAST_PARTICIPLE_ENDINGS.get(language.split("-")[0].lower())
+    language = language.split("-")[0].lower()
+    endings = _PAST_PARTICIPLE_ENDINGS.get(language)
     retagged = list(upos)
     if endings is None:
         return retagged
+    adjectival = _ADJECTIVE_ENDINGS.get(language, ())
     for index, tag in enumerate(upos):
+        form = words[index].lower()
         if (
             tag == "VERB"
             and deps[index] in _NOUN_MODIFIER_RELATIONS
             and "VerbForm=Part" in feats[index]
             and "Tense=Past" in feats[index]
-            and not words[index].lower().endswith(endings + _FINITE_LOOKING_ENDINGS)
+            and (
+                form.endswith(adjectival)
+                or not form.endswith(endings + _FINITE_LOOKING_ENDINGS)
+            )
         ):
             retagged[index] = "ADJ"
     return retagged
