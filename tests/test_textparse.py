@@ -498,7 +498,8 @@ _LINKED = [  # "Ce chemin est lié à la légende du lac."
     ("Ce", "ce", "DET", "det", 1, "Gender=Masc|Number=Sing|PronType=Dem"),
     ("chemin", "chemin", "NOUN", "nsubj:pass", 3, "Gender=Masc|Number=Sing"),
     ("est", "être", "AUX", "aux:pass", 3, "Mood=Ind|Number=Sing|Person=3|Tense=Pres|VerbForm=Fin"),
-    ("lié", "lier", "VERB", "ROOT", 3, "Gender=Masc|Number=Sing|Tense=Past|VerbForm=Part|Voice=Pass"),
+    ("lié", "lier", "VERB", "ROOT", 3,
+     "Gender=Masc|Number=Sing|Tense=Past|VerbForm=Part|Voice=Pass"),
     ("à", "à", "ADP", "case", 6, ""),
     ("la", "le", "DET", "det", 6, "Definite=Def|Gender=Fem|Number=Sing|PronType=Art"),
     ("légende", "légende", "NOUN", "obl:arg", 3, "Gender=Fem|Number=Sing"),
@@ -572,7 +573,7 @@ def test_noun_modifier_without_a_participle_ending_is_an_adjective() -> None:
     # past participles end in -é, -i, -u, -t, -s (+ e, s; grammar-book knowledge, from
     # memory), so it is an adjective and no verb occurrence.
     words, _, upos, deps, heads, feats = (list(c) for c in zip(*_MORNING, strict=True))
-    ud_heads, ud_deps = ud_relations(words, upos, heads, deps, feats)
+    _, ud_deps = ud_relations(words, upos, heads, deps, feats)
     assert nonverbal_upos(words, upos, feats, ud_deps, "fr")[2] == "ADJ"
     # A real participle keeps its tag ("Les données publiées arrivent ..."), and so does a
     # form that could be a finite verb the tagger mislabelled ("innove").
@@ -588,9 +589,8 @@ def _occurrence(rows: list[tuple[str, str, str, str, int, str]], deps: list[str]
     """The frame lexbuild.corpus.occurrences extracts from the rows with these relations."""
     lines = ["# sent_id = t1", "# text = " + " ".join(row[0] for row in rows)]
     words = [row[0] for row in rows]
-    ud_heads, _ = ud_relations(
-        words, [r[2] for r in rows], [r[4] for r in rows], [r[3] for r in rows], [r[5] for r in rows]
-    )
+    upos, heads, labels, feats = ([r[i] for r in rows] for i in (2, 4, 3, 5))
+    ud_heads, _ = ud_relations(words, upos, heads, labels, feats)
     for index, row in enumerate(rows):
         lines.append(
             "\t".join(

@@ -336,12 +336,14 @@ _PAST_PARTICIPLE_ENDINGS = {
 # ... of adjectives (-ique, -al, -el, -if, -ien, -ain, -eux, -able, -aire ...; same source),
 # which win over them ("historiques" ends like "vues") ...
 _ADJECTIVE_ENDINGS = {
-    "fr": tuple(
-        stem + tail
-        for stem in ("ique", "al", "el", "ien", "ain", "able", "ible", "aire", "ais", "if")
-        for tail in ("", "e", "s", "es", "le", "les", "ne", "nes")
+    "fr": (
+        *(
+            stem + tail
+            for stem in ("ique", "al", "el", "ien", "ain", "able", "ible", "aire", "ais", "if")
+            for tail in ("", "e", "s", "es", "le", "les", "ne", "nes")
+        ),
+        *("aux", "ive", "ives", "eux", "euse", "euses"),
     )
-    + ("aux", "ive", "ives", "eux", "euse", "euses")
 }
 # ... and of present-tense and past-historic forms the tagger also reads as participles
 # ("innove", "assista", "pensez"): such a word is left a verb.
