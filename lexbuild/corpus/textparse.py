@@ -483,6 +483,52 @@ def verb_conjunct_repairs(
     return new_heads
 
 
+def participle_adjunct_repairs(
+    upos: Sequence[str], feats: Sequence[str], heads: Sequence[int], deps: Sequence[str]
+) -> tuple[list[int], list[str]]:
+    """Heads and relations with a bare past participle the parser makes an adverbial clause
+    re-hung as the modifier (``acl``) of the nearest noun before it (UD heads, 0-based).
+
+    UD attaches a participle phrase that describes a noun to that noun as ``acl`` ("une vie
+    culturelle active, surtout marquée par des festivals"); the small pipeline often hangs it
+    from the main verb as ``advcl``, and the verb then loses its passive reading (the noun is
+    its object, the "par" phrase its subject). Bare: no auxiliary, copula, subject or
+    subordinator of its own.
+    """
+    new_heads, new_deps = list(heads), list(deps)
+    children: list[set[str]] = [set() for _ in upos]
+    for index, head in enumerate(heads):
+        if head >= 0:
+            children[head].add(deps[index].split(":")[0])
+    for verb, head in enumerate(heads):
+        if (
+            deps[verb] != "advcl"
+            or upos[verb] != "VERB"
+            or "VerbForm=Part" not in feats[verb]
+            or "Tense=Past" not in feats[verb]
+            or children[verb] & {"aux", "cop", "nsubj", "csubj", "expl", "mark"}
+        ):
+            continue
+        nouns = [
+            k
+            for k in range(verb)
+            if upos[k] in ("NOUN", "PROPN") and not _descends(k, verb, new_heads)
+        ]
+        if nouns:
+            new_heads[verb], new_deps[verb] = nouns[-1], "acl"
+    return new_heads, new_deps
+
+
+def _descends(word: int, ancestor: int, heads: Sequence[int]) -> bool:
+    """Whether the word is in the ancestor's subtree (a cycle counts as not)."""
+    node, steps = word, 0
+    while node >= 0 and steps <= len(heads):
+        if node == ancestor:
+            return True
+        node, steps = heads[node], steps + 1
+    return False
+
+
 def _between_commas(word: int, heads: Sequence[int], upos: Sequence[str]) -> bool:
     """Whether the word's phrase has punctuation just before it and just after it."""
     span = {word}
@@ -881,6 +927,7 @@ def _sentence_lines(sent: Span, language: str) -> tuple[str, list[str]] | None:
     upos = nonverbal_upos(words, upos, feats, deps, language)
     heads, deps = nominal_root_repairs(upos, feats, heads, deps)
     heads = verb_conjunct_repairs(upos, feats, heads, deps)
+    heads, deps = participle_adjunct_repairs(upos, feats, heads, deps)
     deps = lexical_repairs(words, lemmas, upos, feats, heads, deps, language)
     deps = clause_repairs(words, lemmas, upos, feats, heads, deps, language)
     retagged = verbal_upos(upos, heads, deps)
