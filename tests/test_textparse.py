@@ -20,6 +20,7 @@ from lexbuild.corpus.textparse import (
     nominal_root_repairs,
     nonverbal_upos,
     parse_texts,
+    participle_adjunct_repairs,
     participle_feats,
     ud_relations,
     verb_conjunct_repairs,
@@ -585,12 +586,58 @@ def test_noun_modifier_without_a_participle_ending_is_an_adjective() -> None:
     assert nonverbal_upos(words, upos, feats, ud_deps, "xx")[2] == "VERB"
 
 
-def _occurrence(rows: list[tuple[str, str, str, str, int, str]], deps: list[str]) -> str:
-    """The frame lexbuild.corpus.occurrences extracts from the rows with these relations."""
+_FEAST = [  # "Le village a gardé une fête ancienne, surtout animée par les jeunes."
+    ("Le", "le", "DET", "det", 1, "Definite=Def|Gender=Masc|Number=Sing|PronType=Art"),
+    ("village", "village", "NOUN", "nsubj", 3, "Gender=Masc|Number=Sing"),
+    ("a", "avoir", "AUX", "aux:tense", 3, "Mood=Ind|Number=Sing|Person=3|Tense=Pres|VerbForm=Fin"),
+    ("gardé", "garder", "VERB", "ROOT", 3, "Gender=Masc|Number=Sing|Tense=Past|VerbForm=Part"),
+    ("une", "un", "DET", "det", 5, "Definite=Ind|Gender=Fem|Number=Sing|PronType=Art"),
+    ("fête", "fête", "NOUN", "obj", 3, "Gender=Fem|Number=Sing"),
+    ("ancienne", "ancien", "ADJ", "amod", 5, "Gender=Fem|Number=Sing"),
+    (",", ",", "PUNCT", "punct", 3, ""),
+    ("surtout", "surtout", "ADV", "advmod", 9, ""),
+    ("animée", "animer", "VERB", "advcl", 3, "Gender=Fem|Number=Sing|Tense=Past|VerbForm=Part"),
+    ("par", "par", "ADP", "case", 12, ""),
+    ("les", "le", "DET", "det", 12, "Definite=Def|Number=Plur|PronType=Art"),
+    ("jeunes", "jeune", "NOUN", "obl:agent", 9, "Number=Plur"),
+    (".", ".", "PUNCT", "punct", 3, ""),
+]  # fmt: skip
+
+
+def test_participle_adjunct_modifies_the_noun_before_it() -> None:
+    # UD (universaldependencies.org/u/dep/acl.html, from memory): a participle phrase that
+    # describes a noun is its acl. The small pipeline hangs "animée" from "gardé" as advcl
+    # (observed), so "animer" had no passive reading: no object, and "par les jeunes" no
+    # subject. Re-hung, the noun is its object and the agent its subject.
+    words, _, upos, deps, heads, feats = (list(c) for c in zip(*_FEAST, strict=True))
+    ud_heads, ud_deps = ud_relations(words, upos, heads, deps, feats)
+    assert _occurrence(_FEAST, ud_deps, ud_heads, verb=9) == "subj:NP"
+    new_heads, new_deps = participle_adjunct_repairs(upos, feats, ud_heads, ud_deps)
+    assert (new_heads[9], new_deps[9]) == (5, "acl")
+    assert _occurrence(_FEAST, new_deps, new_heads, verb=9) == "subj:NP obj:NP"
+    # A participle with its own auxiliary is a clause of its own ("ayant été animée"), and
+    # one with no noun before it has nothing to modify: both stay.
+    with_aux = list(ud_deps)
+    with_aux[8] = "aux"
+    assert participle_adjunct_repairs(upos, feats, ud_heads, with_aux)[1][9] == "advcl"
+    nounless = ["PROPN" if tag == "NOUN" else tag for tag in upos]
+    nounless = ["X" if tag == "PROPN" else tag for tag in nounless]
+    assert participle_adjunct_repairs(nounless, feats, ud_heads, ud_deps)[1][9] == "advcl"
+
+
+def _occurrence(
+    rows: list[tuple[str, str, str, str, int, str]],
+    deps: list[str],
+    ud_heads: list[int] | None = None,
+    verb: int | None = None,
+) -> str:
+    """The frame lexbuild.corpus.occurrences extracts for the verb (default: the root) from
+    the rows with these relations (and UD heads, default: the mapped ones)."""
     lines = ["# sent_id = t1", "# text = " + " ".join(row[0] for row in rows)]
     words = [row[0] for row in rows]
     upos, heads, labels, feats = ([r[i] for r in rows] for i in (2, 4, 3, 5))
-    ud_heads, _ = ud_relations(words, upos, heads, labels, feats)
+    if ud_heads is None:
+        ud_heads = ud_relations(words, upos, heads, labels, feats)[0]
     for index, row in enumerate(rows):
         lines.append(
             "\t".join(
@@ -602,7 +649,8 @@ def _occurrence(rows: list[tuple[str, str, str, str, int, str]], deps: list[str]
         path = Path(folder) / "t.conllu"
         path.write_text("\n".join(lines) + "\n\n", encoding="utf-8")
         sentence = read_sentences(path)[0]
-    verbs = [o for o in extract_occurrences(sentence, profile_for("fr")) if o.token == _root(rows)]
+    wanted = _root(rows) if verb is None else verb
+    verbs = [o for o in extract_occurrences(sentence, profile_for("fr")) if o.token == wanted]
     return verbs[0].frame
 
 
