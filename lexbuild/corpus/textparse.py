@@ -377,10 +377,7 @@ def nonverbal_upos(
             and deps[index] in _NOUN_MODIFIER_RELATIONS
             and "VerbForm=Part" in feats[index]
             and "Tense=Past" in feats[index]
-            and (
-                form.endswith(adjectival)
-                or not form.endswith(endings + _FINITE_LOOKING_ENDINGS)
-            )
+            and (form.endswith(adjectival) or not form.endswith(endings + _FINITE_LOOKING_ENDINGS))
         ):
             retagged[index] = "ADJ"
     return retagged
@@ -500,7 +497,7 @@ def participle_adjunct_repairs(
     for index, head in enumerate(heads):
         if head >= 0:
             children[head].add(deps[index].split(":")[0])
-    for verb, head in enumerate(heads):
+    for verb in range(len(heads)):
         if (
             deps[verb] != "advcl"
             or upos[verb] != "VERB"
@@ -516,6 +513,71 @@ def participle_adjunct_repairs(
         ]
         if nouns:
             new_heads[verb], new_deps[verb] = nouns[-1], "acl"
+    return new_heads, new_deps
+
+
+# Relations by which the parser hangs a clause's subject inside the phrase before it ("Au
+# second tour J. Chirac dépassait", "Couche par couche, Morin arrange").
+_BURIED_SUBJECT_RELATIONS = {"nmod", "amod", "conj", "appos", "flat", "flat:name", "nummod"}
+_SUBJECT_BASES = {"nsubj", "csubj", "expl"}
+
+
+def buried_subject_repairs(
+    words: Sequence[str],
+    upos: Sequence[str],
+    feats: Sequence[str],
+    heads: Sequence[int],
+    deps: Sequence[str],
+) -> tuple[list[int], list[str]]:
+    """Heads and relations with the subject of a finite main verb that has none dug out of the
+    phrase before it (UD heads, 0-based, -1 root).
+
+    The nearest noun (or capitalised word read as an adjective) before the verb that heads no
+    preposition, hangs inside a fronted phrase (as its nmod, amod, conj, appos or flat part),
+    heads nothing only a verb takes and agrees in number with the verb becomes its ``nsubj`` (``nsubj:pass`` beside a passive
+    auxiliary); a proper name's flat parts move with their head. Imperatives, and verbs
+    under a subordinator, are left alone.
+    """
+    new_heads, new_deps = list(heads), list(deps)
+    n = len(upos)
+    kids: list[list[int]] = [[] for _ in range(n)]
+    for index, head in enumerate(heads):
+        if head >= 0:
+            kids[head].append(index)
+    for verb in range(n):
+        if upos[verb] != "VERB" or deps[verb] not in ("root", "conj", "parataxis"):
+            continue
+        if deps[verb] == "conj" and heads[verb] >= 0 and upos[heads[verb]] in _VERBAL:
+            continue  # shares its first conjunct's subject
+        relations = {deps[k].split(":")[0] for k in kids[verb]}
+        if relations & (_SUBJECT_BASES | {"mark"}) or "Mood=Imp" in feats[verb]:
+            continue
+        tensed = [k for k in (verb, *kids[verb]) if "VerbForm=Fin" in feats[k]]
+        if not tensed or (tensed[0] != verb and not deps[tensed[0]].startswith("aux")):
+            continue
+        number = _feature(feats[tensed[0]], "Number")
+        candidate = -1
+        for k in range(verb - 1, -1, -1):
+            if upos[k] in _VERBAL:
+                break  # another clause: its nouns are its own
+            # A capitalised "adjective" inside the sentence is a name the tagger missed.
+            if upos[k] in ("NOUN", "PROPN") or (upos[k] == "ADJ" and words[k][:1].isupper()):
+                candidate = k
+                break
+        if candidate < 0:
+            continue
+        while deps[candidate].startswith("flat") and 0 <= heads[candidate] < candidate:
+            candidate = heads[candidate]
+        if (
+            deps[candidate] not in _BURIED_SUBJECT_RELATIONS
+            or any(deps[k] == "case" or deps[k] in _VERB_ONLY_DEPENDENTS for k in kids[candidate])
+            or _descends(verb, candidate, new_heads)
+            or (number and _feature(feats[candidate], "Number") not in ("", number))
+        ):
+            continue
+        new_heads[candidate] = verb
+        passive = any(deps[k] == "aux:pass" for k in kids[verb])
+        new_deps[candidate] = "nsubj:pass" if passive else "nsubj"
     return new_heads, new_deps
 
 
@@ -928,6 +990,7 @@ def _sentence_lines(sent: Span, language: str) -> tuple[str, list[str]] | None:
     heads, deps = nominal_root_repairs(upos, feats, heads, deps)
     heads = verb_conjunct_repairs(upos, feats, heads, deps)
     heads, deps = participle_adjunct_repairs(upos, feats, heads, deps)
+    heads, deps = buried_subject_repairs(words, upos, feats, heads, deps)
     deps = lexical_repairs(words, lemmas, upos, feats, heads, deps, language)
     deps = clause_repairs(words, lemmas, upos, feats, heads, deps, language)
     retagged = verbal_upos(upos, heads, deps)
