@@ -534,9 +534,9 @@ def buried_subject_repairs(
 
     The nearest noun (or capitalised word read as an adjective) before the verb that heads no
     preposition, hangs inside a fronted phrase (as its nmod, amod, conj, appos or flat part),
-    heads nothing only a verb takes and agrees in number with the verb becomes its ``nsubj`` (``nsubj:pass`` beside a passive
-    auxiliary); a proper name's flat parts move with their head. Imperatives, and verbs
-    under a subordinator, are left alone.
+    heads nothing only a verb takes and agrees in number with the verb becomes its
+    ``nsubj`` (``nsubj:pass`` beside a passive auxiliary); a proper name's flat parts move
+    with their head. Imperatives, and verbs under a subordinator, are left alone.
     """
     new_heads, new_deps = list(heads), list(deps)
     n = len(upos)
