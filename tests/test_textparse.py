@@ -14,6 +14,7 @@ from hypothesis import strategies as st
 from lexbuild.corpus.conllu import read_sentences
 from lexbuild.corpus.occurrences import extract_occurrences, iter_occurrences, profile_for
 from lexbuild.corpus.textparse import (
+    buried_subject_repairs,
     clause_repairs,
     lexical_repairs,
     load_pipeline,
@@ -623,6 +624,39 @@ def test_participle_adjunct_modifies_the_noun_before_it() -> None:
     nounless = ["PROPN" if tag == "NOUN" else tag for tag in upos]
     nounless = ["X" if tag == "PROPN" else tag for tag in nounless]
     assert participle_adjunct_repairs(nounless, feats, ud_heads, ud_deps)[1][9] == "advcl"
+
+
+_IN_FACT = [  # "En effet Bastien avait quitté la ferme."
+    ("En", "en", "ADP", "case", 1, ""),
+    ("effet", "effet", "NOUN", "obl:mod", 4, "Gender=Masc|Number=Sing"),
+    ("Bastien", "bastien", "ADJ", "nmod", 1, "Gender=Masc|Number=Sing"),
+    ("avait", "avoir", "AUX", "aux:tense", 4,
+     "Mood=Ind|Number=Sing|Person=3|Tense=Imp|VerbForm=Fin"),
+    ("quitté", "quitter", "VERB", "ROOT", 4, "Gender=Masc|Number=Sing|Tense=Past|VerbForm=Part"),
+    ("la", "le", "DET", "det", 6, "Definite=Def|Gender=Fem|Number=Sing|PronType=Art"),
+    ("ferme", "ferme", "NOUN", "obj", 4, "Gender=Masc|Number=Sing"),
+    (".", ".", "PUNCT", "punct", 4, ""),
+]  # fmt: skip
+
+
+def test_subject_hung_inside_the_phrase_before_its_verb() -> None:
+    # A finite clause has a subject (UD: nsubj) unless imperative; the small pipeline hangs
+    # "Bastien" from "effet" (observed) and "quitter" had no subject word.
+    words, _, upos, deps, heads, feats = (list(c) for c in zip(*_IN_FACT, strict=True))
+    ud_heads, ud_deps = ud_relations(words, upos, heads, deps, feats)
+    new_heads, new_deps = buried_subject_repairs(words, upos, feats, ud_heads, ud_deps)
+    assert (new_heads[2], new_deps[2]) == (4, "nsubj")
+    assert _occurrence(_IN_FACT, new_deps, new_heads) == "subj:NP obj:NP"
+    # Left alone: a verb with a subject, an imperative, and a candidate in the wrong number.
+    with_subject = list(ud_deps)
+    with_subject[6] = "nsubj"
+    assert buried_subject_repairs(words, upos, feats, ud_heads, with_subject)[1][2] == "nmod"
+    imperative = list(feats)
+    imperative[4] = imperative[3] = "Mood=Imp|VerbForm=Fin"
+    assert buried_subject_repairs(words, upos, imperative, ud_heads, ud_deps)[1][2] == "nmod"
+    plural = list(feats)
+    plural[2] = "Number=Plur"
+    assert buried_subject_repairs(words, upos, plural, ud_heads, ud_deps)[1][2] == "nmod"
 
 
 def _occurrence(

@@ -558,6 +558,8 @@ def buried_subject_repairs(
         number = _feature(feats[tensed[0]], "Number")
         candidate = -1
         for k in range(verb - 1, -1, -1):
+            if heads[k] == verb and deps[k].startswith(("aux", "expl", "obj", "iobj")):
+                continue  # the verb's own auxiliaries and clitics
             if upos[k] in _VERBAL:
                 break  # another clause: its nouns are its own
             # A capitalised "adjective" inside the sentence is a name the tagger missed.
