@@ -66,8 +66,8 @@ Labels (spaCy -> UD)
       ``buried_subject_repairs``, ``clause_repairs``): a noun modifier tagged ``VERB`` with
       ``VerbForm=Part|Tense=Past`` whose form is no French past participle, or ends like an
       adjective ("royal", "météorologiques") -> ``ADJ``; a bare past participle attached as
-      ``advcl`` -> ``acl`` of the nearest noun before it ("une vie culturelle, surtout marquée
-      par des festivals"); a finite main verb without subject takes as ``nsubj`` the noun the
+      ``advcl`` -> ``acl`` of the nearest noun before it ("une fête ancienne, surtout animée
+      par les jeunes"); a finite main verb without subject takes as ``nsubj`` the noun the
       parser hung inside the phrase before it ("En effet Bastien avait quitté ..."); a bare
       time noun (fois, semaine, dimanche, matin ...) as ``obj`` -> ``obl:mod``; an oblique with
       "par" under a passive -> ``obl:agent``; être as ``aux:pass`` of a stative participle
@@ -498,8 +498,8 @@ def participle_adjunct_repairs(
     """Heads and relations with a bare past participle the parser makes an adverbial clause
     re-hung as the modifier (``acl``) of the nearest noun before it (UD heads, 0-based).
 
-    UD attaches a participle phrase that describes a noun to that noun as ``acl`` ("une vie
-    culturelle active, surtout marquée par des festivals"); the small pipeline often hangs it
+    UD attaches a participle phrase that describes a noun to that noun as ``acl`` ("le village
+    a gardé une fête ancienne, surtout animée par les jeunes"); the small pipeline often hangs it
     from the main verb as ``advcl``, and the verb then loses its passive reading (the noun is
     its object, the "par" phrase its subject). Bare: no auxiliary, copula, subject or
     subordinator of its own.
@@ -528,8 +528,8 @@ def participle_adjunct_repairs(
     return new_heads, new_deps
 
 
-# Relations by which the parser hangs a clause's subject inside the phrase before it ("Au
-# second tour J. Chirac dépassait", "Couche par couche, Morin arrange").
+# Relations by which the parser hangs a clause's subject inside the phrase before it ("En
+# effet Bastien avait quitté la ferme", with "Bastien" under "effet").
 _BURIED_SUBJECT_RELATIONS = {"nmod", "amod", "conj", "appos", "flat", "flat:name", "nummod"}
 _SUBJECT_BASES = {"nsubj", "csubj", "expl"}
 
@@ -675,11 +675,9 @@ class _Lexicon:
     # The agent preposition of the passive (French "par").
     agent_preposition: str = ""
     # Verbs whose participle after the passive auxiliary names a state, not an event ("la
-    # commune est située dans", "ils sont liés à"): UD French makes être their copula.
+    # ferme est située dans la vallée", "ce chemin est lié à la légende"): UD French makes
+    # être their copula (the list: the verbs GSD dev annotates so).
     stative_participles: frozenset[str] = frozenset()
-    # The complementiser that doubles as the object relative pronoun ("les fleurs que
-    # guettent les photographes").
-    relative_object: frozenset[str] = frozenset()
 
 
 def _forms(text: str) -> frozenset[str]:
@@ -718,7 +716,6 @@ _LEXICONS = {
         ),
         agent_preposition="par",
         stative_participles=_forms("situer relier lier séparer opposer"),
-        relative_object=_forms("que qu'"),
     ),
 }
 _CLAUSAL = {"ccomp", "xcomp", "csubj", "dep"}
