@@ -657,6 +657,16 @@ def test_subject_hung_inside_the_phrase_before_its_verb() -> None:
     plural = list(feats)
     plural[2] = "Number=Plur"
     assert buried_subject_repairs(words, upos, plural, ud_heads, ud_deps)[1][2] == "nmod"
+    # Nor does a noun inside a quotation before the verb ("« ... Bastien », dit-elle").
+    quoted_words, quoted_upos, quoted_deps = list(words), list(upos), list(ud_deps)
+    quoted_words[3], quoted_upos[3], quoted_deps[3] = "»", "PUNCT", "punct"
+    finite = list(feats)
+    finite[4] = "Mood=Ind|Number=Sing|Person=3|Tense=Imp|VerbForm=Fin"
+    repaired = buried_subject_repairs(quoted_words, quoted_upos, finite, ud_heads, quoted_deps)
+    assert repaired[1][2] == "nmod"
+    quoted_words[3] = ","  # the same sentence with a comma there: the subject is found
+    repaired = buried_subject_repairs(quoted_words, quoted_upos, finite, ud_heads, quoted_deps)
+    assert repaired[1][2] == "nsubj"
 
 
 def _occurrence(

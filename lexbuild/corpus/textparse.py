@@ -532,6 +532,7 @@ def participle_adjunct_repairs(
 # effet Bastien avait quitté la ferme", with "Bastien" under "effet").
 _BURIED_SUBJECT_RELATIONS = {"nmod", "amod", "conj", "appos", "flat", "flat:name", "nummod"}
 _SUBJECT_BASES = {"nsubj", "csubj", "expl"}
+_QUOTES = {"«", "»", '"', "“", "”"}
 
 
 def buried_subject_repairs(
@@ -572,8 +573,8 @@ def buried_subject_repairs(
         for k in range(verb - 1, -1, -1):
             if heads[k] == verb and deps[k].startswith(("aux", "expl", "obj", "iobj")):
                 continue  # the verb's own auxiliaries and clitics
-            if upos[k] in _VERBAL:
-                break  # another clause: its nouns are its own
+            if upos[k] in _VERBAL or words[k] in _QUOTES:
+                break  # another clause, or a quotation: their nouns are their own
             # A capitalised "adjective" inside the sentence is a name the tagger missed.
             if upos[k] in ("NOUN", "PROPN") or (upos[k] == "ADJ" and words[k][:1].isupper()):
                 candidate = k
