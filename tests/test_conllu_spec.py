@@ -86,6 +86,14 @@ MALFORMED = [
         2,
         "LEMMA contains the control character",
     ),
+    # A lone carriage return in a comment ends the line for line-based readers (found by the
+    # random-input test below).
+    (
+        "carriage return in a comment",
+        "# sent_id = s1\n# te\rxt = Le phare brille\n" + "\n".join(WORDS) + "\n\n",
+        2,
+        "carriage return inside a comment line",
+    ),
     # "Fields other than FORM, LEMMA and MISC must not contain space characters"
     (
         "space in DEPREL",

@@ -280,6 +280,9 @@ def _build(block: list[tuple[int, str]], stem: str, number: int, source: str) ->
     last_empty = (0, 0)
     if _CONTROL_IN_BLOCK.search("\n".join(map(_second, block))) is not None:
         for lineno, line in block:  # comments may hold anything but line breaks
+            if line[0] == "#" and "\r" in line:
+                # A lone carriage return would end the line for other readers and in our output.
+                raise _Bad("carriage return inside a comment line", lineno, line.index("\r") + 1)
             if line[0] != "#" and _CONTROL.search(line) is not None:
                 cols = line.split("\t")
                 if len(cols) != _NCOLS:
