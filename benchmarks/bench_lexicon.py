@@ -48,6 +48,7 @@ byte-identical to a cold build. The cold 45 s and the rebuild's 2 s need a quiet
 from __future__ import annotations
 
 import argparse
+import contextlib
 import datetime as dt
 import json
 import os
@@ -209,13 +210,17 @@ def edited_model(lexicon: Lexicon, number: int) -> Lexicon:
     return lexicon.model_copy(update={"entries": entries})
 
 
-def run_chain(kind: str, folder: Path, schemas: str | None, cache_dir: Path) -> dict[str, float]:
+def run_chain(
+    kind: str, folder: Path, schemas: str | None, cache_dir: Path, default_gc: bool = False
+) -> dict[str, float]:
     """One chain in a fresh process, as a user's command runs (no heap left by other chains:
     a big heap makes the garbage collector's passes, and so the timings, longer)."""
     command = [sys.executable, __file__, "--chain", kind, "--folder", str(folder),
                "--cache", str(cache_dir)]
     if schemas:
         command += ["--schemas", schemas]
+    if default_gc:
+        command.append("--default-gc")
     done = subprocess.run(command, capture_output=True, text=True, check=True)
     sys.stdout.write("\n".join(done.stdout.splitlines()[:-1]) + "\n")
     figures: dict[str, float] = json.loads(done.stdout.splitlines()[-1])
@@ -223,13 +228,17 @@ def run_chain(kind: str, folder: Path, schemas: str | None, cache_dir: Path) -> 
 
 
 def chain_main(args: argparse.Namespace) -> None:
+    from lexbuild.cli.common import command_gc
+
     folder, cache_dir = Path(args.folder), Path(args.cache)
-    if args.chain == "cold":
-        figures, _ = cold_chain(folder, args.schemas)
-    else:
-        figures, tei_bytes, lmf_bytes = cached_chain(folder, args.schemas, cache_dir)
-        (cache_dir.parent / "rebuild.tei.xml").write_bytes(tei_bytes)
-        (cache_dir.parent / "rebuild.lmf.xml").write_bytes(lmf_bytes)
+    # As `lexbuild` runs a command (command_gc), unless --default-gc asks for CPython's own.
+    with contextlib.nullcontext() if args.default_gc else command_gc():
+        if args.chain == "cold":
+            figures, _ = cold_chain(folder, args.schemas)
+        else:
+            figures, tei_bytes, lmf_bytes = cached_chain(folder, args.schemas, cache_dir)
+            (cache_dir.parent / "rebuild.tei.xml").write_bytes(tei_bytes)
+            (cache_dir.parent / "rebuild.lmf.xml").write_bytes(lmf_bytes)
     print(json.dumps(figures))
 
 
@@ -242,6 +251,10 @@ def main() -> None:
     parser.add_argument("--schemas", default=None)
     parser.add_argument("--chain", choices=("cold", "cached"), help=argparse.SUPPRESS)
     parser.add_argument("--folder", help=argparse.SUPPRESS)
+    parser.add_argument(
+        "--default-gc", action="store_true",
+        help="CPython's default collector thresholds instead of the command's",
+    )
     parser.add_argument("--cache", help=argparse.SUPPRESS)
     args = parser.parse_args()
     if args.chain:
@@ -268,13 +281,13 @@ def main() -> None:
                 sources.dump_entry(entry), encoding="utf-8"
             )
         print("cold build, no cache (the reference):", flush=True)
-        cold = run_chain("cold", folder, args.schemas, cache_dir)
+        cold = run_chain("cold", folder, args.schemas, cache_dir, args.default_gc)
         print("cold build filling an empty cache:", flush=True)
-        filling = run_chain("cached", folder, args.schemas, cache_dir)
+        filling = run_chain("cached", folder, args.schemas, cache_dir, args.default_gc)
         print("rebuild after one edit:", flush=True)
         edited = args.entries // 2
         edit_one(folder, edited)
-        rebuild = run_chain("cached", folder, args.schemas, cache_dir)
+        rebuild = run_chain("cached", folder, args.schemas, cache_dir, args.default_gc)
         reference = sources.load_lexicon(folder).lexicon  # the edited sources, loaded cold
         tei_bytes = (Path(tmp) / "rebuild.tei.xml").read_bytes()
         lmf_bytes = (Path(tmp) / "rebuild.lmf.xml").read_bytes()

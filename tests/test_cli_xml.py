@@ -179,3 +179,30 @@ def test_validate_exit_codes(
     assert main(["validate", str(entry), *schemas, "--sources", str(sources)]) == 1
     tenir = sources / "entries" / "tenir.yaml"
     assert f"source: {tenir}:{line_of(tenir, 'id: tenir')}:" in capsys.readouterr().out
+
+
+def test_commands_run_with_fewer_collections_and_restore_the_collector(
+    sources: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # A command runs under COMMAND_GC_THRESHOLDS; the caller's thresholds come back after it,
+    # whether it succeeds or fails.
+    import contextlib
+    import gc
+    from collections.abc import Iterator
+
+    from lexbuild.cli import common
+
+    seen: list[tuple[int, ...]] = []
+
+    @contextlib.contextmanager
+    def recording() -> Iterator[None]:
+        with common.command_gc():
+            seen.append(gc.get_threshold())
+            yield
+
+    before = gc.get_threshold()
+    monkeypatch.setattr("lexbuild.cli.command_gc", recording)
+    assert main(["check", str(sources)]) == 0
+    assert main(["check", str(sources / "missing")]) == 2
+    assert len(seen) == 2 and all(t[0] >= common.COMMAND_GC_THRESHOLDS[0] for t in seen)
+    assert gc.get_threshold() == before

@@ -12,7 +12,7 @@ import importlib
 import sys
 from collections.abc import Sequence
 
-from lexbuild.cli.common import EXIT_FINDINGS, EXIT_OK, EXIT_USAGE
+from lexbuild.cli.common import EXIT_FINDINGS, EXIT_OK, EXIT_USAGE, command_gc
 from lexbuild.errors import LexbuildError
 
 __all__ = ["EXIT_FINDINGS", "EXIT_OK", "EXIT_USAGE", "build_parser", "main"]
@@ -59,7 +59,8 @@ def main(argv: Sequence[str] | None = None) -> int:
         parser.print_help(sys.stderr)
         return EXIT_USAGE
     try:
-        return int(handler(args))
+        with command_gc():
+            return int(handler(args))
     except LexbuildError as error:
         print(f"lexbuild {args.command}: error: {error}", file=sys.stderr)
         return EXIT_USAGE

@@ -55,3 +55,28 @@ def build_cache(args: argparse.Namespace) -> Iterator[Any]:
 
     with BuildCache() as cache:
         yield cache
+
+
+#: Garbage-collector thresholds while a command runs (CPython's defaults: 700, 10, 10). A
+#: command builds its data once and keeps it to the end: 10,000 entries make millions of
+#: long-lived objects, and every collection that reaches the older generations walks them
+#: all. Older generations are still collected, less often, so cyclic garbage stays bounded in
+#: long runs. Measured on the 10,000-entry rebuild (bench_lexicon.py, three alternated fresh
+#: processes each): 1.68-1.71 s with the defaults, 1.50-1.70 s with these, 1.43-1.52 s with
+#: the collector off.
+COMMAND_GC_THRESHOLDS = (50_000, 20, 100)
+
+
+@contextlib.contextmanager
+def command_gc() -> Iterator[None]:
+    """Run a command with fewer collections; the previous thresholds come back after."""
+    import gc
+
+    before = gc.get_threshold()
+    # zip stops at the shorter: a CPython with other generations keeps the rest as they are.
+    raised = (max(old, new) for old, new in zip(before, COMMAND_GC_THRESHOLDS, strict=False))
+    gc.set_threshold(*raised)
+    try:
+        yield
+    finally:
+        gc.set_threshold(*before)
