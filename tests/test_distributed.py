@@ -507,36 +507,37 @@ def test_parser_processes_run_one_blas_thread_and_fail_cleanly() -> None:
 # ------------------------------------------------------------------------------- failures
 
 
-def test_unreachable_scheduler_is_a_clean_error(
-    monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture[str], ud_dir: Path
-) -> None:
-    with socket.socket() as probe:  # a loopback port nobody listens on
+@pytest.fixture
+def dead_scheduler(monkeypatch: pytest.MonkeyPatch) -> str:
+    """The address of a loopback port nobody listens on, reached with a 1 s timeout."""
+    with socket.socket() as probe:
         probe.bind(("127.0.0.1", 0))
         port = probe.getsockname()[1]
     monkeypatch.setattr(distributed_module, "CONNECT_TIMEOUT", 1.0)
+    return f"tcp://127.0.0.1:{port}"
+
+
+def test_unreachable_scheduler_is_a_clean_error(
+    dead_scheduler: str, capsys: pytest.CaptureFixture[str], ud_dir: Path
+) -> None:
     code, _, err = _run(
-        capsys, "frames", str(ud_dir / "fr_sequoia-ud-dev.conllu"),
-        "--scheduler", f"tcp://127.0.0.1:{port}",
+        capsys, "frames", str(ud_dir / "fr_sequoia-ud-dev.conllu"), "--scheduler", dead_scheduler
     )
     assert code == 2
     assert "cannot reach the Dask scheduler" in err and "Traceback" not in err
 
 
 def test_unreachable_scheduler_is_one_line_for_parse(
-    monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture[str], tmp_path: Path
+    dead_scheduler: str, capsys: pytest.CaptureFixture[str], tmp_path: Path
 ) -> None:
-    with socket.socket() as probe:  # a loopback port nobody listens on
-        probe.bind(("127.0.0.1", 0))
-        port = probe.getsockname()[1]
-    monkeypatch.setattr(distributed_module, "CONNECT_TIMEOUT", 1.0)
     (tmp_path / "rive.txt").write_text("Le bac traverse la rivière.", encoding="utf-8")
     code, out, err = _run(
         capsys, "parse", str(tmp_path / "rive.txt"), "-o", str(tmp_path / "rive.conllu"),
-        "--scheduler", f"tcp://127.0.0.1:{port}",
+        "--scheduler", dead_scheduler,
     )
     assert code == 2 and out == ""
     assert len(err.strip().splitlines()) == 1, err
-    assert f"cannot reach the Dask scheduler at tcp://127.0.0.1:{port}" in err
+    assert f"cannot reach the Dask scheduler at {dead_scheduler}" in err
     assert not (tmp_path / "rive.conllu").exists()
 
 

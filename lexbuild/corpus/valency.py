@@ -41,6 +41,7 @@ __all__ = [
     "FrameThresholds",
     "count_frames",
     "frames_for",
+    "frames_from_patterns",
     "match_frame",
     "select_frames",
 ]
@@ -178,7 +179,17 @@ def frames_for(
     Sorted by frequency (descending), then by canonical pattern string.
     """
     counts: Counter[tuple[Slot, ...]] = Counter(occurrence.slots for occurrence in occurrences)
-    selected, _ = select_frames(counts, thresholds)
+    return frames_from_patterns(counts, parent_id=parent_id, thresholds=thresholds)
+
+
+def frames_from_patterns(
+    patterns: Mapping[tuple[Slot, ...], int],
+    *,
+    parent_id: str,
+    thresholds: FrameThresholds = FrameThresholds(),
+) -> list[Frame]:
+    """``frames_for`` from slot patterns already counted (shard tallies add up first)."""
+    selected, _ = select_frames(patterns, thresholds)
     return [
         Frame(
             id=frame_id(parent_id, number),

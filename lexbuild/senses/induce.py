@@ -30,10 +30,10 @@ import numpy as np
 import numpy.typing as npt
 
 from lexbuild.corpus.occurrences import Occurrence
-from lexbuild.corpus.valency import FrameThresholds, select_frames
+from lexbuild.corpus.valency import FrameThresholds, frames_from_patterns
 from lexbuild.errors import InductionError
-from lexbuild.lexicon.ids import entry_id, frame_id, sense_id
-from lexbuild.lexicon.model import Entry, Frame, Induction, Sense, Slot, Status, format_frame
+from lexbuild.lexicon.ids import entry_id, sense_id
+from lexbuild.lexicon.model import Entry, Frame, Induction, Sense, Slot, Status
 from lexbuild.senses.clustering import assign_to_centroids
 from lexbuild.senses.examples import choose_examples
 from lexbuild.senses.registry import get_clusterer
@@ -176,20 +176,13 @@ def frames_from_counts(
     thresholds = FrameThresholds(
         min_count=settings.frame_min_count, min_share=settings.frame_min_share
     )
-    selected, _ = select_frames(patterns, thresholds)
-    if not selected:
-        # A small sense where no pattern reaches the noise thresholds: keep its patterns all
-        # (flagged for the editor) rather than leave the sense without a frame.
-        selected, _ = select_frames(patterns, FrameThresholds(min_count=1, min_share=0.0))
-    return [
-        Frame(
-            id=frame_id(parent, number),
-            pattern=format_frame(slots),
-            frequency=frequency,
-            slot_frequencies=list(slot_frequencies),
-        )
-        for number, (slots, frequency, slot_frequencies) in enumerate(selected, 1)
-    ]
+    # A small sense where no pattern reaches the noise thresholds keeps its patterns all
+    # (flagged for the editor) rather than go without a frame.
+    return frames_from_patterns(
+        patterns, parent_id=parent, thresholds=thresholds
+    ) or frames_from_patterns(
+        patterns, parent_id=parent, thresholds=FrameThresholds(min_count=1, min_share=0.0)
+    )
 
 
 def _cluster(
