@@ -28,7 +28,7 @@ import unicodedata
 from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import replace
 from pathlib import Path
-from typing import Any
+from typing import Any, TypedDict, Unpack
 
 from lexbuild.corpus.sharded import CorpusPass, decide_obliques_sharded
 from lexbuild.corpus.shards import SHARD_BYTES, plan_shards
@@ -40,7 +40,7 @@ from lexbuild.senses.settings import InductionSettings
 from lexbuild.senses.threshold import ThresholdChoice
 from lexbuild.senses.vectors import Representation, VectorCache, merge_vector_shards
 
-__all__ = ["corpus_partitions", "induce_corpus", "induce_on_executor"]
+__all__ = ["CorpusRunOptions", "corpus_partitions", "induce_corpus", "induce_on_executor"]
 
 
 def corpus_partitions(
@@ -65,6 +65,22 @@ def _portable(representation: Representation) -> Representation:
     if dataclasses.is_dataclass(representation) and not isinstance(representation, type):
         return dataclasses.replace(representation)
     return representation
+
+
+class CorpusRunOptions(TypedDict, total=False):
+    """The keyword options of ``induce_corpus``, which ``induce_on_executor`` passes on."""
+
+    calibration: str | Path | Calibration | None
+    cache: str | Path | None
+    lemmas: Iterable[str] | None
+    language: str
+    spill: str | Path | None
+    guide: Mapping[str, Any] | None
+    shard_bytes: int | None
+    on_shard: Callable[[int], None] | None
+    on_calibrated: Callable[[int], None] | None
+    on_verb: Callable[[str, int], None] | None
+    on_stage: Callable[[str], None] | None
 
 
 def induce_corpus(
@@ -153,36 +169,24 @@ def induce_on_executor(
     representation: Representation,
     executor: Executor,
     settings: InductionSettings | None = None,
-    *,
-    calibration: str | Path | Calibration | None = None,
-    cache: str | Path | None = None,
-    lemmas: Iterable[str] | None = None,
-    language: str = "fr",
-    spill: str | Path | None = None,
-    guide: Mapping[str, Any] | None = None,
-    shard_bytes: int | None = None,
-    on_shard: Callable[[int], None] | None = None,
-    on_calibrated: Callable[[int], None] | None = None,
-    on_verb: Callable[[str, int], None] | None = None,
-    on_stage: Callable[[str], None] | None = None,
+    **options: Unpack[CorpusRunOptions],
 ) -> tuple[InductionResult, ThresholdChoice]:
     """``SenseInducer(...).fit(iter_occurrences(corpus))`` run on ``executor`` (module doc),
     with the assignments read back into a list (the CLI streams them to the folder instead).
 
-    ``cache``: the vector cache folder (None: no cache); ``spill``: a folder every worker can
+    ``options`` are ``induce_corpus``'s (``CorpusRunOptions``). ``cache``: the vector cache
+    folder (None: no cache); ``spill``: a folder every worker can
     reach for the assignment spool (default: a temporary folder, removed afterwards).
     ``on_stage(name)`` is called as each stage starts: "obliques", "reading", "calibrating",
     "clustering", "assigning" (a progress display switches bars there).
     """
-    run, folder = induce_corpus(
-        corpus, representation, executor, settings, calibration=calibration, cache=cache,
-        lemmas=lemmas, language=language, spill=spill, guide=guide, shard_bytes=shard_bytes,
-        on_shard=on_shard, on_calibrated=on_calibrated, on_verb=on_verb, on_stage=on_stage,
-    )
+    run, folder = induce_corpus(corpus, representation, executor, settings, **options)
     try:
-        result = result_of(run, representation, corpus, guide=guide, lemmas=lemmas)
+        result = result_of(
+            run, representation, corpus, guide=options.get("guide"), lemmas=options.get("lemmas")
+        )
         result.assignments = list(result.assignments)
     finally:
-        if spill is None:
+        if options.get("spill") is None:
             shutil.rmtree(folder, ignore_errors=True)
     return result, run.choice
