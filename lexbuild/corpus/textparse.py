@@ -314,16 +314,27 @@ _RETAGGABLE = {"NOUN", "PROPN", "ADJ", "ADV", "ADP"}
 _FUNCTION_RELATIONS = {"aux", "aux:tense", "aux:pass", "cop", "fixed", "flat", "case", "mark"}
 
 
+def _dependents(heads: Sequence[int]) -> list[list[int]]:
+    """The dependents of each word, in order (UD heads, 0-based, -1 root)."""
+    kids: list[list[int]] = [[] for _ in heads]
+    for index, head in enumerate(heads):
+        if head >= 0:
+            kids[head].append(index)
+    return kids
+
+
+def _child_relations(heads: Sequence[int], deps: Sequence[str]) -> list[set[str]]:
+    """The relations of each word's dependents (UD heads, 0-based, -1 root)."""
+    return [{deps[k] for k in kids} for kids in _dependents(heads)]
+
+
 def verbal_upos(upos: Sequence[str], heads: Sequence[int], deps: Sequence[str]) -> list[str]:
     """UPOS with ``VERB`` for the words that head verb-only dependents (UD heads, 0-based).
 
     A word with a copula (``cop``) child is a predicate adjective or noun, not a verb; a word
     that is itself an auxiliary, copula or fixed part keeps its tag.
     """
-    children: list[set[str]] = [set() for _ in upos]
-    for index, head in enumerate(heads):
-        if head >= 0:
-            children[head].add(deps[index])
+    children = _child_relations(heads, deps)
     retagged = list(upos)
     for index, tag in enumerate(upos):
         if (
@@ -425,10 +436,7 @@ def nominal_root_repairs(
     if len(roots) != 1 or upos[roots[0]] not in _NOMINAL:
         return new_heads, new_deps
     root = roots[0]
-    kids: list[list[int]] = [[] for _ in range(n)]
-    for index, head in enumerate(heads):
-        if head >= 0:
-            kids[head].append(index)
+    kids = _dependents(heads)
     own = {deps[k] for k in kids[root]}
     if "cop" in own or own & _VERB_ONLY_DEPENDENTS:  # a predicate, or a verb mistagged
         return new_heads, new_deps
@@ -505,10 +513,7 @@ def participle_adjunct_repairs(
     subordinator of its own.
     """
     new_heads, new_deps = list(heads), list(deps)
-    children: list[set[str]] = [set() for _ in upos]
-    for index, head in enumerate(heads):
-        if head >= 0:
-            children[head].add(deps[index].split(":")[0])
+    children = _child_relations(heads, [dep.split(":")[0] for dep in deps])
     for verb in range(len(heads)):
         if (
             deps[verb] != "advcl"
@@ -553,10 +558,7 @@ def buried_subject_repairs(
     """
     new_heads, new_deps = list(heads), list(deps)
     n = len(upos)
-    kids: list[list[int]] = [[] for _ in range(n)]
-    for index, head in enumerate(heads):
-        if head >= 0:
-            kids[head].append(index)
+    kids = _dependents(heads)
     for verb in range(n):
         if upos[verb] != "VERB" or deps[verb] not in ("root", "conj", "parataxis"):
             continue
@@ -753,10 +755,7 @@ def lexical_repairs(
     if lexicon is None:
         return new
     n = len(words)
-    kids: list[list[int]] = [[] for _ in range(n)]
-    for index, head in enumerate(heads):
-        if head >= 0:
-            kids[head].append(index)
+    kids = _dependents(heads)
     lemma = [x.lower() for x in lemmas]
     form = [x.lower() for x in words]
 
@@ -865,10 +864,7 @@ def clause_repairs(
     if lexicon is None:
         return new
     n = len(words)
-    kids: list[list[int]] = [[] for _ in range(n)]
-    for index, head in enumerate(heads):
-        if head >= 0:
-            kids[head].append(index)
+    kids = _dependents(heads)
     lemma = [x.lower() for x in lemmas]
 
     def cased(k: int) -> list[str]:
