@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import contextlib
+import gc
 from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
@@ -70,8 +71,6 @@ COMMAND_GC_THRESHOLDS = (50_000, 20, 100)
 @contextlib.contextmanager
 def command_gc() -> Iterator[None]:
     """Run a command with fewer collections; the previous thresholds come back after."""
-    import gc
-
     before = gc.get_threshold()
     # zip stops at the shorter: a CPython with other generations keeps the rest as they are.
     raised = (max(old, new) for old, new in zip(before, COMMAND_GC_THRESHOLDS, strict=False))
