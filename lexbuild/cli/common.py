@@ -62,9 +62,9 @@ def build_cache(args: argparse.Namespace) -> Iterator[Any]:
 #: command builds its data once and keeps it to the end: 10,000 entries make millions of
 #: long-lived objects, and every collection that reaches the older generations walks them
 #: all. Older generations are still collected, less often, so cyclic garbage stays bounded in
-#: long runs. Measured on the 10,000-entry rebuild (bench_lexicon.py, three alternated fresh
-#: processes each): 1.68-1.71 s with the defaults, 1.50-1.70 s with these, 1.43-1.52 s with
-#: the collector off.
+#: long runs. Measured on the 10,000-entry rebuild of an unchanged document (bench_lexicon.py
+#: chains, three alternated fresh processes each): 1.68-1.71 s with the defaults, 1.50-1.70 s
+#: with these, 1.43-1.52 s with the collector off; whole benchmark runs vary more than that.
 COMMAND_GC_THRESHOLDS = (50_000, 20, 100)
 
 
