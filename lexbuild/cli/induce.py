@@ -169,8 +169,9 @@ def run_induce(args: argparse.Namespace) -> int:
     from lexbuild.corpus.conllu import resolve_paths
     from lexbuild.distributed import executor_from_args
     from lexbuild.errors import InductionError
-    from lexbuild.senses.distributed_induce import induce_corpus, result_of
+    from lexbuild.senses.distributed_induce import induce_corpus
     from lexbuild.senses.executor import InProcessExecutor
+    from lexbuild.senses.inducer import result_of
     from lexbuild.senses.induction_folder import write_induction
 
     files = resolve_paths(args.corpus)

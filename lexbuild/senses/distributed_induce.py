@@ -35,7 +35,7 @@ from lexbuild.corpus.shards import SHARD_BYTES, plan_shards
 from lexbuild.senses.calibrate import Calibration
 from lexbuild.senses.corpus_induction import CorpusInduction, induce_partitions
 from lexbuild.senses.executor import Executor
-from lexbuild.senses.inducer import InductionResult, _guided_report, assemble_result
+from lexbuild.senses.inducer import InductionResult, result_of
 from lexbuild.senses.settings import InductionSettings
 from lexbuild.senses.threshold import ThresholdChoice
 from lexbuild.senses.vectors import Representation, VectorCache, merge_vector_shards
@@ -133,35 +133,6 @@ def induce_corpus(
         if cache is not None:
             merge_vector_shards(cache)
     return run, folder
-
-
-def result_of(
-    run: CorpusInduction,
-    representation: Representation,
-    corpus: Sequence[str | Path],
-    *,
-    guide: Mapping[str, Any] | None = None,
-    lemmas: Iterable[str] | None = None,
-) -> InductionResult:
-    """The ``InductionResult`` of a run whose assignments stay in its spool."""
-    wanted = None if lemmas is None else frozenset(unicodedata.normalize("NFC", x) for x in lemmas)
-    return assemble_result(
-        run.results,
-        run.assignments,
-        settings=run.settings,
-        representation=representation,
-        run=run.run,
-        corpus=corpus,
-        occurrences=run.counts,
-        skipped_verbs=run.selected - len(run.counts),
-        stats=run.stats,
-        threshold_source=run.choice.source,
-        guided=(
-            None
-            if guide is None
-            else _guided_report(guide, [r.entry for r in run.results], run.counts, wanted)
-        ),
-    )
 
 
 def induce_on_executor(

@@ -18,7 +18,7 @@ import unicodedata
 from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field, fields
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import numpy.typing as npt
@@ -37,7 +37,10 @@ from lexbuild.senses.vectors import (
     VectorCache,
 )
 
-__all__ = ["InductionResult", "SenseInducer", "induce"]
+if TYPE_CHECKING:
+    from lexbuild.senses.corpus_induction import CorpusInduction
+
+__all__ = ["InductionResult", "SenseInducer", "induce", "result_of"]
 
 
 @dataclass
@@ -159,30 +162,44 @@ class SenseInducer:
                 worker_cache=self.cache, lemmas=wanted, guide=self.guide,
                 on_calibrated=on_calibrated, on_verb=on_verb,
             )
-            assignments = list(done.assignments)
+            result = result_of(
+                done, self.representation, corpus, guide=self.guide, lemmas=wanted
+            )
+            result.assignments = list(result.assignments)  # before the spool goes
         finally:
             shutil.rmtree(spool, ignore_errors=True)
         self.threshold_ = done.choice
-        self.result_ = assemble_result(
-            done.results,
-            assignments,
-            settings=done.settings,
-            representation=self.representation,
-            run=done.run,
-            corpus=corpus,
-            occurrences=done.counts,
-            skipped_verbs=done.selected - len(done.counts),
-            stats=done.stats,
-            threshold_source=done.choice.source,
-            guided=(
-                None
-                if self.guide is None
-                else _guided_report(
-                    self.guide, [r.entry for r in done.results], done.counts, wanted
-                )
-            ),
-        )
+        self.result_ = result
         return self
+
+
+def result_of(
+    run: CorpusInduction,
+    representation: Representation,
+    corpus: Sequence[str | Path],
+    *,
+    guide: Mapping[str, Any] | None = None,
+    lemmas: Iterable[str] | None = None,
+) -> InductionResult:
+    """The ``InductionResult`` of a run whose assignments stay in its spool."""
+    wanted = None if lemmas is None else frozenset(unicodedata.normalize("NFC", x) for x in lemmas)
+    return assemble_result(
+        run.results,
+        run.assignments,
+        settings=run.settings,
+        representation=representation,
+        run=run.run,
+        corpus=corpus,
+        occurrences=run.counts,
+        skipped_verbs=run.selected - len(run.counts),
+        stats=run.stats,
+        threshold_source=run.choice.source,
+        guided=(
+            None
+            if guide is None
+            else _guided_report(guide, [r.entry for r in run.results], run.counts, wanted)
+        ),
+    )
 
 
 def assemble_result(
