@@ -204,7 +204,9 @@ def _sample_document(schemas_dir: Path) -> tuple[WrittenDocument, bytes]:
 
 def _with_fragment(document: WrittenDocument, index: int, text: str) -> WrittenDocument:
     fragments = list(document.fragments)
-    fragments[index] = EntryFragment(text, fragments[index].tail, fragments[index].ids)
+    fragments[index] = EntryFragment(
+        text.encode("utf-8"), fragments[index].tail, fragments[index].id_block
+    )
     return WrittenDocument(document.prefix, tuple(fragments), document.suffix)
 
 
@@ -232,7 +234,8 @@ def test_incremental_validation_reports_what_whole_validation_reports(
         fingerprint = code_fingerprint()
         assert validate_written(document, "tei", data=document.data(), cache=cache,
                                 fingerprint=fingerprint, schemas_dir=schemas_dir) == []
-        changed = _with_fragment(document, index, change(document.fragments[index].text))
+        text = document.fragments[index].text.decode("utf-8")
+        changed = _with_fragment(document, index, change(text))
         data = changed.data()
         expected = [str(f) for f in validate_bytes(data, schemas_dir=schemas_dir)]
         got = [str(f) for f in validate_written(changed, "tei", data=data, cache=cache,

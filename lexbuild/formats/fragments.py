@@ -10,8 +10,9 @@ byte-identical to a cold build by construction (and ``tests/test_incremental.py`
 What is never reused from a cache, so that a cache hit cannot hide an error a cold build
 reports:
 
-* duplicate ids across the document: every id an entry wrote is replayed, in document order,
-  into the document's ``DocumentIds`` (same check, same message as a cold build);
+* duplicate ids across the document: the ids every reused entry wrote are checked against
+  each other and the rest of the document; a clash sends the document to a cold write (same
+  check, same message as a cold build);
 * an entry whose text holds a character XML forbids: it raises before anything is stored;
 * an entry that needed a generated id (``DocumentIds.fresh``: a frame or example without an
   id): the id depends on every id in the lexicon, so that entry is written afresh every time.
@@ -41,28 +42,55 @@ __all__ = [
 
 @dataclass(frozen=True, slots=True)
 class EntryFragment:
-    """The text one entry contributes to a document.
+    """The text one entry contributes to a document, as UTF-8 bytes from the cache to the
+    output (a rebuild never decodes the 176 MB it reuses).
 
     ``text``: the entry's lines (joined by newlines); ``tail``: lines it contributes after all
-    entries (LMF frames), None when it has none; ``ids``: the ids it wrote, in order;
-    ``key``: the content key it is cached under (None: written afresh, not cached).
+    entries (LMF frames), None when it has none; ``id_block``: the ids it wrote, in order, one
+    per line; ``key``: the content key it is cached under (None: written afresh, not cached).
     """
 
-    text: str
-    tail: str | None
-    ids: tuple[str, ...]
+    text: bytes
+    tail: bytes | None
+    id_block: bytes
     key: str | None = None
 
+    @classmethod
+    def written(
+        cls, text: str, tail: str | None, ids: Iterable[str], key: str | None = None
+    ) -> EntryFragment:
+        """A fragment from the text a writer produced (checked for forbidden characters, so
+        it encodes)."""
+        return cls(
+            text.encode("utf-8"),
+            None if tail is None else tail.encode("utf-8"),
+            "\n".join(ids).encode("utf-8"),
+            key,
+        )
+
+    @property
+    def ids(self) -> tuple[str, ...]:
+        return tuple(self.id_block.decode("utf-8").split("\n")) if self.id_block else ()
+
     def to_bytes(self) -> bytes:
-        # Ids are NCNames and XML text holds no NUL: a newline ends an id, NUL each part.
-        tail = "\x01" if self.tail is None else self.tail
-        return "\x00".join(("\n".join(self.ids), tail, self.text)).encode("utf-8")
+        # "<ids length> <tail length, -1: none>\n" then the ids, the tail and the text.
+        tail = self.tail or b""
+        head = b"%d %d\n" % (len(self.id_block), -1 if self.tail is None else len(tail))
+        return b"".join((head, self.id_block, tail, self.text))
 
     @classmethod
     def from_bytes(cls, data: bytes, key: str | None = None) -> EntryFragment:
-        ids, tail, text = data.decode("utf-8").split("\x00")
-        names = tuple(ids.split("\n")) if ids else ()
-        return cls(text, None if tail == "\x01" else tail, names, key)
+        """The fragment ``to_bytes`` wrote; ValueError when ``data`` is not one."""
+        head, newline, rest = data.partition(b"\n")
+        sizes = head.split(b" ")
+        if not newline or len(sizes) != 2 or not all(s.lstrip(b"-").isdigit() for s in sizes):
+            raise ValueError("not a fragment record")
+        id_size, tail_size = int(sizes[0]), int(sizes[1])
+        if id_size < 0 or tail_size < -1 or id_size + max(tail_size, 0) > len(rest):
+            raise ValueError("not a fragment record")
+        text_start = id_size + max(tail_size, 0)
+        tail = None if tail_size < 0 else rest[id_size:text_start]
+        return cls(rest[text_start:], tail, rest[:id_size], key)
 
 
 class EntryItem(Protocol):
@@ -125,23 +153,18 @@ class RecordingIds:
         return self.ids.fresh(parent, kind)
 
 
-#: The owner noted for the ids of a cached entry. It never reaches a message: any error while
-#: writing a document that reused fragments sends the document to a cold write, which raises
-#: the error with every owner named (``CachedFragmentsConflict``).
-_CACHED_OWNER = "an entry reused from the cache"
-
-
 class CachedFragmentsConflict(Exception):
     """Raised inside ``write_entries`` when a document reusing fragments meets an error."""
 
 
-def _fits(ids: DocumentIds, names: tuple[str, ...]) -> bool:
-    """Add a cached entry's ids when none is taken yet; False (nothing added) otherwise."""
-    if ids.owner.keys().isdisjoint(names) and len(set(names)) == len(names):
-        ids.owner.update(dict.fromkeys(names, _CACHED_OWNER))
-        ids.pool.update(names)
-        return True
-    return False
+def _all_distinct(ids: DocumentIds, blocks: list[bytes]) -> bool:
+    """True when the ids of the reused fragments (``blocks``) are distinct from each other and
+    from every id ``ids`` holds (the header's, the entries written afresh)."""
+    names = b"\n".join(block for block in blocks if block).split(b"\n") if blocks else []
+    distinct = set(names)
+    if len(distinct) != len(names):
+        return False
+    return distinct.isdisjoint(name.encode("utf-8") for name in ids.owner)
 
 
 @dataclass(frozen=True, slots=True)
@@ -153,13 +176,19 @@ class WrittenDocument:
     fragments: tuple[EntryFragment, ...]
     suffix: str
 
-    def data(self) -> bytes:
-        parts = [self.prefix]
+    def parts(self) -> list[bytes]:
+        """The document's bytes in pieces, to be joined by newlines (the last piece empty:
+        the document ends with one)."""
+        parts = [self.prefix.encode("utf-8")]
         parts += [fragment.text for fragment in self.fragments]
         parts += [fragment.tail for fragment in self.fragments if fragment.tail is not None]
         if self.suffix:
-            parts.append(self.suffix)
-        return ("\n".join(parts) + "\n").encode("utf-8")
+            parts.append(self.suffix.encode("utf-8"))
+        parts.append(b"")
+        return parts
+
+    def data(self) -> bytes:
+        return b"\n".join(self.parts())
 
 
 #: Writes one entry: (entry, main writer, tail writer, ids) -> None; raises on bad text.
@@ -179,49 +208,55 @@ def write_entries(
     """Write ``items`` in id order at the current depth of ``out``; returns their fragments
     (with their tails: LMF puts them after all entries).
 
-    Raises ``CachedFragmentsConflict`` when an error meets a document that reused cached
-    fragments; the caller then writes the document cold, which raises the exact error.
+    The ids of reused fragments are checked all at once at the end (distinct from each other
+    and from the ids of the header and of the entries written afresh), not entry by entry.
+    Where that could make a difference (an entry written afresh after reused ones raises,
+    or an id is borne twice) it raises ``CachedFragmentsConflict``; the caller then writes
+    the document cold, which raises the exact error or writes what a cold build writes.
+    Reused ids missing from ``ids`` cannot change an entry written afresh unnoticed: a
+    generated id (``DocumentIds.fresh``) that one of them would have blocked is equal to it,
+    so it is borne twice and the check sends the document to the cold write.
     """
     ordered = sorted(items, key=lambda item: item.id)  # stable: same order as a cold build
     keys = [item.key for item in ordered if item.key is not None]
     found = cache.get_many(kind, keys) if cache is not None and keys else {}
     fresh: dict[str, bytes] = {}
     fragments = []
-    reused = False
+    reused: list[bytes] = []  # the id blocks of the fragments reused so far
     for item in ordered:
         cached = found.get(item.key) if item.key is not None else None
-        fragment = None
         if cached is not None:
             try:
                 fragment = EntryFragment.from_bytes(cached, item.key)
             except ValueError:
-                fragment = None  # unreadable: written afresh below
-        if fragment is not None and _fits(ids, fragment.ids):
-            reused = True
-        else:
-            if fragment is not None:
-                raise CachedFragmentsConflict  # an id clash: the cold write reports it
-            entry = item.entry()
-            recording = RecordingIds(ids)
-            main, tail = XmlWriter(), XmlWriter()
-            main.depth = tail.depth = out.depth
-            try:
-                write_one(entry, main, tail, recording)
-                text, tail_text = main.text()[:-1], tail.text()[:-1] if tail.parts else None
-                if forbidden_character(text) or (tail_text and forbidden_character(tail_text)):
-                    raise text_error(entry)
-            except Exception:
-                if reused:
-                    raise CachedFragmentsConflict from None
-                raise
-            cacheable = item.key is not None and not recording.used_fresh
-            fragment = EntryFragment(
-                text, tail_text, tuple(name for name, _ in recording.added),
-                item.key if cacheable else None,
-            )
-            if cacheable and item.key is not None:
-                fresh[item.key] = fragment.to_bytes()
+                pass  # unreadable: written afresh below
+            else:
+                reused.append(fragment.id_block)
+                fragments.append(fragment)
+                continue
+        entry = item.entry()
+        recording = RecordingIds(ids)
+        main, tail = XmlWriter(), XmlWriter()
+        main.depth = tail.depth = out.depth
+        try:
+            write_one(entry, main, tail, recording)
+            text, tail_text = main.text()[:-1], tail.text()[:-1] if tail.parts else None
+            if forbidden_character(text) or (tail_text and forbidden_character(tail_text)):
+                raise text_error(entry)
+        except Exception:
+            if reused:
+                raise CachedFragmentsConflict from None
+            raise
+        cacheable = item.key is not None and not recording.used_fresh
+        fragment = EntryFragment.written(
+            text, tail_text, (name for name, _ in recording.added),
+            item.key if cacheable else None,
+        )
+        if cacheable and item.key is not None:
+            fresh[item.key] = fragment.to_bytes()
         fragments.append(fragment)
+    if reused and not _all_distinct(ids, reused):
+        raise CachedFragmentsConflict  # an id borne twice: the cold write reports it
     if cache is not None and fresh:
         cache.put_many(kind, fresh)
     return fragments

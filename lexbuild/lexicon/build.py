@@ -33,7 +33,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from lexbuild.errors import SourceError, SourceLocation
-from lexbuild.lexicon.build_cache import BuildCache, code_fingerprint, content_key
+from lexbuild.lexicon.build_cache import BuildCache, KeyMaker, code_fingerprint
 from lexbuild.lexicon.checks import (
     Finding,
     Problem,
@@ -250,8 +250,9 @@ class Build:
         return None
 
     def _keys(self, kind: str, *context: str) -> None:
+        key = KeyMaker(self.fingerprint, kind, *context)
         for item in self.items:
-            item.key = content_key(self.fingerprint, kind, item.digest, *context)
+            item.key = key(item.digest)
 
     def write(
         self,
@@ -328,9 +329,11 @@ def open_build(
         except OSError:
             contents.append(b"")  # the careful path below reports it
     digests = [hashlib.sha256(data).hexdigest() for data in contents]
-    keys = [
-        content_key(fingerprint, ENTRY_KIND, path.name, digest, meta_bytes)
-        for path, digest in zip(files, digests, strict=True)
+    entry_key = KeyMaker(fingerprint, ENTRY_KIND, meta_bytes)
+    keys = [entry_key(path.name, digest) for path, digest in zip(files, digests, strict=True)]
+    model_key_of = KeyMaker(fingerprint, MODEL_KIND)
+    model_keys = [
+        model_key_of(path.name, digest) for path, digest in zip(files, digests, strict=True)
     ]
     found = cache.get_many(ENTRY_KIND, keys) if cache is not None else {}
     reused: dict[int, SourceEntry] = {}
@@ -339,8 +342,7 @@ def open_build(
     ):
         record = found.get(key)
         if record is not None:
-            model_key = content_key(fingerprint, MODEL_KIND, path.name, digest)
-            item = _from_record(path, data, record, model_key)
+            item = _from_record(path, data, record, model_keys[index])
             if item is not None:
                 item.digest = digest
                 reused[index] = item
@@ -354,7 +356,7 @@ def open_build(
     for index, (path, data, digest, key) in enumerate(
         zip(files, contents, digests, keys, strict=True)
     ):
-        model_key = content_key(fingerprint, MODEL_KIND, path.name, digest)
+        model_key = model_keys[index]
         item = reused.get(index)
         if item is None:
             try:

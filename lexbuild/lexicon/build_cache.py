@@ -29,6 +29,7 @@ from pathlib import Path
 __all__ = [
     "BUILD_DIR",
     "BuildCache",
+    "KeyMaker",
     "cache_folder",
     "code_fingerprint",
     "content_key",
@@ -84,14 +85,31 @@ def code_fingerprint() -> str:
     return digest.hexdigest()
 
 
-def content_key(*parts: bytes | str) -> str:
-    """sha256 over length-prefixed parts: ('ab', 'c') and ('a', 'bc') give different keys."""
+def _framed(parts: Sequence[bytes | str]) -> bytes:
     pieces = []
     for part in parts:
         data = part.encode("utf-8") if isinstance(part, str) else part
         pieces.append(len(data).to_bytes(8, "big"))
         pieces.append(data)
-    return hashlib.sha256(b"".join(pieces)).hexdigest()
+    return b"".join(pieces)
+
+
+def content_key(*parts: bytes | str) -> str:
+    """sha256 over length-prefixed parts: ('ab', 'c') and ('a', 'bc') give different keys."""
+    return hashlib.sha256(_framed(parts)).hexdigest()
+
+
+class KeyMaker:
+    """``content_key(*prefix, *rest)`` for many ``rest`` after one ``prefix``: the prefix is
+    hashed once (a rebuild makes tens of thousands of keys that share it)."""
+
+    def __init__(self, *prefix: bytes | str) -> None:
+        self._start = hashlib.sha256(_framed(prefix))
+
+    def __call__(self, *rest: bytes | str) -> str:
+        digest = self._start.copy()
+        digest.update(_framed(rest))
+        return digest.hexdigest()
 
 
 class BuildCache:
