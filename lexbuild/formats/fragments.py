@@ -20,6 +20,7 @@ reports:
 
 from __future__ import annotations
 
+import struct
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from typing import Any, Protocol
@@ -73,24 +74,35 @@ class EntryFragment:
         return tuple(self.id_block.decode("utf-8").split("\n")) if self.id_block else ()
 
     def to_bytes(self) -> bytes:
-        # "<ids length> <tail length, -1: none>\n" then the ids, the tail and the text.
+        # A fixed head (mark, length of the ids, length of the tail or -1: none), then the
+        # ids, the tail and the text.
         tail = self.tail or b""
-        head = b"%d %d\n" % (len(self.id_block), -1 if self.tail is None else len(tail))
+        head = _RECORD_HEAD.pack(
+            _RECORD_MARK, len(self.id_block), -1 if self.tail is None else len(tail)
+        )
         return b"".join((head, self.id_block, tail, self.text))
 
     @classmethod
     def from_bytes(cls, data: bytes, key: str | None = None) -> EntryFragment:
         """The fragment ``to_bytes`` wrote; ValueError when ``data`` is not one."""
-        head, newline, rest = data.partition(b"\n")
-        sizes = head.split(b" ")
-        if not newline or len(sizes) != 2 or not all(s.lstrip(b"-").isdigit() for s in sizes):
+        if len(data) < _RECORD_HEAD.size:
             raise ValueError("not a fragment record")
-        id_size, tail_size = int(sizes[0]), int(sizes[1])
-        if id_size < 0 or tail_size < -1 or id_size + max(tail_size, 0) > len(rest):
+        mark, id_size, tail_size = _RECORD_HEAD.unpack_from(data)
+        text_start = _RECORD_HEAD.size + id_size + max(tail_size, 0)
+        if mark != _RECORD_MARK or tail_size < -1 or text_start > len(data):
             raise ValueError("not a fragment record")
-        text_start = id_size + max(tail_size, 0)
-        tail = None if tail_size < 0 else rest[id_size:text_start]
-        return cls(rest[text_start:], tail, rest[:id_size], key)
+        id_end = _RECORD_HEAD.size + id_size
+        return cls(
+            data[text_start:],
+            None if tail_size < 0 else data[id_end:text_start],
+            data[_RECORD_HEAD.size:id_end],
+            key,
+        )
+
+
+#: The head of a cached fragment: a mark of the record's layout, then two lengths.
+_RECORD_HEAD = struct.Struct("<2sIi")
+_RECORD_MARK = b"f2"
 
 
 class EntryItem(Protocol):

@@ -108,7 +108,10 @@ class KeyMaker:
 
     def __call__(self, *rest: bytes | str) -> str:
         digest = self._start.copy()
-        digest.update(_framed(rest))
+        for part in rest:
+            data = part.encode("utf-8") if isinstance(part, str) else part
+            digest.update(len(data).to_bytes(8, "big"))
+            digest.update(data)
         return digest.hexdigest()
 
 
