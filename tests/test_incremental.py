@@ -234,7 +234,7 @@ def test_incremental_validation_reports_what_whole_validation_reports(
         fingerprint = code_fingerprint()
         assert validate_written(document, "tei", data=document.data(), cache=cache,
                                 fingerprint=fingerprint, schemas_dir=schemas_dir) == []
-        text = document.fragments[index].text.decode("utf-8")
+        text = document.fragments[index].text_bytes().decode("utf-8")
         changed = _with_fragment(document, index, change(text))
         data = changed.data()
         expected = [str(f) for f in validate_bytes(data, schemas_dir=schemas_dir)]

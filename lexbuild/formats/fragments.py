@@ -51,8 +51,8 @@ class EntryFragment:
     per line; ``key``: the content key it is cached under (None: written afresh, not cached).
     """
 
-    text: bytes
-    tail: bytes | None
+    text: bytes | memoryview
+    tail: bytes | memoryview | None
     id_block: bytes
     key: str | None = None
 
@@ -73,10 +73,16 @@ class EntryFragment:
     def ids(self) -> tuple[str, ...]:
         return tuple(self.id_block.decode("utf-8").split("\n")) if self.id_block else ()
 
+    def text_bytes(self) -> bytes:
+        return bytes(self.text)
+
+    def tail_bytes(self) -> bytes | None:
+        return None if self.tail is None else bytes(self.tail)
+
     def to_bytes(self) -> bytes:
         # A fixed head (mark, length of the ids, length of the tail or -1: none), then the
         # ids, the tail and the text.
-        tail = self.tail or b""
+        tail = self.tail if self.tail is not None else b""
         head = _RECORD_HEAD.pack(
             _RECORD_MARK, len(self.id_block), -1 if self.tail is None else len(tail)
         )
@@ -84,7 +90,8 @@ class EntryFragment:
 
     @classmethod
     def from_bytes(cls, data: bytes, key: str | None = None) -> EntryFragment:
-        """The fragment ``to_bytes`` wrote; ValueError when ``data`` is not one."""
+        """The fragment ``to_bytes`` wrote; ValueError when ``data`` is not one. Its text and
+        tail are views into ``data`` (no copy of the 176 MB a big rebuild reuses)."""
         if len(data) < _RECORD_HEAD.size:
             raise ValueError("not a fragment record")
         mark, id_size, tail_size = _RECORD_HEAD.unpack_from(data)
@@ -92,9 +99,10 @@ class EntryFragment:
         if mark != _RECORD_MARK or tail_size < -1 or text_start > len(data):
             raise ValueError("not a fragment record")
         id_end = _RECORD_HEAD.size + id_size
+        view = memoryview(data)
         return cls(
-            data[text_start:],
-            None if tail_size < 0 else data[id_end:text_start],
+            view[text_start:],
+            None if tail_size < 0 else view[id_end:text_start],
             data[_RECORD_HEAD.size:id_end],
             key,
         )
@@ -188,10 +196,10 @@ class WrittenDocument:
     fragments: tuple[EntryFragment, ...]
     suffix: str
 
-    def parts(self) -> list[bytes]:
+    def parts(self) -> list[bytes | memoryview]:
         """The document's bytes in pieces, to be joined by newlines (the last piece empty:
         the document ends with one)."""
-        parts = [self.prefix.encode("utf-8")]
+        parts: list[bytes | memoryview] = [self.prefix.encode("utf-8")]
         parts += [fragment.text for fragment in self.fragments]
         parts += [fragment.tail for fragment in self.fragments if fragment.tail is not None]
         if self.suffix:

@@ -782,7 +782,8 @@ def _ids_and_references(
 
 
 def _fragment_summary(
-    text: bytes, tail: bytes | None, fmt: str, idref_names: frozenset[str]
+    text: bytes | memoryview, tail: bytes | memoryview | None, fmt: str,
+    idref_names: frozenset[str],
 ) -> bytes | None:
     """What a validated fragment keeps: the ids it bears and the ids it points at outside
     itself (None when it cannot be read on its own)."""
@@ -864,7 +865,7 @@ def validate_written(
     lexicon with extra schemas, whose rules lexbuild cannot know to be local) sends the
     document to ``validate_bytes`` whole: only a document proven valid skips it.
     """
-    from lexbuild.lexicon.build_cache import KeyMaker, content_key
+    from lexbuild.lexicon.build_cache import content_key
 
     def whole() -> list[XmlFinding]:
         return validate_bytes(
@@ -884,12 +885,13 @@ def validate_written(
     context = root_tag.group(0) if root_tag else document.prefix
     fragments = list(document.fragments)
     # A cached fragment's text is fixed by its content key; others are keyed by their text.
-    by_key = KeyMaker(fingerprint, CHUNK_KIND, fmt, sums, context, "key")
+    # (A content key followed by another is as unique as a hash of both, and far cheaper.)
+    by_key = content_key(fingerprint, CHUNK_KIND, fmt, sums, context, "key")
     keys = [
-        by_key(f.key)
+        by_key + f.key
         if f.key is not None
-        else content_key(fingerprint, CHUNK_KIND, fmt, sums, context, "text", f.text,
-                         f.tail or b"")
+        else content_key(fingerprint, CHUNK_KIND, fmt, sums, context, "text", f.text_bytes(),
+                         f.tail_bytes() or b"")
         for f in fragments
     ]
     skeleton_key = content_key(fingerprint, SKELETON_KIND, fmt, sums, document.prefix,

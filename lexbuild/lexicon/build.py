@@ -35,7 +35,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from lexbuild.errors import SourceError, SourceLocation
-from lexbuild.lexicon.build_cache import BuildCache, KeyMaker, code_fingerprint
+from lexbuild.lexicon.build_cache import BuildCache, code_fingerprint, content_key
 from lexbuild.lexicon.checks import (
     Finding,
     Problem,
@@ -271,9 +271,9 @@ class Build:
         return None
 
     def _keys(self, kind: str, *context: str) -> None:
-        key = KeyMaker(self.fingerprint, kind, *context)
+        prefix = content_key(self.fingerprint, kind, *context)
         for item in self.items:
-            item.key = key(item.digest)
+            item.key = prefix + item.digest  # see ``_keyed``
 
     def write(
         self,
@@ -327,6 +327,13 @@ def _paths_of(item: SourceEntry) -> Callable[[], list[tuple[str, FieldPath]]]:
     return lambda: item.ids
 
 
+def _keyed(prefix: str, digest: str, *rest: str) -> str:
+    """A record's key: the content key of what all records of a kind share (fixed length),
+    the sha256 of the entry file (fixed length), then anything else (the file name). As
+    unique as a hash of all three, without hashing each of 10,000 entries once more."""
+    return "".join((prefix, digest, *rest))
+
+
 def _read_bytes(name: str) -> bytes:
     """The file's bytes (``Path.read_bytes`` without its layers: 10,000 files are read on
     every run); b"" when it cannot be read: the careful path of ``open_build`` reports it."""
@@ -363,12 +370,11 @@ def open_build(
     files = entry_files(root)
     contents = [_read_bytes(str(path)) for path in files]
     digests = [hashlib.sha256(data).hexdigest() for data in contents]
-    entry_key = KeyMaker(fingerprint, ENTRY_KIND, meta_bytes)
-    keys = [entry_key(path.name, digest) for path, digest in zip(files, digests, strict=True)]
-    model_key_of = KeyMaker(fingerprint, MODEL_KIND)
-    model_keys = [
-        model_key_of(path.name, digest) for path, digest in zip(files, digests, strict=True)
-    ]
+    entry_prefix = content_key(fingerprint, ENTRY_KIND, meta_bytes)
+    model_prefix = content_key(fingerprint, MODEL_KIND)
+    named = list(zip(digests, (path.name for path in files), strict=True))
+    keys = [_keyed(entry_prefix, digest, name) for digest, name in named]
+    model_keys = [_keyed(model_prefix, digest, name) for digest, name in named]
     found = cache.get_many(ENTRY_KIND, keys) if cache is not None else {}
     reused: dict[int, SourceEntry] = {}
     for index, (path, data, digest, key) in enumerate(

@@ -29,7 +29,6 @@ from pathlib import Path
 __all__ = [
     "BUILD_DIR",
     "BuildCache",
-    "KeyMaker",
     "cache_folder",
     "code_fingerprint",
     "content_key",
@@ -97,22 +96,6 @@ def _framed(parts: Sequence[bytes | str]) -> bytes:
 def content_key(*parts: bytes | str) -> str:
     """sha256 over length-prefixed parts: ('ab', 'c') and ('a', 'bc') give different keys."""
     return hashlib.sha256(_framed(parts)).hexdigest()
-
-
-class KeyMaker:
-    """``content_key(*prefix, *rest)`` for many ``rest`` after one ``prefix``: the prefix is
-    hashed once (a rebuild makes tens of thousands of keys that share it)."""
-
-    def __init__(self, *prefix: bytes | str) -> None:
-        self._start = hashlib.sha256(_framed(prefix))
-
-    def __call__(self, *rest: bytes | str) -> str:
-        digest = self._start.copy()
-        for part in rest:
-            data = part.encode("utf-8") if isinstance(part, str) else part
-            digest.update(len(data).to_bytes(8, "big"))
-            digest.update(data)
-        return digest.hexdigest()
 
 
 class BuildCache:
