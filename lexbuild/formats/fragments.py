@@ -48,25 +48,29 @@ class EntryFragment:
 
     ``text``: the entry's lines (joined by newlines); ``tail``: lines it contributes after all
     entries (LMF frames), None when it has none; ``id_block``: the ids it wrote, in order, one
-    per line; ``key``: the content key it is cached under (None: written afresh, not cached).
+    per line; ``key``: the content key it is cached under (None: written afresh, not cached);
+    ``scope``: the id every id of the fragment is or extends (``id_scope``), None if none.
     """
 
     text: bytes | memoryview
     tail: bytes | memoryview | None
     id_block: bytes
     key: str | None = None
+    scope: bytes | None = None
 
     @classmethod
     def written(
-        cls, text: str, tail: str | None, ids: Iterable[str], key: str | None = None
+        cls, text: str, tail: str | None, ids: Sequence[str], key: str | None = None
     ) -> EntryFragment:
         """A fragment from the text a writer produced (checked for forbidden characters, so
         it encodes)."""
+        names = [name.encode("utf-8") for name in ids]
         return cls(
             text.encode("utf-8"),
             None if tail is None else tail.encode("utf-8"),
-            "\n".join(ids).encode("utf-8"),
+            b"\n".join(names),
             key,
+            id_scope(names),
         )
 
     @property
@@ -83,10 +87,12 @@ class EntryFragment:
         # A fixed head (mark, length of the ids, length of the tail or -1: none), then the
         # ids, the tail and the text.
         tail = self.tail if self.tail is not None else b""
+        scope = self.scope if self.scope is not None else b""
         head = _RECORD_HEAD.pack(
-            _RECORD_MARK, len(self.id_block), -1 if self.tail is None else len(tail)
+            _RECORD_MARK, len(self.id_block), -1 if self.tail is None else len(tail),
+            -1 if self.scope is None else len(scope),
         )
-        return b"".join((head, self.id_block, tail, self.text))
+        return b"".join((head, scope, self.id_block, tail, self.text))
 
     @classmethod
     def from_bytes(cls, data: bytes, key: str | None = None) -> EntryFragment:
@@ -94,23 +100,75 @@ class EntryFragment:
         tail are views into ``data`` (no copy of the 176 MB a big rebuild reuses)."""
         if len(data) < _RECORD_HEAD.size:
             raise ValueError("not a fragment record")
-        mark, id_size, tail_size = _RECORD_HEAD.unpack_from(data)
-        text_start = _RECORD_HEAD.size + id_size + max(tail_size, 0)
-        if mark != _RECORD_MARK or tail_size < -1 or text_start > len(data):
+        mark, id_size, tail_size, scope_size = _RECORD_HEAD.unpack_from(data)
+        id_start = _RECORD_HEAD.size + max(scope_size, 0)
+        id_end = id_start + id_size
+        text_start = id_end + max(tail_size, 0)
+        if (mark != _RECORD_MARK or tail_size < -1 or scope_size < -1
+                or text_start > len(data)):
             raise ValueError("not a fragment record")
-        id_end = _RECORD_HEAD.size + id_size
         view = memoryview(data)
         return cls(
             view[text_start:],
             None if tail_size < 0 else view[id_end:text_start],
-            data[_RECORD_HEAD.size:id_end],
+            data[id_start:id_end],
             key,
+            None if scope_size < 0 else data[_RECORD_HEAD.size:id_start],
         )
 
 
-#: The head of a cached fragment: a mark of the record's layout, then two lengths.
-_RECORD_HEAD = struct.Struct("<2sIi")
+#: The head of a cached fragment: a mark of the record's layout, then the lengths of the ids,
+#: the tail and the scope (-1: none); the scope, ids, tail and text follow.
+_RECORD_HEAD = struct.Struct("<2sIii")
 _RECORD_MARK = b"f2"
+
+
+# ------------------------------------------------------------------------------ id scopes
+#
+# Ids must be unique in a whole document: 200,000 ids in 10,000 entries, checked on every
+# rebuild by the writer and again by validation. lexbuild's ids are hierarchical (``agir``,
+# ``agir.s1``, ``agir.s1.f1``): when every id of a fragment is its scope P or starts with
+# "P.", two fragments can share an id only if one scope is the other or extends it. So the
+# check runs over one scope per entry instead of every id; a fragment without a scope (ids
+# written by hand in another scheme) has its ids checked one by one.
+
+
+def id_scope(ids: Sequence[bytes]) -> bytes | None:
+    """The first id, when every id is it or extends it ("P" or "P.x") and none repeats."""
+    if not ids:
+        return None
+    scope = ids[0]
+    below = scope + b"."
+    if len(set(ids)) != len(ids):
+        return None
+    if all(name.startswith(below) for name in ids[1:]):
+        return scope
+    return None
+
+
+def _outer_scopes(name: bytes) -> list[bytes]:
+    """``name`` and every id it extends: b"a.s1.f1" -> [b"a", b"a.s1", b"a.s1.f1"]."""
+    parts = name.split(b".")
+    return [b".".join(parts[: k + 1]) for k in range(len(parts))]
+
+
+def ids_distinct(scopes: Sequence[bytes], others: Sequence[bytes]) -> bool:
+    """True only when no id can be borne twice by fragments with these ``scopes`` (each
+    fragment's own ids already distinct) and the ``others`` ids (one by one: fragments
+    without a scope, the header). False may be a false alarm (an id of ``others`` inside a
+    scope that its fragment does not bear): callers then take the exact, slower path."""
+    distinct = set(scopes)
+    if len(distinct) != len(scopes):
+        return False
+    for scope in distinct:
+        if b"." in scope and any(outer in distinct for outer in _outer_scopes(scope)[:-1]):
+            return False
+    single = set(others)
+    if len(single) != len(others):
+        return False
+    return not any(
+        outer in distinct for name in single for outer in _outer_scopes(name)
+    )
 
 
 class EntryItem(Protocol):
@@ -177,14 +235,13 @@ class CachedFragmentsConflict(Exception):
     """Raised inside ``write_entries`` when a document reusing fragments meets an error."""
 
 
-def _all_distinct(ids: DocumentIds, blocks: list[bytes]) -> bool:
-    """True when the ids of the reused fragments (``blocks``) are distinct from each other and
-    from every id ``ids`` holds (the header's, the entries written afresh)."""
+def _all_distinct(ids: DocumentIds, reused: list[EntryFragment]) -> bool:
+    """True when the ids of the ``reused`` fragments are distinct from each other and from
+    every id ``ids`` holds (the header's, the entries written afresh)."""
+    scopes = [fragment.scope for fragment in reused if fragment.scope is not None]
+    blocks = [fragment.id_block for fragment in reused if fragment.scope is None]
     names = b"\n".join(block for block in blocks if block).split(b"\n") if blocks else []
-    distinct = set(names)
-    if len(distinct) != len(names):
-        return False
-    return distinct.isdisjoint(name.encode("utf-8") for name in ids.owner)
+    return ids_distinct(scopes, names + [name.encode("utf-8") for name in ids.owner])
 
 
 @dataclass(frozen=True, slots=True)
@@ -242,7 +299,7 @@ def write_entries(
     found = cache.get_many(kind, keys) if cache is not None and keys else {}
     fresh: dict[str, bytes] = {}
     fragments = []
-    reused: list[bytes] = []  # the id blocks of the fragments reused so far
+    reused: list[EntryFragment] = []  # the fragments reused so far
     for item in ordered:
         cached = found.get(item.key) if item.key is not None else None
         if cached is not None:
@@ -251,7 +308,7 @@ def write_entries(
             except ValueError:
                 pass  # unreadable: written afresh below
             else:
-                reused.append(fragment.id_block)
+                reused.append(fragment)
                 fragments.append(fragment)
                 continue
         entry = item.entry()
@@ -269,7 +326,7 @@ def write_entries(
             raise
         cacheable = item.key is not None and not recording.used_fresh
         fragment = EntryFragment.written(
-            text, tail_text, (name for name, _ in recording.added),
+            text, tail_text, [name for name, _ in recording.added],
             item.key if cacheable else None,
         )
         if cacheable and item.key is not None:

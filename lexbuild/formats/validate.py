@@ -35,6 +35,7 @@ from lexbuild.errors import (
     UnsafeXMLError,
     ValidationFailed,
 )
+from lexbuild.formats.fragments import id_scope, ids_distinct
 from lexbuild.formats.schemastore import LMF_DTD, TEI_RNG, TEI_SCH, SchemaSet, load_schemas
 from lexbuild.formats.xmlsafe import DEFAULT_MAX_BYTES, parse_untrusted, safe_parser
 from lexbuild.lexicon.model import ExtraSchema
@@ -797,7 +798,13 @@ def _fragment_summary(
     if fmt == "lmf":
         references = {r for r in references if not re.fullmatch(r"slot-?[0-9]+", r)}
     outside = sorted(references - set(ids))
+    scope = id_scope([name.encode("utf-8") for name in ids])
+    if scope is not None:  # "every id I bear is this one or extends it" (fragments.id_scope)
+        return _SCOPED + scope + b"\x00" + "\n".join(outside).encode("utf-8")
     return _joined(ids, outside)
+
+
+_SCOPED = b"\x01"  # starts a summary that gives a scope instead of its ids (no id starts so)
 
 
 def _joined(ids: Iterable[str], outside: Iterable[str]) -> bytes:
@@ -811,27 +818,31 @@ def _split(record: bytes) -> tuple[list[str], list[str]]:
 
 
 def _summaries_hold(header_ids: set[str], summaries: list[bytes]) -> bool:
-    """True when the fragments' ``summaries`` (``_joined``) bear no id twice, none of the
-    header's, and point outside themselves only at ids of the header. Works on the bytes of
-    all summaries at once: 200,000 ids are one split and one set, not 10,000 of each."""
+    """True when the fragments' ``summaries`` (``_fragment_summary``) bear no id twice, none
+    of the header's, and point outside themselves only at ids of the header. A summary gives
+    its fragment's ids or its scope (``fragments.ids_distinct``); False may be a false alarm
+    (the caller then validates the whole document). Works on the bytes of all summaries at
+    once: one split and one set, not 10,000 of each."""
+    scopes: list[bytes] = []
     id_blocks: list[bytes] = []
     outside_blocks: list[bytes] = []
     for record in summaries:
         ids, separator, outside = record.partition(b"\x00")
         if not separator or b"\x00" in outside:
             return False
-        if ids:
+        if ids[:1] == _SCOPED:
+            scopes.append(ids[1:])
+        elif ids:
             id_blocks.append(ids)
         if outside:
             outside_blocks.append(outside)
-    try:  # every record must be UTF-8, as ``_joined`` wrote it (one decode for all)
+    try:  # every record must be UTF-8, as ``_fragment_summary`` wrote it (one decode for all)
         b"\x00".join(summaries).decode("utf-8")
     except UnicodeDecodeError:
         return False
     header = {name.encode("utf-8") for name in header_ids}
     names = b"\n".join(id_blocks).split(b"\n") if id_blocks else []
-    distinct = set(names)
-    if len(distinct) != len(names) or not header.isdisjoint(distinct):
+    if not ids_distinct(scopes, names + list(header)):
         return False  # an id borne twice
     pointers = b"\n".join(outside_blocks).split(b"\n") if outside_blocks else []
     return header.issuperset(pointers)  # else a pointer into another entry or nowhere
