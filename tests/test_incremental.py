@@ -24,7 +24,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from lexbuild.errors import LexbuildError, SourceError
-from lexbuild.formats.fragments import EntryFragment, WrittenDocument
+from lexbuild.formats.fragments import EntryFragment, WrittenDocument, id_scope, ids_distinct
 from lexbuild.formats.lmf import to_lmf
 from lexbuild.formats.registry import ValidationContext, get_format
 from lexbuild.formats.tei import to_tei
@@ -112,6 +112,11 @@ EDITS = st.one_of(
     st.tuples(st.just("delete"), st.sampled_from(ENTRY_NAMES), st.none()),
     st.tuples(st.just("break-yaml"), st.sampled_from(ENTRY_NAMES), st.none()),
     st.tuples(st.just("drop-corpora"), st.none(), st.none()),
+    # ids inside another entry's scope (fragments.id_scope), without a duplicate: the fast
+    # id checks give a false alarm and the document is written and validated whole
+    st.tuples(st.just("foreign-id"), st.sampled_from(ENTRY_NAMES), st.sampled_from(ENTRY_NAMES)),
+    st.tuples(st.just("nested-copy"), st.sampled_from(ENTRY_NAMES),
+              st.sampled_from(ENTRY_NAMES)),
 )
 
 
@@ -132,6 +137,13 @@ def apply_edit(folder: Path, edit: tuple[str, Any, Any]) -> None:
     if kind == "break-yaml":
         path.write_text(path.read_text(encoding="utf-8") + "\n  : - [\n", encoding="utf-8")
         return
+    if kind == "nested-copy":  # a copy of the entry whose id extends another entry's id
+        text = path.read_text(encoding="utf-8")
+        copy = text.replace(f"id: {name}\n", f"id: {value}.x\n").replace(
+            f": {name}.", f": {value}.x."
+        )
+        (path.parent / f"{value}.x.yaml").write_text(copy, encoding="utf-8")
+        return
     try:
         entry = sources.load_entry(path)
     except SourceError:
@@ -150,6 +162,8 @@ def apply_edit(folder: Path, edit: tuple[str, Any, Any]) -> None:
         sense = sense.model_copy(update={"frames": frames, "examples": examples})
     elif kind == "duplicate-id":
         sense = sense.model_copy(update={"id": f"{value}.s1"})
+    elif kind == "foreign-id":
+        sense = sense.model_copy(update={"id": f"{value}.s9"})
     entry = entry.model_copy(update={"senses": [sense, *entry.senses[1:]]})
     path.write_text(sources.dump_entry(entry), encoding="utf-8")
 
@@ -428,3 +442,84 @@ def test_cached_entries_are_located_like_loaded_ones(tmp_path: Path) -> None:
                    sources.id_paths(entry)]
     for identifier in identifiers[::7]:
         assert build.source_map.locate_id(identifier) == loaded.source_map.locate_id(identifier)
+
+
+# ----------------------------------------------------------------------------- id scopes
+
+
+def test_id_scope_is_the_id_every_other_extends() -> None:
+    assert id_scope([b"agir", b"agir.s1", b"agir.s1.f1"]) == b"agir"
+    assert id_scope([b"agir", b"agirs.s1"]) is None  # 'agirs' does not extend 'agir'
+    assert id_scope([b"agir", b"agir.s1", b"agir.s1"]) is None  # borne twice
+    assert id_scope([b"agir.s1", b"agir"]) is None  # the scope comes first
+    assert id_scope([]) is None
+
+
+@pytest.mark.parametrize(
+    ("scopes", "others", "expected"),
+    [
+        ([b"agir", b"donner"], [b"rev.e1"], True),
+        ([b"agir", b"agir"], [], False),  # two entries with one id
+        ([b"agir", b"agir.s1"], [], False),  # one scope inside another: maybe shared
+        ([b"agir", b"agirs"], [b"agi"], True),  # prefixes of the text, not of the scheme
+        ([b"agir"], [b"agir.s9"], False),  # an id inside a scope: maybe borne twice
+        ([b"agir"], [b"agir"], False),
+        ([b"agir"], [b"x", b"x"], False),
+    ],
+)
+def test_ids_distinct_never_misses_a_shared_id(
+    scopes: list[bytes], others: list[bytes], expected: bool
+) -> None:
+    assert ids_distinct(scopes, others) is expected
+
+
+@settings(max_examples=200, deadline=None)
+@given(
+    st.lists(
+        st.lists(st.sampled_from(["a", "b", "a.b", "a.s1", "b.s1", "a.b.s1", "s1"]),
+                 min_size=1, max_size=4, unique=True),
+        min_size=1, max_size=5,
+    )
+)
+def test_ids_distinct_agrees_with_a_set_when_it_says_true(fragments: list[list[str]]) -> None:
+    """Property: whenever the check over scopes says 'distinct', the ids are distinct
+    (a set of every id has as many members as there are ids)."""
+    scopes, others = [], []
+    for ids in fragments:
+        names = [name.encode() for name in ids]
+        scope = id_scope(names)
+        if scope is None:
+            others += names
+        else:
+            scopes.append(scope)
+    every = [name for ids in fragments for name in ids]
+    if ids_distinct(scopes, others):
+        assert len(set(every)) == len(every)
+
+
+@pytest.mark.parametrize(
+    ("edits", "written"),
+    [
+        ([("nested-copy", "agir", "donner")], "ok"),
+        ([("foreign-id", "agir", "donner")], "ok"),
+        # two entries whose scopes nest ('donner', 'donner.x') sharing one id: an error
+        ([("nested-copy", "agir", "donner"), ("duplicate-id", "donner", "donner.x")], "error"),
+    ],
+)
+def test_ids_inside_another_entrys_scope(
+    edits: list[tuple[str, str, str]], written: str, tmp_path: Path, schemas_dir: Path
+) -> None:
+    """An id that the fast check over scopes cannot clear (inside another entry's scope):
+    the rebuild writes (or refuses) and validates what a cold build does."""
+    folder = _copy_sample(tmp_path / "sources")
+    with BuildCache(tmp_path / "cache") as cache:
+        cached_outcome(folder, schemas_dir, cache)
+        for edit in edits[:-1]:
+            apply_edit(folder, edit)
+        cached_outcome(folder, schemas_dir, cache)  # every entry but the last edit's cached
+        apply_edit(folder, edits[-1])
+        got = cached_outcome(folder, schemas_dir, cache)
+        again = cached_outcome(folder, schemas_dir, cache)
+    expected = cold_outcome(folder, schemas_dir)
+    assert expected["tei"][0] == expected["lmf"][0] == written
+    assert got == expected == again
