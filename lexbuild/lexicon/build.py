@@ -179,6 +179,7 @@ class Build:
     load_errors: list[SourceError] = field(default_factory=list)
     _lexicon: Lexicon | None = None
     _all_ids: set[str] | None = None
+    _held: set[str] | None = None
 
     # ---------------------------------------------------------------- the typed model
 
@@ -215,11 +216,14 @@ class Build:
     def all_ids(self) -> set[str]:
         """``Lexicon.all_ids`` from the ids each entry holds."""
         if self._all_ids is None:
-            found = set(self.meta.retired_ids)
-            for item in self.items:
-                found.update(item.names)
-            self._all_ids = found
+            self._all_ids = self._held_ids() | set(self.meta.retired_ids)
         return self._all_ids
+
+    def _held_ids(self) -> set[str]:
+        """Every id some entry holds (one union, shared by ``all_ids`` and check E104)."""
+        if self._held is None:
+            self._held = set().union(*(item.names for item in self.items))
+        return self._held
 
     # ---------------------------------------------------------------- check
 
@@ -244,7 +248,7 @@ class Build:
 
     def _ids_repeat(self) -> bool:
         total = sum(len(item.names) for item in self.items)
-        return len(set().union(*(item.names for item in self.items))) != total
+        return len(self._held_ids()) != total
 
     # ---------------------------------------------------------------- export
 
