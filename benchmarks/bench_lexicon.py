@@ -8,41 +8,29 @@ checks that the rebuild's TEI and LMF are byte-identical to a cold load and writ
 sources (tests/test_incremental.py compares whole builds after random edits). Each chain runs in
 a fresh process, as a user's command does.
 
-    python benchmarks/bench_lexicon.py [--entries 10000] [--schemas DIR]
+    python benchmarks/bench_lexicon.py [--entries 10000] [--schemas DIR] [--rebuilds K]
 
-Measured (10,000 entries; 2 cores shared with other jobs, load average 6.0 at the start, 1.7 at
-the end; each chain in a fresh process; seconds):
+``--rebuilds K`` times K rebuilds, each after one more edit of another entry, and prints their
+spread (the TEI and LMF of the last one are compared with a cold build).
 
-    chain (load, check, TEI, LMF, validate)     seconds  x cold
-    cold, no cache                                51.30   1.000
-    cold, filling the cache                       56.30   1.097
-    rebuild after one edit                         2.38   0.046
+Measured (10,000 entries, 76 MB of TEI, 100 MB of LMF; 2 cores shared with one other job, load
+average 1.4 to 2.3; each chain in a fresh process; two runs of each, alternated; seconds, CPU
+seconds in brackets):
 
-Cold: load 17.25, check 2.58, TEI 3.43, LMF 3.28, validation 24.77. Rebuild: load 0.57, check
-0.03, TEI 0.68, validate TEI 0.20, LMF 0.69, validate LMF 0.20; its TEI and LMF byte-identical
-to a cold build of the edited sources. Targets: rebuild <= 0.1x cold met; <= 2 s not met
-(2.38: the two exports, reading 176 MB of cached fragments and assembling the documents, take
-1.37); cold <= 45 s not met (51.3; the issue measured 74 s, an earlier quiet run 64.5 s).
-Runs on the same machine under load average 8 to 19 gave rebuild 0.083x and 0.024x cold (6.7 s
-and 7.4 s): compare ratios, not seconds.
+    chain (load, check, TEI, LMF, validate)   before (issue #15)           now
+    cold, no cache                            47.67 / 35.42                35.04 / 40.16
+    cold, filling the cache                   57.46 / 38.66                38.28 / 44.25
+    rebuild after one edit                    2.21 (2.10) / 1.72 (1.70)    0.86 (0.85) / 0.94 (0.94)
+    x cold                                    0.046 / 0.049                0.024 / 0.023
 
-Each stage now also prints its CPU seconds (the process's threads and its finished worker
-processes), steadier than wall seconds when other jobs share the cores. Two changes since, by
-CPU seconds on 2,000 entries, the old and new code alternated in one run (best of 3, one
-process): the YAML load builds values from the guard's event stream instead of parsing each
-file a second time, 3.42 -> 1.97 s (0.58x); the LMF pointer check walks the tree once instead
-of four '//' queries, 0.71 -> 0.16 s, whole LMF validation 1.29 -> 0.83 s. TEI RelaxNG
-validation (libxml2; 3.6 s CPU per 2,000 entries, linear in the entries, ~70% of the cold
-validation) is unchanged. The whole benchmark after them, on a machine far busier (load
-average 1.3 at the start, 4.6 at the end, other jobs on both cores; wall 2.7x CPU seconds):
-
-    chain                          seconds  x cold    cpu s  x cold
-    cold, no cache                  187.55   1.000    70.00   1.000
-    cold, filling the cache         271.13   1.446    85.64   1.223
-    rebuild after one edit            3.97   0.021     2.64   0.038
-
-Rebuild CPU: load 0.66, check 0.03, TEI 0.82 + validation 0.22, LMF 0.72 + validation 0.19;
-byte-identical to a cold build. The cold 45 s and the rebuild's 2 s need a quiet run to judge.
+Now, ten rebuilds (``--rebuilds 5``, two runs): 0.84-0.96 s, byte-identical to a cold build.
+One rebuild: load 0.25 (reading and hashing 10,000 files, their cache records), check 0.02,
+TEI 0.18 + validation 0.11, LMF 0.21 + validation 0.08. Before: load 0.51, check 0.03, TEI
+0.57 + 0.21, LMF 0.69 + 0.20 (fragments decoded, joined and encoded again; ids checked one
+by one, twice per format). Targets: rebuild <= 2 s and <= 0.1x cold met; cold <= 45 s met
+in these runs (earlier runs under heavier load measured 51-74 s). Runs under load average 8 to
+19 gave far slower seconds: compare ratios, or CPU seconds (the process's threads and its
+finished worker processes), not wall seconds.
 """
 
 from __future__ import annotations
