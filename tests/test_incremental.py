@@ -455,46 +455,59 @@ def test_id_scope_is_the_id_every_other_extends() -> None:
     assert id_scope([]) is None
 
 
-@pytest.mark.parametrize(
-    ("scopes", "others", "expected"),
-    [
-        ([b"agir", b"donner"], [b"rev.e1"], True),
-        ([b"agir", b"agir"], [], False),  # two entries with one id
-        ([b"agir", b"agir.s1"], [], False),  # one scope inside another: maybe shared
-        ([b"agir", b"agirs"], [b"agi"], True),  # prefixes of the text, not of the scheme
-        ([b"agir"], [b"agir.s9"], False),  # an id inside a scope: maybe borne twice
-        ([b"agir"], [b"agir"], False),
-        ([b"agir"], [b"x", b"x"], False),
-    ],
-)
-def test_ids_distinct_never_misses_a_shared_id(
-    scopes: list[bytes], others: list[bytes], expected: bool
-) -> None:
-    assert ids_distinct(scopes, others) is expected
-
-
-@settings(max_examples=200, deadline=None)
-@given(
-    st.lists(
-        st.lists(st.sampled_from(["a", "b", "a.b", "a.s1", "b.s1", "a.b.s1", "s1"]),
-                 min_size=1, max_size=4, unique=True),
-        min_size=1, max_size=5,
-    )
-)
-def test_ids_distinct_agrees_with_a_set_when_it_says_true(fragments: list[list[str]]) -> None:
-    """Property: whenever the check over scopes says 'distinct', the ids are distinct
-    (a set of every id has as many members as there are ids)."""
-    scopes, others = [], []
+def _distinct_by_scopes(fragments: list[list[str]], others: list[str]) -> bool:
+    scopes: list[bytes] = []
+    scoped: list[list[bytes]] = []
+    single = [name.encode() for name in others]
     for ids in fragments:
         names = [name.encode() for name in ids]
         scope = id_scope(names)
         if scope is None:
-            others += names
+            single += names
         else:
             scopes.append(scope)
-    every = [name for ids in fragments for name in ids]
-    if ids_distinct(scopes, others):
-        assert len(set(every)) == len(every)
+            scoped.append(names)
+    return ids_distinct(scopes, lambda k: scoped[k], single)
+
+
+@pytest.mark.parametrize(
+    ("fragments", "others", "expected"),
+    [
+        ([["agir", "agir.s1"], ["donner", "donner.s1"]], ["rev.e1"], True),
+        ([["agir"], ["agir"]], [], False),  # two entries with one id
+        ([["voler", "voler.s1"], ["voler.h2", "voler.h2.s1"]], [], True),  # homographs
+        ([["voler", "voler.h2.s1"], ["voler.h2", "voler.h2.s1"]], [], False),
+        ([["voler", "voler.h2"], ["voler.h2", "voler.h2.s1"]], [], False),
+        ([["agir", "agir.s1"], ["agirs", "agirs.s1"]], ["agi"], True),  # text prefixes only
+        ([["agir", "agir.s1"]], ["agir.s9"], True),  # inside the scope, not borne
+        ([["agir", "agir.s9"]], ["agir.s9"], False),
+        ([["agir"]], ["agir"], False),
+        ([["agir"]], ["x", "x"], False),
+        ([["a", "b"], ["b", "c"]], [], False),  # no scope: id by id
+    ],
+)
+def test_ids_distinct_finds_every_shared_id(
+    fragments: list[list[str]], others: list[str], expected: bool
+) -> None:
+    assert _distinct_by_scopes(fragments, others) is expected
+
+
+@settings(max_examples=300, deadline=None)
+@given(
+    st.lists(
+        st.lists(
+            st.sampled_from(["a", "b", "a.b", "a.s1", "b.s1", "a.b.s1", "a.h2", "a.h2.s1", "s1"]),
+            min_size=1, max_size=4, unique=True,
+        ),
+        min_size=1, max_size=5,
+    ),
+    st.lists(st.sampled_from(["a.s1", "rev.e1", "a.h2.s1", "b"]), max_size=2),
+)
+def test_ids_distinct_agrees_with_a_set(fragments: list[list[str]], others: list[str]) -> None:
+    """Property: the check by scopes says 'distinct' exactly when a set of every id has as
+    many members as there are ids."""
+    every = [name for ids in fragments for name in ids] + others
+    assert _distinct_by_scopes(fragments, others) is (len(set(every)) == len(every))
 
 
 @pytest.mark.parametrize(
@@ -523,3 +536,42 @@ def test_ids_inside_another_entrys_scope(
     expected = cold_outcome(folder, schemas_dir)
     assert expected["tei"][0] == expected["lmf"][0] == written
     assert got == expected == again
+
+
+def test_homographs_stay_on_the_fast_path(
+    tmp_path: Path, schemas_dir: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """Entries 'donner' and 'donner.x' (like a homograph 'voler.h2' of 'voler', one id
+    extends the other): a rebuild after an edit elsewhere reuses the fragments and their
+    verdicts, with neither a cold write nor a whole validation."""
+    from lexbuild.formats import lmf, tei, validate
+
+    folder = _copy_sample(tmp_path / "sources")
+    apply_edit(folder, ("nested-copy", "agir", "donner"))
+    with BuildCache(tmp_path / "cache") as cache:
+        cached_outcome(folder, schemas_dir, cache)
+        apply_edit(folder, ("gloss", "jouer", "changé"))
+        writes: list[tuple[str, bool]] = []
+        for module, name in ((tei, "write_tei"), (lmf, "write_lmf")):
+            original = getattr(module, name)
+
+            def spy(*args: Any, _original: Any = original, _name: str = name,
+                    **kwargs: Any) -> Any:
+                writes.append((_name, kwargs.get("cache") is not None))
+                return _original(*args, **kwargs)
+
+            monkeypatch.setattr(module, name, spy)
+        validated: list[int] = []
+        whole_validation = validate.validate_bytes
+
+        def validate_spy(data: bytes, **kwargs: Any) -> Any:
+            validated.append(len(data))
+            return whole_validation(data, **kwargs)
+
+        monkeypatch.setattr(validate, "validate_bytes", validate_spy)
+        got = cached_outcome(folder, schemas_dir, cache)
+    monkeypatch.undo()
+    assert got == cold_outcome(folder, schemas_dir)
+    assert writes == [("write_tei", True), ("write_lmf", True)]  # no cold write
+    documents = {len(got["tei"][1]), len(got["lmf"][1])}
+    assert validated and documents.isdisjoint(validated)  # parts only, never a whole one

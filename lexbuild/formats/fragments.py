@@ -128,9 +128,10 @@ _RECORD_MARK = b"f2"
 # Ids must be unique in a whole document: 200,000 ids in 10,000 entries, checked on every
 # rebuild by the writer and again by validation. lexbuild's ids are hierarchical (``agir``,
 # ``agir.s1``, ``agir.s1.f1``): when every id of a fragment is its scope P or starts with
-# "P.", two fragments can share an id only if one scope is the other or extends it. So the
-# check runs over one scope per entry instead of every id; a fragment without a scope (ids
-# written by hand in another scheme) has its ids checked one by one.
+# "P.", two fragments can share an id only if one scope is the other or extends it (a
+# homograph ``voler.h2`` of ``voler``). So the check runs over one scope per entry, and looks
+# at single ids only where scopes meet; a fragment without a scope (ids written by hand in
+# another scheme) has its ids checked one by one.
 
 
 def id_scope(ids: Sequence[bytes]) -> bytes | None:
@@ -152,23 +153,44 @@ def _outer_scopes(name: bytes) -> list[bytes]:
     return [b".".join(parts[: k + 1]) for k in range(len(parts))]
 
 
-def ids_distinct(scopes: Sequence[bytes], others: Sequence[bytes]) -> bool:
-    """True only when no id can be borne twice by fragments with these ``scopes`` (each
-    fragment's own ids already distinct) and the ``others`` ids (one by one: fragments
-    without a scope, the header). False may be a false alarm (an id of ``others`` inside a
-    scope that its fragment does not bear): callers then take the exact, slower path."""
-    distinct = set(scopes)
-    if len(distinct) != len(scopes):
-        return False
-    for scope in distinct:
-        if b"." in scope and any(outer in distinct for outer in _outer_scopes(scope)[:-1]):
-            return False
+def ids_distinct(
+    scopes: Sequence[bytes], ids_of: Callable[[int], Iterable[bytes]], others: Sequence[bytes]
+) -> bool:
+    """True exactly when no id is borne twice by: fragments with these ``scopes``
+    (``id_scope``: each one's ids distinct and inside its scope; ``ids_of(k)``: the ids of
+    fragment k, asked for only where scopes meet) and the ``others`` ids (fragments without
+    a scope, the header), checked one by one."""
+    index: dict[bytes, int] = {}
+    for k, scope in enumerate(scopes):
+        if index.setdefault(scope, k) != k:
+            return False  # two fragments bear their scope
     single = set(others)
     if len(single) != len(others):
         return False
-    return not any(
-        outer in distinct for name in single for outer in _outer_scopes(name)
-    )
+    held: dict[int, set[bytes]] = {}
+
+    def bears(k: int, name: bytes) -> bool:
+        if k not in held:
+            held[k] = set(ids_of(k))
+        return name in held[k]
+
+    for k, scope in enumerate(scopes):  # scopes that meet: the outer one's ids inside
+        if b"." not in scope:
+            continue
+        inside = scope + b"."
+        for outer in _outer_scopes(scope)[:-1]:
+            j = index.get(outer)
+            if j is not None and any(
+                (name == scope or name.startswith(inside)) and bears(k, name)
+                for name in ids_of(j)
+            ):
+                return False
+    for name in single:  # a single id can only be borne by a fragment whose scope it is in
+        for outer in _outer_scopes(name):
+            j = index.get(outer)
+            if j is not None and bears(j, name):
+                return False
+    return True
 
 
 class EntryItem(Protocol):
@@ -238,10 +260,14 @@ class CachedFragmentsConflict(Exception):
 def _all_distinct(ids: DocumentIds, reused: list[EntryFragment]) -> bool:
     """True when the ids of the ``reused`` fragments are distinct from each other and from
     every id ``ids`` holds (the header's, the entries written afresh)."""
-    scopes = [fragment.scope for fragment in reused if fragment.scope is not None]
+    scoped = [fragment for fragment in reused if fragment.scope is not None]
     blocks = [fragment.id_block for fragment in reused if fragment.scope is None]
     names = b"\n".join(block for block in blocks if block).split(b"\n") if blocks else []
-    return ids_distinct(scopes, names + [name.encode("utf-8") for name in ids.owner])
+    return ids_distinct(
+        [fragment.scope for fragment in scoped if fragment.scope is not None],
+        lambda k: scoped[k].id_block.split(b"\n"),
+        names + [name.encode("utf-8") for name in ids.owner],
+    )
 
 
 @dataclass(frozen=True, slots=True)

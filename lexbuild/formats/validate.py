@@ -798,13 +798,14 @@ def _fragment_summary(
     if fmt == "lmf":
         references = {r for r in references if not re.fullmatch(r"slot-?[0-9]+", r)}
     outside = sorted(references - set(ids))
-    scope = id_scope([name.encode("utf-8") for name in ids])
-    if scope is not None:  # "every id I bear is this one or extends it" (fragments.id_scope)
-        return _SCOPED + scope + b"\x00" + "\n".join(outside).encode("utf-8")
+    if id_scope([name.encode("utf-8") for name in ids]) is not None:
+        return _SCOPED + _joined(ids, outside)  # its first id is its scope
     return _joined(ids, outside)
 
 
-_SCOPED = b"\x01"  # starts a summary that gives a scope instead of its ids (no id starts so)
+#: Starts the summary of a fragment whose ids are all its first id or extend it
+#: (``fragments.id_scope``); no id starts with this character.
+_SCOPED = b"\x01"
 
 
 def _joined(ids: Iterable[str], outside: Iterable[str]) -> bytes:
@@ -819,11 +820,11 @@ def _split(record: bytes) -> tuple[list[str], list[str]]:
 
 def _summaries_hold(header_ids: set[str], summaries: list[bytes]) -> bool:
     """True when the fragments' ``summaries`` (``_fragment_summary``) bear no id twice, none
-    of the header's, and point outside themselves only at ids of the header. A summary gives
-    its fragment's ids or its scope (``fragments.ids_distinct``); False may be a false alarm
-    (the caller then validates the whole document). Works on the bytes of all summaries at
-    once: one split and one set, not 10,000 of each."""
+    of the header's, and point outside themselves only at ids of the header. Ids are checked
+    by scope (``fragments.ids_distinct``) where a summary has one, else one by one, on the
+    bytes of all summaries at once: one split and one set, not 10,000 of each."""
     scopes: list[bytes] = []
+    scoped: list[bytes] = []
     id_blocks: list[bytes] = []
     outside_blocks: list[bytes] = []
     for record in summaries:
@@ -831,7 +832,8 @@ def _summaries_hold(header_ids: set[str], summaries: list[bytes]) -> bool:
         if not separator or b"\x00" in outside:
             return False
         if ids[:1] == _SCOPED:
-            scopes.append(ids[1:])
+            scoped.append(ids[1:])
+            scopes.append(ids[1:].partition(b"\n")[0])
         elif ids:
             id_blocks.append(ids)
         if outside:
@@ -842,7 +844,7 @@ def _summaries_hold(header_ids: set[str], summaries: list[bytes]) -> bool:
         return False
     header = {name.encode("utf-8") for name in header_ids}
     names = b"\n".join(id_blocks).split(b"\n") if id_blocks else []
-    if not ids_distinct(scopes, names + list(header)):
+    if not ids_distinct(scopes, lambda k: scoped[k].split(b"\n"), names + list(header)):
         return False  # an id borne twice
     pointers = b"\n".join(outside_blocks).split(b"\n") if outside_blocks else []
     return header.issuperset(pointers)  # else a pointer into another entry or nowhere
