@@ -14,20 +14,21 @@ a fresh process, as a user's command does.
 spread (the TEI and LMF of the last one are compared with a cold build).
 
 Measured (10,000 entries, 76 MB of TEI, 100 MB of LMF; 2 cores shared with one other job, load
-average 1.4 to 2.3; each chain in a fresh process; two runs of each, alternated; seconds, CPU
-seconds in brackets):
+average 0.4 to 2.3; each chain in a fresh process; runs before and after alternated; seconds,
+CPU seconds in brackets):
 
-    chain (load, check, TEI, LMF, validate)   before (issue #15)           now
-    cold, no cache                            47.67 / 35.42                35.04 / 40.16
-    cold, filling the cache                   57.46 / 38.66                38.28 / 44.25
-    rebuild after one edit                    2.21 (2.10) / 1.72 (1.70)    0.86 (0.85) / 0.94 (0.94)
-    x cold                                    0.046 / 0.049                0.024 / 0.023
+    chain (load, check, TEI, LMF, validate)   before (issue #15, 3 runs)   now (2 runs)
+    cold, no cache                            47.67 / 35.42 / 29.01        29.49 / 30.31
+    cold, filling the cache                   57.46 / 38.66 / 36.62        36.21 / 36.23
+    rebuild after one edit                    2.21 / 1.72 / 1.65           0.89 / 0.92
+      (cpu)                                   2.10 / 1.70 / 1.65           0.87 / 0.91
+    x cold                                    0.046 / 0.049 / 0.057        0.030 / 0.030
 
-Now, ten rebuilds (``--rebuilds 5``, two runs): 0.84-0.96 s, byte-identical to a cold build.
+Now, ten rebuilds (``--rebuilds 5``, two runs): 0.88-0.92 s, byte-identical to a cold build.
 One rebuild: load 0.25 (reading and hashing 10,000 files, their cache records), check 0.02,
-TEI 0.18 + validation 0.11, LMF 0.21 + validation 0.08. Before: load 0.51, check 0.03, TEI
-0.57 + 0.21, LMF 0.69 + 0.20 (fragments decoded, joined and encoded again; ids checked one
-by one, twice per format). Targets: rebuild <= 2 s and <= 0.1x cold met; cold <= 45 s met
+TEI 0.19 + validation 0.13, LMF 0.21 + validation 0.10. Before: load 0.34-0.51, check 0.02,
+TEI 0.43-0.57 + 0.16-0.21, LMF 0.54-0.69 + 0.16-0.20 (fragments decoded, joined and encoded
+again; ids checked one by one, twice per format). Targets: rebuild <= 2 s and <= 0.1x cold met; cold <= 45 s met
 in these runs (earlier runs under heavier load measured 51-74 s). Runs under load average 8 to
 19 gave far slower seconds: compare ratios, or CPU seconds (the process's threads and its
 finished worker processes), not wall seconds.

@@ -87,18 +87,14 @@ def code_fingerprint() -> str:
     return digest.hexdigest()
 
 
-def _framed(parts: Sequence[bytes | str]) -> bytes:
+def content_key(*parts: bytes | str) -> str:
+    """sha256 over length-prefixed parts: ('ab', 'c') and ('a', 'bc') give different keys."""
     pieces = []
     for part in parts:
         data = part.encode("utf-8") if isinstance(part, str) else part
         pieces.append(len(data).to_bytes(8, "big"))
         pieces.append(data)
-    return b"".join(pieces)
-
-
-def content_key(*parts: bytes | str) -> str:
-    """sha256 over length-prefixed parts: ('ab', 'c') and ('a', 'bc') give different keys."""
-    return hashlib.sha256(_framed(parts)).hexdigest()
+    return hashlib.sha256(b"".join(pieces)).hexdigest()
 
 
 class BuildCache:
