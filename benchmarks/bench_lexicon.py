@@ -28,10 +28,10 @@ Now, ten rebuilds (``--rebuilds 5``, two runs): 0.88-0.92 s, byte-identical to a
 One rebuild: load 0.25 (reading and hashing 10,000 files, their cache records), check 0.02,
 TEI 0.19 + validation 0.13, LMF 0.21 + validation 0.10. Before: load 0.34-0.51, check 0.02,
 TEI 0.43-0.57 + 0.16-0.21, LMF 0.54-0.69 + 0.16-0.20 (fragments decoded, joined and encoded
-again; ids checked one by one, twice per format). Targets: rebuild <= 2 s and <= 0.1x cold met; cold <= 45 s met
-in these runs (earlier runs under heavier load measured 51-74 s). Runs under load average 8 to
-19 gave far slower seconds: compare ratios, or CPU seconds (the process's threads and its
-finished worker processes), not wall seconds.
+again; ids checked one by one, twice per format). Targets: rebuild <= 2 s and <= 0.1x cold
+met; cold <= 45 s met in these runs (earlier runs under heavier load measured 51-74 s). Runs
+under load average 8 to 19 gave far slower seconds: compare ratios, or CPU seconds (the
+process's threads and its finished worker processes), not wall seconds.
 """
 
 from __future__ import annotations
