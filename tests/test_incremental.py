@@ -24,7 +24,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from lexbuild.errors import LexbuildError, SourceError
-from lexbuild.formats.fragments import EntryFragment, WrittenDocument
+from lexbuild.formats.fragments import EntryFragment, WrittenDocument, id_scope, ids_distinct
 from lexbuild.formats.lmf import to_lmf
 from lexbuild.formats.registry import ValidationContext, get_format
 from lexbuild.formats.tei import to_tei
@@ -112,6 +112,11 @@ EDITS = st.one_of(
     st.tuples(st.just("delete"), st.sampled_from(ENTRY_NAMES), st.none()),
     st.tuples(st.just("break-yaml"), st.sampled_from(ENTRY_NAMES), st.none()),
     st.tuples(st.just("drop-corpora"), st.none(), st.none()),
+    # ids inside another entry's scope (fragments.id_scope), without a duplicate: the fast
+    # id checks give a false alarm and the document is written and validated whole
+    st.tuples(st.just("foreign-id"), st.sampled_from(ENTRY_NAMES), st.sampled_from(ENTRY_NAMES)),
+    st.tuples(st.just("nested-copy"), st.sampled_from(ENTRY_NAMES),
+              st.sampled_from(ENTRY_NAMES)),
 )
 
 
@@ -132,6 +137,13 @@ def apply_edit(folder: Path, edit: tuple[str, Any, Any]) -> None:
     if kind == "break-yaml":
         path.write_text(path.read_text(encoding="utf-8") + "\n  : - [\n", encoding="utf-8")
         return
+    if kind == "nested-copy":  # a copy of the entry whose id extends another entry's id
+        text = path.read_text(encoding="utf-8")
+        copy = text.replace(f"id: {name}\n", f"id: {value}.x\n").replace(
+            f": {name}.", f": {value}.x."
+        )
+        (path.parent / f"{value}.x.yaml").write_text(copy, encoding="utf-8")
+        return
     try:
         entry = sources.load_entry(path)
     except SourceError:
@@ -150,6 +162,8 @@ def apply_edit(folder: Path, edit: tuple[str, Any, Any]) -> None:
         sense = sense.model_copy(update={"frames": frames, "examples": examples})
     elif kind == "duplicate-id":
         sense = sense.model_copy(update={"id": f"{value}.s1"})
+    elif kind == "foreign-id":
+        sense = sense.model_copy(update={"id": f"{value}.s9"})
     entry = entry.model_copy(update={"senses": [sense, *entry.senses[1:]]})
     path.write_text(sources.dump_entry(entry), encoding="utf-8")
 
@@ -204,7 +218,9 @@ def _sample_document(schemas_dir: Path) -> tuple[WrittenDocument, bytes]:
 
 def _with_fragment(document: WrittenDocument, index: int, text: str) -> WrittenDocument:
     fragments = list(document.fragments)
-    fragments[index] = EntryFragment(text, fragments[index].tail, fragments[index].ids)
+    fragments[index] = EntryFragment(
+        text.encode("utf-8"), fragments[index].tail, fragments[index].id_block
+    )
     return WrittenDocument(document.prefix, tuple(fragments), document.suffix)
 
 
@@ -232,7 +248,8 @@ def test_incremental_validation_reports_what_whole_validation_reports(
         fingerprint = code_fingerprint()
         assert validate_written(document, "tei", data=document.data(), cache=cache,
                                 fingerprint=fingerprint, schemas_dir=schemas_dir) == []
-        changed = _with_fragment(document, index, change(document.fragments[index].text))
+        text = document.fragments[index].text_bytes().decode("utf-8")
+        changed = _with_fragment(document, index, change(text))
         data = changed.data()
         expected = [str(f) for f in validate_bytes(data, schemas_dir=schemas_dir)]
         got = [str(f) for f in validate_written(changed, "tei", data=data, cache=cache,
@@ -425,3 +442,136 @@ def test_cached_entries_are_located_like_loaded_ones(tmp_path: Path) -> None:
                    sources.id_paths(entry)]
     for identifier in identifiers[::7]:
         assert build.source_map.locate_id(identifier) == loaded.source_map.locate_id(identifier)
+
+
+# ----------------------------------------------------------------------------- id scopes
+
+
+def test_id_scope_is_the_id_every_other_extends() -> None:
+    assert id_scope([b"agir", b"agir.s1", b"agir.s1.f1"]) == b"agir"
+    assert id_scope([b"agir", b"agirs.s1"]) is None  # 'agirs' does not extend 'agir'
+    assert id_scope([b"agir", b"agir.s1", b"agir.s1"]) is None  # borne twice
+    assert id_scope([b"agir.s1", b"agir"]) is None  # the scope comes first
+    assert id_scope([]) is None
+
+
+def _distinct_by_scopes(fragments: list[list[str]], others: list[str]) -> bool:
+    scopes: list[bytes] = []
+    scoped: list[list[bytes]] = []
+    single = [name.encode() for name in others]
+    for ids in fragments:
+        names = [name.encode() for name in ids]
+        scope = id_scope(names)
+        if scope is None:
+            single += names
+        else:
+            scopes.append(scope)
+            scoped.append(names)
+    return ids_distinct(scopes, lambda k: scoped[k], single)
+
+
+@pytest.mark.parametrize(
+    ("fragments", "others", "expected"),
+    [
+        ([["agir", "agir.s1"], ["donner", "donner.s1"]], ["rev.e1"], True),
+        ([["agir"], ["agir"]], [], False),  # two entries with one id
+        ([["voler", "voler.s1"], ["voler.h2", "voler.h2.s1"]], [], True),  # homographs
+        ([["voler", "voler.h2.s1"], ["voler.h2", "voler.h2.s1"]], [], False),
+        ([["voler", "voler.h2"], ["voler.h2", "voler.h2.s1"]], [], False),
+        ([["agir", "agir.s1"], ["agirs", "agirs.s1"]], ["agi"], True),  # text prefixes only
+        ([["agir", "agir.s1"]], ["agir.s9"], True),  # inside the scope, not borne
+        ([["agir", "agir.s9"]], ["agir.s9"], False),
+        ([["agir"]], ["agir"], False),
+        ([["agir"]], ["x", "x"], False),
+        ([["a", "b"], ["b", "c"]], [], False),  # no scope: id by id
+    ],
+)
+def test_ids_distinct_finds_every_shared_id(
+    fragments: list[list[str]], others: list[str], expected: bool
+) -> None:
+    assert _distinct_by_scopes(fragments, others) is expected
+
+
+@settings(max_examples=300, deadline=None)
+@given(
+    st.lists(
+        st.lists(
+            st.sampled_from(["a", "b", "a.b", "a.s1", "b.s1", "a.b.s1", "a.h2", "a.h2.s1", "s1"]),
+            min_size=1, max_size=4, unique=True,
+        ),
+        min_size=1, max_size=5,
+    ),
+    st.lists(st.sampled_from(["a.s1", "rev.e1", "a.h2.s1", "b"]), max_size=2),
+)
+def test_ids_distinct_agrees_with_a_set(fragments: list[list[str]], others: list[str]) -> None:
+    """Property: the check by scopes says 'distinct' exactly when a set of every id has as
+    many members as there are ids."""
+    every = [name for ids in fragments for name in ids] + others
+    assert _distinct_by_scopes(fragments, others) is (len(set(every)) == len(every))
+
+
+@pytest.mark.parametrize(
+    ("edits", "written"),
+    [
+        ([("nested-copy", "agir", "donner")], "ok"),
+        ([("foreign-id", "agir", "donner")], "ok"),
+        # two entries whose scopes nest ('donner', 'donner.x') sharing one id: an error
+        ([("nested-copy", "agir", "donner"), ("duplicate-id", "donner", "donner.x")], "error"),
+    ],
+)
+def test_ids_inside_another_entrys_scope(
+    edits: list[tuple[str, str, str]], written: str, tmp_path: Path, schemas_dir: Path
+) -> None:
+    """An id that the fast check over scopes cannot clear (inside another entry's scope):
+    the rebuild writes (or refuses) and validates what a cold build does."""
+    folder = _copy_sample(tmp_path / "sources")
+    with BuildCache(tmp_path / "cache") as cache:
+        cached_outcome(folder, schemas_dir, cache)
+        for edit in edits[:-1]:
+            apply_edit(folder, edit)
+        cached_outcome(folder, schemas_dir, cache)  # every entry but the last edit's cached
+        apply_edit(folder, edits[-1])
+        got = cached_outcome(folder, schemas_dir, cache)
+        again = cached_outcome(folder, schemas_dir, cache)
+    expected = cold_outcome(folder, schemas_dir)
+    assert expected["tei"][0] == expected["lmf"][0] == written
+    assert got == expected == again
+
+
+def test_homographs_stay_on_the_fast_path(
+    tmp_path: Path, schemas_dir: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """Entries 'donner' and 'donner.x' (like a homograph 'voler.h2' of 'voler', one id
+    extends the other): a rebuild after an edit elsewhere reuses the fragments and their
+    verdicts, with neither a cold write nor a whole validation."""
+    from lexbuild.formats import lmf, tei, validate
+
+    folder = _copy_sample(tmp_path / "sources")
+    apply_edit(folder, ("nested-copy", "agir", "donner"))
+    with BuildCache(tmp_path / "cache") as cache:
+        cached_outcome(folder, schemas_dir, cache)
+        apply_edit(folder, ("gloss", "jouer", "changé"))
+        writes: list[tuple[str, bool]] = []
+        for module, name in ((tei, "write_tei"), (lmf, "write_lmf")):
+            original = getattr(module, name)
+
+            def spy(*args: Any, _original: Any = original, _name: str = name,
+                    **kwargs: Any) -> Any:
+                writes.append((_name, kwargs.get("cache") is not None))
+                return _original(*args, **kwargs)
+
+            monkeypatch.setattr(module, name, spy)
+        validated: list[int] = []
+        whole_validation = validate.validate_bytes
+
+        def validate_spy(data: bytes, **kwargs: Any) -> Any:
+            validated.append(len(data))
+            return whole_validation(data, **kwargs)
+
+        monkeypatch.setattr(validate, "validate_bytes", validate_spy)
+        got = cached_outcome(folder, schemas_dir, cache)
+    monkeypatch.undo()
+    assert got == cold_outcome(folder, schemas_dir)
+    assert writes == [("write_tei", True), ("write_lmf", True)]  # no cold write
+    documents = {len(got["tei"][1]), len(got["lmf"][1])}
+    assert validated and documents.isdisjoint(validated)  # parts only, never a whole one

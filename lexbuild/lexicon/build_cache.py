@@ -40,6 +40,9 @@ DB_FILE = "results.sqlite"
 BUSY_SECONDS = 30.0
 _BATCH = 500  # keys per SELECT (SQLite allows at most 32,766 variables)
 _LOG = logging.getLogger("lexbuild")
+#: The layout of the records, part of every key (with the modules' text below): 2 since
+#: entry records and fragments are binary (fixed heads, fragments kept as UTF-8 bytes).
+RECORD_LAYOUT = 2
 
 #: Modules whose code shapes a cached result: their text is part of every key, so that a new
 #: version of any of them (released or not) never reuses a result of the old one.
@@ -75,7 +78,7 @@ def code_fingerprint() -> str:
     """sha256 of the tool version and the text of the modules that shape cached results."""
     from lexbuild import __version__
 
-    digest = hashlib.sha256(f"lexbuild {__version__}\n".encode())
+    digest = hashlib.sha256(f"lexbuild {__version__} records {RECORD_LAYOUT}\n".encode())
     package = Path(__file__).resolve().parent.parent
     for name in _CODE_MODULES:
         digest.update(name.encode() + b"\0")
