@@ -277,7 +277,7 @@ class Build:
     def _keys(self, kind: str, *context: str) -> None:
         prefix = content_key(self.fingerprint, kind, *context)
         for item in self.items:
-            item.key = prefix + item.digest  # see ``_keyed``
+            item.key = _keyed(prefix, item.digest)
 
     def write(
         self,
