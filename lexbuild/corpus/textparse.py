@@ -387,7 +387,7 @@ def nonverbal_upos(
     that could be a finite verb ("innove", "assista") stays a verb; a language without a
     table of endings keeps its tags.
     """
-    language = language.split("-")[0].lower()
+    language = _primary(language)
     endings = _PAST_PARTICIPLE_ENDINGS.get(language)
     retagged = list(upos)
     if endings is None:
@@ -683,6 +683,11 @@ class _Lexicon:
     stative_participles: frozenset[str] = frozenset()
 
 
+def _primary(language: str) -> str:
+    """The primary subtag of a language tag ("fr-CA" -> "fr"): the key of the tables here."""
+    return language.split("-")[0].lower()
+
+
 def _forms(text: str) -> frozenset[str]:
     return frozenset(text.split())
 
@@ -750,7 +755,7 @@ def lexical_repairs(
     * the relative "où" as ``iobj`` is ``obl:mod``; the clitic "y" as ``iobj`` is plain
       ``obl`` (whether it is a complement is decided from the corpus, argumenthood).
     """
-    lexicon = _LEXICONS.get(language.split("-")[0].lower())
+    lexicon = _LEXICONS.get(_primary(language))
     new = list(deps)
     if lexicon is None:
         return new
@@ -859,7 +864,7 @@ def clause_repairs(
     * the passive auxiliary without an agent of a stative participle ("est située") is
       ``cop`` and the subject ``nsubj``.
     """
-    lexicon = _LEXICONS.get(language.split("-")[0].lower())
+    lexicon = _LEXICONS.get(_primary(language))
     new = list(deps)
     if lexicon is None:
         return new
