@@ -285,6 +285,13 @@ def _group_average_merges(
     return merges[:done]
 
 
+def _members(labels: IntArray, k: int) -> list[IntArray]:
+    """The rows of each label 0..k-1, in row order."""
+    order = np.argsort(labels, kind="stable")
+    bounds = np.searchsorted(labels[order], np.arange(k + 1))
+    return [order[bounds[c] : bounds[c + 1]] for c in range(k)]
+
+
 def _same_partition(a: IntArray, b: IntArray) -> bool:
     """Whether two labellings are the same partition (names aside)."""
     return bool(np.array_equal(relabel(a), relabel(b)))
@@ -494,9 +501,7 @@ class AgglomerativeClusterer:
         if component is None:
             whole = np.arange(n)
             return _Forest([whole], [self._tree(Xn) if n >= 2 else None], n, np.inf)
-        order = np.argsort(component, kind="stable")
-        bounds = np.searchsorted(component[order], np.arange(int(component.max()) + 2))
-        parts = [order[bounds[c] : bounds[c + 1]] for c in range(bounds.size - 1)]
+        parts = _members(component, int(component.max()) + 1)
         trees = [self._tree(Xn[members]) if members.size >= 2 else None for members in parts]
         return _Forest(parts, trees, n, top)
 
@@ -564,9 +569,7 @@ class AgglomerativeClusterer:
             tree, leaf_sizes, self.refine_max, keep_whole_below
         )
         group = group_of_leaf[leaf]
-        order = np.argsort(group, kind="stable")
-        bounds = np.searchsorted(group[order], np.arange(len(refine) + 1))
-        members_of = [order[bounds[g] : bounds[g + 1]] for g in range(len(refine))]
+        members_of = _members(group, len(refine))
         top = float(self.threshold)
         forests = [
             self._forest(Xn[members], top) if exact and members.size >= 2 else None
@@ -621,35 +624,43 @@ class AgglomerativeClusterer:
         self, Xn: npt.NDArray[np.float32]
     ) -> tuple[IntArray, npt.NDArray[np.float64], npt.NDArray[np.float64]]:
         """k-means micro-cluster of each row, and each micro-cluster's row sum and size."""
-        from sklearn.cluster import KMeans, MiniBatchKMeans
         from threadpoolctl import threadpool_limits
 
         n = Xn.shape[0]
         # At least enough micro-clusters to average a fraction of the subtree budget: a
         # micro-cluster over the budget cannot be refined and would stay one piece.
-        k = min(n, max(self.n_micro, -(-_MICRO_PER_BUDGET * n // self.refine_max)))
-        # One initialisation from random points, in one thread. The micro-clusters only need
-        # to be tight: on overlapping 768-d blobs k-means++ initialisation was 3-6x slower than
-        # random initialisation for the same inertia (within 0.1%), and BLAS threads competing
-        # with another busy core made the k-means stage up to 10x slower
-        # (benchmarks/bench_clustering.py).
-        km: Any
+        k = min(n, max(self.n_micro, self._parts_under_budget(n)))
+        # One thread: BLAS threads competing with another busy core made the k-means stage up
+        # to 10x slower (benchmarks/bench_clustering.py).
+        with threadpool_limits(limits=1):
+            micro = relabel(self._k_means(k, n).fit_predict(Xn))
+            micro = self._split_oversized(Xn, micro)
+        m = int(micro.max()) + 1
+        sizes = np.bincount(micro, minlength=m).astype(np.float64)
+        return micro, group_sums(Xn, micro, m), sizes
+
+    def _k_means(self, k: int, n: int) -> Any:
+        """k-means for ``k`` clusters of ``n`` rows, from random points, one initialisation.
+
+        The micro-clusters only need to be tight: on overlapping 768-d blobs k-means++
+        initialisation was 3-6x slower than random initialisation for the same inertia (within
+        0.1%) (benchmarks/bench_clustering.py). Mini-batches from ten rows per cluster on.
+        """
+        from sklearn.cluster import KMeans, MiniBatchKMeans
+
         if n > 10 * k:
-            km = MiniBatchKMeans(
+            return MiniBatchKMeans(
                 n_clusters=k,
                 random_state=self.random_state,
                 n_init=1,
                 batch_size=4096,
                 init="random",
             )
-        else:
-            km = KMeans(n_clusters=k, random_state=self.random_state, n_init=1, init="random")
-        with threadpool_limits(limits=1):
-            micro = relabel(km.fit_predict(Xn))
-            micro = self._split_oversized(Xn, micro)
-        m = int(micro.max()) + 1
-        sizes = np.bincount(micro, minlength=m).astype(np.float64)
-        return micro, group_sums(Xn, micro, m), sizes
+        return KMeans(n_clusters=k, random_state=self.random_state, n_init=1, init="random")
+
+    def _parts_under_budget(self, rows: int) -> int:
+        """Micro-clusters for ``rows`` rows so that they average 1/_MICRO_PER_BUDGET of it."""
+        return -(-_MICRO_PER_BUDGET * rows // self.refine_max)
 
     def _split_oversized(self, Xn: npt.NDArray[np.float32], micro: IntArray) -> IntArray:
         """Micro-clusters over ``refine_max`` rows split by k-means until none is.
@@ -657,24 +668,15 @@ class AgglomerativeClusterer:
         k-means sizes vary: with few micro-clusters per budget one of them can hold more rows
         than a subtree may, and would then never be clustered exactly (kept whole as a piece).
         """
-        from sklearn.cluster import KMeans
-
         for _ in range(_MAX_SPLIT_ROUNDS):
-            sizes = np.bincount(micro)
-            oversized = np.flatnonzero(sizes > self.refine_max)
+            oversized = np.flatnonzero(np.bincount(micro) > self.refine_max)
             if oversized.size == 0:
                 break
             next_label = int(micro.max()) + 1
             for label in oversized:
                 rows = np.flatnonzero(micro == label)
-                parts = -(-_MICRO_PER_BUDGET * rows.size // self.refine_max)
-                km = KMeans(
-                    n_clusters=min(parts, rows.size),
-                    random_state=self.random_state,
-                    n_init=1,
-                    init="random",
-                )
-                sub = km.fit_predict(Xn[rows])
+                parts = min(self._parts_under_budget(rows.size), rows.size)
+                sub = self._k_means(parts, rows.size).fit_predict(Xn[rows])
                 # Part 0 keeps the label, the others take new ones.
                 micro[rows] = np.where(sub == 0, label, next_label + sub - 1)
                 next_label += int(sub.max())
