@@ -21,7 +21,8 @@ treebanks (Sequoia train/dev/test, GSD dev/test), pooled up to ``--real-max`` ro
 ten most frequent verbs one by one (two-stage forced with ``refine_max = n/5`` and
 ``n_micro = n/20``). Per cut it also runs the exact path on the rows in three other orders:
 float32 products round differently in other blocks, and how far exact then is from itself is
-the floor for any comparison with one exact run.
+the floor for any comparison with one exact run. It times one tree with distances in float64
+and in float32, and compares the two-stage path with two and four times the pieces rejoined.
 
 Peak memory is measured with tracemalloc (numpy registers its buffers there) in a second run of
 each row, the time in a first run without it; fastcluster's internal C++ allocations are not
@@ -63,6 +64,8 @@ UD_FILES = (
 NO_MERGE: dict[str, Any] = {"min_cluster_size": 1, "min_cluster_share": 0.0}
 #: Other row orders the exact path is run in (``--real``): its own spread under reordering.
 REORDERINGS = 3
+#: Pieces rejoined by the two-stage path, as multiples of its default (``--real``).
+PIECE_SHARES = (2.0, 4.0)
 SKLEARN_MAX = 10_000  # above this its dense n x n float64 matrix gets too large to be useful
 
 
@@ -109,10 +112,11 @@ def _one_tree_exact(X: np.ndarray, threshold: float) -> np.ndarray:
 
 
 def _float64_tree(X: np.ndarray) -> np.ndarray:
-    """Average-linkage tree on cosine distances computed wholly in float64 (the reference)."""
+    """Average-linkage tree on cosine distances computed wholly in float64 (the reference):
+    the clusterer's upper-triangle kernel, on rows normalised and multiplied in float64."""
     X64 = np.asarray(X, dtype=np.float64)
     Xn = X64 / np.linalg.norm(X64, axis=1, keepdims=True)
-    return _linkage(_full_square_condensed(Xn), "average")
+    return _linkage(agglomerative.condensed_cosine(Xn), "average")
 
 
 #: Plain runs timed per row (``--repeat``); the fastest is reported, as timeit does: on a
@@ -197,8 +201,18 @@ def run_real(args: argparse.Namespace, thresholds: list[float]) -> None:
         f"real vectors: {n} occurrences of the {len(per_verb)} most frequent verbs, "
         f"{X.shape[1]}-d (static-syntactic), built in {time.perf_counter() - t0:.1f} s; {_load()}"
     )
-    # The float32 upper-triangle kernel against the previous kernel and a float64 reference.
+    # The float32 upper-triangle kernel against the previous kernel and a float64 reference,
+    # and what the same tree costs in each precision.
+    started = time.perf_counter()
     Z64 = _float64_tree(X)
+    float64_s = time.perf_counter() - started
+    started = time.perf_counter()
+    SenseClusterer(exact_max=n, **NO_MERGE)._tree(normalise_rows(X))
+    float32_s = time.perf_counter() - started
+    print(
+        f"  one tree: distances in float64 {float64_s:.2f} s, in float32 {float32_s:.2f} s "
+        f"(x{float64_s / float32_s:.1f}); {_load()}"
+    )
     exact = SenseClusterer(exact_max=n, **NO_MERGE).sweep(X, thresholds)
     # The same exact path on the rows in another order: float32 products round differently in
     # other blocks, and average linkage's near-tied merges follow (the floor for any comparison
@@ -242,6 +256,16 @@ def run_real(args: argparse.Namespace, thresholds: list[float]) -> None:
     print(f"pooled, two-stage forced (refine_max={refine}, n_micro={args.n_micro}):")
     for t, ke, ks, ari in fidelity(X, thresholds, refine, args.n_micro, args.random_state):
         print(f"  t={t:.2f} exact k={ke:<4} two-stage k={ks:<4} ARI vs exact {ari:.4f}")
+    # The same with more pieces rejoined (their float32 matrix grows with the square).
+    saved = agglomerative._PIECE_SHARE
+    for share in PIECE_SHARES:
+        agglomerative._PIECE_SHARE = share
+        try:
+            rows = fidelity(X, thresholds, refine, args.n_micro, args.random_state)
+        finally:
+            agglomerative._PIECE_SHARE = saved
+        cells = "  ".join(f"t={t:.2f} ARI {a:.4f}" for t, _, _, a in rows)
+        print(f"  {share:g}x the pieces ({int(refine * share)}): {cells}")
     print("per verb, two-stage forced (refine_max=n/5, n_micro=n/20):")
     worst = 1.0
     for lemma, M in per_verb[:10]:

@@ -62,10 +62,10 @@ DEFAULT_THRESHOLDS = {"average": 0.65, "ward": 3.0}
 _LINKAGES = ("average", "ward")
 # Passes of the two-stage path at most: the second starts from the clusters of the first.
 _MAX_PASSES = 3
-# Micro-clusters per subtree budget at least (their mean size is then an eighth of it: on
-# single verbs forced to budgets of 20-60 rows, 4 gave a lowest ARI against exact of 0.67 and
-# 8 of 0.75, with 0.0 before, when micro-clusters could exceed the budget), and rounds of
-# splitting a micro-cluster still over the budget.
+# Micro-clusters per subtree budget at least (their mean size is then an eighth of it; on
+# single verbs forced to budgets of 20-60 rows the lowest ARI against exact went from -0.02,
+# when micro-clusters could exceed the budget, to 0.75: bench_clustering.py --real), and
+# rounds of splitting a micro-cluster still over the budget.
 _MICRO_PER_BUDGET = 8
 _MAX_SPLIT_ROUNDS = 3
 # Pieces rejoined at most, as a share of refine_max (their float32 matrix then takes as much
