@@ -9,11 +9,13 @@ pairs within the cut unless one holds over 80% of them, each clustered on the up
 float32 distance kernel), ``one tree`` (the same without the split: the cost on data that makes
 one large component, as real occurrence vectors do, see ``--real``), ``full-square`` (the same
 linkage over a condensed matrix cut from whole square blocks, as before: the accuracy and speed
-reference), ``two-stage`` and scikit-learn's ``AgglomerativeClustering``. ``--noise 1.0`` gives
-overlapping blobs, the hard case for the two-stage approximation; ``--refine-max`` forces the
-two-stage path to cut its tree at sizes where exact is still computable (``n/5`` is the share
-the default ``refine_max`` of 8,000 has at 40,000 points). After the timed rows, the two-stage
-path is compared with exact (ARI) at every threshold of ``--thresholds``.
+reference), ``two-stage`` (the bounded-memory path: exact by levels for average linkage, no
+tree over more than ``refine_max`` rows or pieces) and scikit-learn's
+``AgglomerativeClustering``. ``--noise 1.0`` gives overlapping blobs, the hard case for any
+shortcut; ``--refine-max`` forces the two-stage path to levels at sizes where exact is still
+computable (``n/5`` is the share the default ``refine_max`` of 8,000 has at 40,000 points).
+After the timed rows, the two-stage path is compared with exact (ARI) at every threshold of
+``--thresholds``.
 
 ``--real`` takes real occurrence vectors instead: the embedded default representation
 (static-syntactic) of every occurrence of the most frequent verbs of the shared French
@@ -22,7 +24,8 @@ ten most frequent verbs one by one (two-stage forced with ``refine_max = n/5`` a
 ``n_micro = n/20``). Per cut it also runs the exact path on the rows in three other orders:
 float32 products round differently in other blocks, and how far exact then is from itself is
 the floor for any comparison with one exact run. It times one tree with distances in float64
-and in float32, and compares the two-stage path with two and four times the pieces rejoined.
+and in float32, and compares the approximation alone (k-means micro-clusters and subtrees:
+Ward's two-stage path, and average linkage's fallback) with exact.
 
 Peak memory is measured with tracemalloc (numpy registers its buffers there) in a second run of
 each row, the time in a first run without it; fastcluster's internal C++ allocations are not
@@ -64,8 +67,6 @@ UD_FILES = (
 NO_MERGE: dict[str, Any] = {"min_cluster_size": 1, "min_cluster_share": 0.0}
 #: Other row orders the exact path is run in (``--real``): its own spread under reordering.
 REORDERINGS = 3
-#: Pieces rejoined by the two-stage path, as multiples of its default (``--real``).
-PIECE_SHARES = (2.0, 4.0)
 SKLEARN_MAX = 10_000  # above this its dense n x n float64 matrix gets too large to be useful
 
 
@@ -193,6 +194,22 @@ def fidelity(
     ]
 
 
+def approximate_fidelity(
+    X: np.ndarray, thresholds: list[float], refine_max: int, n_micro: int, random_state: int
+) -> list[tuple[float, float]]:
+    """(threshold, ARI of the approximation vs exact) for each threshold."""
+    exact = SenseClusterer(exact_max=X.shape[0], **NO_MERGE).sweep(X, thresholds)
+    Xn = normalise_rows(X)
+    out = []
+    for t, e in zip(thresholds, exact, strict=True):
+        model = SenseClusterer(
+            threshold=t, exact_max=1, refine_max=refine_max, n_micro=n_micro,
+            random_state=random_state, **NO_MERGE,
+        )
+        out.append((t, adjusted_rand_score(e, model._fit_approximate(Xn))))
+    return out
+
+
 def run_real(args: argparse.Namespace, thresholds: list[float]) -> None:
     t0 = time.perf_counter()
     X, per_verb = real_vectors(Path(args.ud), args.real_max)
@@ -254,18 +271,19 @@ def run_real(args: argparse.Namespace, thresholds: list[float]) -> None:
     )
     refine = args.refine_max or max(2, n // 5)
     print(f"pooled, two-stage forced (refine_max={refine}, n_micro={args.n_micro}):")
+    forced = SenseClusterer(
+        threshold=cut, exact_max=1, refine_max=refine, n_micro=args.n_micro, **NO_MERGE
+    )
+    model, two_s, two_mib = _measure(forced.fit, X)
+    path = "the approximation" if model.approximate_ else "exact by levels"
+    print(f"  time at t={cut}: {two_s:.2f} s {two_mib:.0f} MiB ({path}); {_load()}")
     for t, ke, ks, ari in fidelity(X, thresholds, refine, args.n_micro, args.random_state):
         print(f"  t={t:.2f} exact k={ke:<4} two-stage k={ks:<4} ARI vs exact {ari:.4f}")
-    # The same with more pieces rejoined (their float32 matrix grows with the square).
-    saved = agglomerative._PIECE_SHARE
-    for share in PIECE_SHARES:
-        agglomerative._PIECE_SHARE = share
-        try:
-            rows = fidelity(X, thresholds, refine, args.n_micro, args.random_state)
-        finally:
-            agglomerative._PIECE_SHARE = saved
-        cells = "  ".join(f"t={t:.2f} ARI {a:.4f}" for t, _, _, a in rows)
-        print(f"  {share:g}x the pieces ({int(refine * share)}): {cells}")
+    # The approximation alone (Ward's path, and average linkage's where the levels cannot
+    # come down to the budget): what exactness by levels replaced.
+    approximate = approximate_fidelity(X, thresholds, refine, args.n_micro, args.random_state)
+    cells = "  ".join(f"t={t:.2f} ARI {a:.4f}" for t, a in approximate)
+    print(f"  the approximation alone: {cells}")
     print("per verb, two-stage forced (refine_max=n/5, n_micro=n/20):")
     worst = 1.0
     for lemma, M in per_verb[:10]:
@@ -331,6 +349,7 @@ def main(argv: list[str] | None = None) -> None:
             rows["full-square"] = _measure(_full_square_exact, X, args.threshold)
         m, t, mem = _measure(SenseClusterer(exact_max=1, **common, **two_stage).fit, X)
         rows["two-stage"] = (m.labels_, t, mem)
+        path = "the approximation" if m.approximate_ else "exact by levels"
         if n <= args.sklearn_max:
             agg = AgglomerativeClustering(
                 n_clusters=None,
@@ -348,6 +367,8 @@ def main(argv: list[str] | None = None) -> None:
                 notes = (
                     f"ARI vs exact {ari:.4f}; time x{t / et:.2f}, mem x{mem / max(em, 1e-9):.2f}"
                 )
+            if name == "two-stage":
+                notes = "; ".join(part for part in (notes, path) if part)
             k = len(set(labels.tolist()))
             print(f"{n:>7} {name:<12} {t:>8.2f} {mem:>9.1f} {k:>4}  {notes}", flush=True)
         if n <= args.exact_limit and len(thresholds) > 0:

@@ -260,21 +260,24 @@ def test_refinement_groups_partition_the_leaves_within_the_budget() -> None:
 
 
 @pytest.mark.parametrize("random_state", [0, 1, 2])
-def test_two_stage_is_faithful_on_overlapping_blobs(random_state: int) -> None:
+def test_approximation_is_faithful_on_overlapping_blobs(random_state: int) -> None:
     # Reference: the exact path (itself checked against scipy above). With a subtree budget of a
-    # quarter of the points the two-stage path really approximates (several subtrees, pieces
+    # quarter of the points the approximation (Ward's path, and average linkage's fallback) really
+    # approximates (several subtrees, pieces
     # rejoined); cut at the blobs' own spread (0.5) exact gives ~70-110 clusters.
+    from lexbuild.senses.clustering import normalise_rows
+
     X = _overlapping(600, 64, 4, random_state)
     for threshold in (0.5, 0.6, 0.8):
         exact = SenseClusterer(threshold=threshold, **NO_MERGE).fit(X)
-        two = SenseClusterer(
+        approximate = SenseClusterer(
             threshold=threshold, exact_max=1, refine_max=150, n_micro=32, **NO_MERGE
-        ).fit(X)
-        assert adjusted_rand_score(exact.labels_, two.labels_) >= 0.95, threshold
+        )._fit_approximate(normalise_rows(X))
+        assert adjusted_rand_score(exact.labels_, approximate) >= 0.95, threshold
 
 
 @pytest.mark.parametrize("random_state", [0, 1, 4])
-def test_two_stage_refines_every_micro_cluster_under_a_small_budget(random_state: int) -> None:
+def test_approximation_refines_every_micro_cluster_under_a_small_budget(random_state: int) -> None:
     # Three micro-clusters asked for 1,800 points with a subtree budget of 20: k-means would
     # give micro-clusters of 600-1,200 points, each too large to be clustered exactly (kept
     # whole, ARI 0.33-0.57 against exact before). They are made small enough to be refined,
@@ -290,7 +293,8 @@ def test_two_stage_refines_every_micro_cluster_under_a_small_budget(random_state
     assert sizes.max() <= 20
     exact = SenseClusterer(threshold=0.5, **NO_MERGE).fit(X)
     assert adjusted_rand_score(y, exact.labels_) == 1.0
-    assert adjusted_rand_score(exact.labels_, model.fit(X).labels_) == 1.0
+    approximate = model._fit_approximate(normalise_rows(X))
+    assert adjusted_rand_score(exact.labels_, approximate) == 1.0
 
 
 def test_two_stage_ward_tracks_exact_on_separated_blobs() -> None:
@@ -329,9 +333,9 @@ def test_threshold_components_are_the_single_linkage_clusters(
 ) -> None:
     # Reference: scipy single linkage cut at t (fcluster "distance") gives the connected
     # components of the graph of pairs within t. Small blocks make the joins span many blocks.
-    from lexbuild.senses import agglomerative
+    from lexbuild.senses import agglomerative, components
 
-    monkeypatch.setattr(agglomerative, "_BLOCK_ELEMENTS", 300)
+    monkeypatch.setattr(components, "BLOCK_ELEMENTS", 300)
     X, _ = _blobs(30, 5, 16, 0.3, random_state=21)
     Xn = (X / np.linalg.norm(X, axis=1, keepdims=True)).astype(np.float32)
     expected = fcluster(linkage(pdist(Xn.astype(np.float64), "cosine"), "single"), t=cut,
@@ -372,3 +376,91 @@ def test_exact_path_split_into_components_equals_scipy_average(
     swept = model.sweep(X, [threshold / 2, threshold])
     assert adjusted_rand_score(low, swept[0]) == 1.0
     assert adjusted_rand_score(expected, swept[1]) == 1.0
+
+
+@pytest.mark.parametrize("random_state", [0, 1, 2])
+def test_levels_equal_scipy_average_under_a_small_budget(
+    random_state: int, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # Reference: scipy.cluster.hierarchy.linkage(pdist(X, "cosine"), "average") cut at t. With
+    # 600 overlapping points and a budget of 60 no tree may hold a tenth of them, so the exact
+    # clusters come from several levels of exact nodes; cut at the blobs' own spread the
+    # largest exact cluster outgrows the budget.
+    from lexbuild.senses import agglomerative
+
+    levels: list[float] = []
+    real_lower_cut = agglomerative._lower_cut
+
+    def recorded(*args: Any) -> float:
+        levels.append(real_lower_cut(*args))
+        return levels[-1]
+
+    monkeypatch.setattr(agglomerative, "_lower_cut", recorded)
+    X = _overlapping(600, 64, 4, random_state)
+    Z = linkage(pdist(X.astype(np.float64), "cosine"), "average")
+    for threshold in (0.5, 0.6, 0.8):
+        levels.clear()
+        model = SenseClusterer(threshold=threshold, exact_max=1, refine_max=60, **NO_MERGE)
+        found = model.fit(X).labels_
+        expected = fcluster(Z, t=threshold, criterion="distance")
+        assert adjusted_rand_score(expected, found) == 1.0, threshold
+        assert len(levels) >= 2, threshold  # the levels really ran
+        assert np.bincount(expected).max() > 60 or threshold == 0.5
+
+
+@pytest.mark.filterwarnings("ignore:Number of distinct clusters")  # k-means on the copies
+def test_levels_fall_back_to_the_approximation_when_they_cannot_shrink() -> None:
+    # 100 copies of one row with a budget of 40: at any cut above 0 they make one component of
+    # 100 rows, so no level fits and the approximation clusters them (into one cluster, as
+    # exact does; the blobs as exact finds them: scipy-checked above).
+    from lexbuild.senses.clustering import normalise_rows
+
+    X, _ = _blobs(40, 3, 16, 0.1, random_state=23)
+    X = np.vstack([X, np.repeat(X[:1], 100, axis=0)])
+    model = SenseClusterer(threshold=0.3, exact_max=1, refine_max=40, n_micro=8, **NO_MERGE)
+    assert model._fit_levels(normalise_rows(X)) is None
+    exact = SenseClusterer(threshold=0.3, **NO_MERGE).fit(X).labels_
+    assert adjusted_rand_score(exact, model.fit(X).labels_) == 1.0
+
+
+@pytest.mark.parametrize("cut", [0.3, 0.6])
+def test_bounded_components_are_the_single_linkage_clusters(
+    cut: float, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # Reference: scipy single linkage cut at t gives the components of the graph of pairs
+    # within t. 4,000 rows of 200 columns take the bound that skips far blocks (checked: the
+    # grouping it needs ran, and some blocks were skipped); no close pair may be missed.
+    from lexbuild.senses import components
+
+    grouped: list[int] = []
+    real_grouping = components._grouped_projection
+
+    def recorded(*args: Any) -> Any:
+        grouped.append(1)
+        return real_grouping(*args)
+
+    blocks_multiplied: list[int] = []
+    real_runs = components._runs
+
+    def counted(blocks: Any) -> Any:
+        blocks_multiplied.append(int(blocks.size))
+        return real_runs(blocks)
+
+    monkeypatch.setattr(components, "_grouped_projection", recorded)
+    monkeypatch.setattr(components, "_runs", counted)
+    monkeypatch.setattr(components, "BLOCK_ELEMENTS", 200_000)  # blocks of 49 rows
+    X, _ = _blobs(500, 8, 200, 0.5, random_state=24)
+    # A few rows halfway between two blobs join them at the higher cut only.
+    X = np.vstack([X, X[:8] + X[500:508]])
+    Xn = (X / np.linalg.norm(X, axis=1, keepdims=True)).astype(np.float32)
+    expected = fcluster(
+        linkage(pdist(Xn.astype(np.float64), "cosine"), "single"), t=cut, criterion="distance"
+    )
+    found = components.threshold_components(Xn, cut)
+    assert grouped
+    rows = components.BLOCK_ELEMENTS // len(X)
+    blocks = -(-len(X) // rows)
+    assert 0 < sum(blocks_multiplied) < blocks * (blocks + 1) // 2 // 2  # most were skipped
+    assert found is not None
+    assert adjusted_rand_score(expected, found) == 1.0
+    assert 1 < len(set(expected)) < len(expected)  # (from scipy: the cuts really split)

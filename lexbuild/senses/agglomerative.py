@@ -3,11 +3,13 @@
 
 ``AgglomerativeClusterer`` follows the scikit-learn estimator shape: ``__init__`` stores
 parameters, ``fit`` learns ``labels_``, ``n_clusters_`` and ``centroids_``. Up to ``exact_max``
-points the full tree is built on cosine distances; beyond that a two-stage scheme (k-means
-micro-clusters, a tree over them, exact clustering inside its subtrees, exact group-average
-linkage between the pieces) keeps memory bounded by ``refine_max``. The calibrated
-parameter is the height at which the tree is cut: a cosine distance for average linkage, a Ward
-height on unit vectors in euclidean space for Ward.
+points the full tree is built on cosine distances. Beyond that no tree is built over more than
+``refine_max`` rows: average linkage stays exact by levels (clusters at lower cuts, which are
+nodes of the exact tree, become the pieces of the next level); Ward, and average linkage where
+the levels cannot come down to the budget, take an approximation (k-means micro-clusters, a
+tree over them, exact clustering inside its subtrees, exact group-average linkage between the
+pieces). The calibrated parameter is the height at which the tree is cut: a cosine distance
+for average linkage, a Ward height on unit vectors in euclidean space for Ward.
 """
 
 from __future__ import annotations
@@ -17,8 +19,6 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 from scipy.cluster.hierarchy import fcluster
-from scipy.sparse import coo_matrix
-from scipy.sparse.csgraph import connected_components
 
 from lexbuild.errors import InductionError
 from lexbuild.senses.clustering import (
@@ -30,6 +30,7 @@ from lexbuild.senses.clustering import (
     normalise_rows,
     relabel,
 )
+from lexbuild.senses.components import CUT_SLACK, bounding_directions, threshold_components
 from lexbuild.senses.registry import ClustererSpec
 from lexbuild.senses.settings import InductionSettings
 
@@ -60,8 +61,18 @@ WARD_THRESHOLDS: tuple[float, ...] = (
 DEFAULT_THRESHOLDS = {"average": 0.65, "ward": 3.0}
 
 _LINKAGES = ("average", "ward")
-# Passes of the two-stage path at most: the second starts from the clusters of the first.
+# Passes of the approximation at most: the second starts from the clusters of the first.
 _MAX_PASSES = 3
+# The bounded-memory exact path: levels at most before it gives way to the approximation,
+# pieces sampled to choose each level's cut, and the share of the budget aimed at.
+_MAX_LEVELS = 16
+_LEVEL_SAMPLE = 2000
+_LEVEL_SHARE = 0.5
+# A level over more pieces than the second number must leave at most the first share of them
+# (the real vectors' levels left 0.54-0.86, bench_clustering.py --real): below, passes are
+# cheap (20,000 x 768 rows: about 1.5 s) and slow levels may go on.
+_LEVEL_MIN_SHRINK = 0.9
+_LEVEL_PATIENT_MAX = 20_000
 # Micro-clusters per subtree budget at least (their mean size is then an eighth of it; on
 # single verbs forced to budgets of 20-60 rows the lowest ARI against exact went from -0.02,
 # when micro-clusters could exceed the budget, to 0.75: bench_clustering.py --real), and
@@ -80,9 +91,6 @@ _SPLIT_MIN_ROWS = 2000
 # ... and gives up splitting once one component holds more than this share of the rows: the
 # trees over the parts then save less than the pass that found them cost.
 _SPLIT_LARGEST_SHARE = 0.8
-# Pairs this far above the cut still join components: float32 products of unit rows round
-# differently in other block shapes (up to ~4e-7), and one join too many is always safe.
-_CUT_SLACK = 1e-5
 
 
 def condensed_cosine(Xn: npt.NDArray[np.float32]) -> npt.NDArray[np.float64]:
@@ -107,47 +115,6 @@ def condensed_cosine(Xn: npt.NDArray[np.float32]) -> npt.NDArray[np.float64]:
             out[off : off + n - i - 1] = d[i - start, i - start + 1 :]
         start = stop
     return out
-
-
-def threshold_components(
-    Xn: npt.NDArray[np.float32], cut: float, largest_share: float = 1.0
-) -> IntArray | None:
-    """Connected components of the graph joining rows at cosine distance <= ``cut``.
-
-    An average-linkage merge at height h joins two clusters whose mean pairwise distance is h,
-    so some pair across them lies within h: every cluster of the average-linkage tree cut at
-    ``cut`` lies inside one component (they are the single-linkage clusters at ``cut``), and
-    each component can be clustered alone. The similarity blocks are those of
-    ``condensed_cosine``, but only the joins between components found so far are kept, so
-    memory stays O(n + block). Returns None as soon as one component holds more than
-    ``largest_share`` of the rows.
-    """
-    n = Xn.shape[0]
-    # Rows in a fixed random order: the first blocks then sample every region, so a component
-    # too large to be worth splitting shows at once (rows often come sorted, e.g. by lemma).
-    order = np.random.default_rng(0).permutation(n)
-    Xn = Xn[order]
-    component = np.arange(n)
-    most = largest_share * n
-    min_similarity = np.float32(1.0 - cut - _CUT_SLACK)
-    start, rows_wanted = 0, 32  # small first blocks: a giant component costs little to find
-    while start < n:
-        stop = min(n, start + max(1, min(rows_wanted, _BLOCK_ELEMENTS // (n - start))))
-        rows_wanted *= 2
-        joining = Xn[start:stop] @ Xn[start:].T >= min_similarity
-        # Most close pairs already share a component: drop them before taking indices.
-        joining &= component[start:stop, None] != component[None, start:]
-        rows, cols = np.nonzero(joining)
-        if rows.size:
-            a, b = component[rows + start], component[cols + start]
-            joins = coo_matrix((np.ones(a.size, dtype=np.int8), (a, b)), shape=(n, n))
-            component = connected_components(joins, directed=False)[1][component]
-            if np.bincount(component).max() > most:
-                return None
-        start = stop
-    in_input_order = np.empty(n, dtype=np.intp)
-    in_input_order[order] = component
-    return relabel(in_input_order)
 
 
 class _Forest:
@@ -378,16 +345,20 @@ class AgglomerativeClusterer:
     metric: only ``"cosine"`` is supported.
     min_cluster_size, min_cluster_share: clusters smaller than
         ``max(min_cluster_size, min_cluster_share * n)`` are merged into the nearest large one.
-    exact_max: largest n clustered exactly; above it the two-stage path runs.
-    n_micro: number of k-means micro-clusters in the two-stage path.
-    refine_max: points per subtree clustered exactly in the two-stage path, and pieces
-        rejoined at most (memory grows with its square: 8,000 take 256 MB of distances).
+    exact_max: largest n clustered in one pass; above it the bounded-memory path runs.
+    n_micro: number of k-means micro-clusters of the approximation.
+    refine_max: rows or pieces in one tree at most on the bounded-memory path (memory grows
+        with its square: 8,000 take 256 MB of distances).
     random_state: fixes the random numbers of the k-means stage.
     """
 
     labels_: IntArray
     n_clusters_: int
     centroids_: npt.NDArray[np.float64]
+    #: Whether the labels come from the approximation (Ward beyond ``exact_max``, or average
+    #: linkage where the levels could not come down to ``refine_max``) rather than the exact
+    #: tree.
+    approximate_: bool
 
     def __init__(
         self,
@@ -428,12 +399,15 @@ class AgglomerativeClusterer:
         Xn = normalise_rows(X)
         n = Xn.shape[0]
         with blas_threads():
+            exact: IntArray | None = None
             if n == 1:
                 raw = np.zeros(1, dtype=np.intp)
             elif n <= self.exact_max:
                 raw = self._fit_exact(Xn)
             else:
-                raw = self._fit_two_stage(Xn)
+                exact = self._fit_levels(Xn) if self.linkage == "average" else None
+                raw = self._fit_approximate(Xn) if exact is None else exact
+        self.approximate_ = n > self.exact_max and exact is None
         labels = relabel(raw)
         fitted(self, Xn, self._merge_small(Xn, labels))
         return self
@@ -508,7 +482,7 @@ class AgglomerativeClusterer:
     def _fit_exact(self, Xn: npt.NDArray[np.float32]) -> IntArray:
         return self._forest(Xn, float(self.threshold)).cut(float(self.threshold))
 
-    def _fit_two_stage(self, Xn: npt.NDArray[np.float32]) -> IntArray:
+    def _fit_approximate(self, Xn: npt.NDArray[np.float32]) -> IntArray:
         """k-means micro-clusters, a tree over them, exact clustering inside its subtrees.
 
         The tree over the micro-clusters (average linkage from their sums, or Ward on their
@@ -551,6 +525,91 @@ class AgglomerativeClusterer:
                 break
             labels = again
         return labels
+
+    def _fit_levels(self, Xn: npt.NDArray[np.float32]) -> IntArray | None:
+        """Exact average-linkage clusters at the threshold, no tree larger than ``refine_max``.
+
+        The path beyond ``exact_max`` for average linkage, exact at any n. None where the levels
+        do not come down to the budget (``_Stuck``: e.g. more identical rows than the budget,
+        or blobs of independent noise larger than it); the approximation then runs.
+        """
+        ones = np.ones(Xn.shape[0])
+        directions = bounding_directions(Xn)
+        try:
+            return self._clusters_between(Xn, ones, 0.0, float(self.threshold), directions, 0)
+        except _Stuck:
+            return None
+
+    def _clusters_between(
+        self,
+        means: npt.NDArray[np.float32],
+        sizes: npt.NDArray[np.float64],
+        low: float,
+        cut: float,
+        directions: npt.NDArray[np.float32] | None,
+        depth: int,
+    ) -> IntArray:
+        """Clusters at ``cut`` of pieces that are the clusters at ``low`` of their rows.
+
+        Each piece is given by the mean of its unit rows and their number: the mean cosine
+        distance between two pieces is ``1 - dot(mean_a, mean_b)``, exact for any size, so a
+        tree over pieces that are nodes of the exact tree continues it exactly. Two sets of
+        pieces with no pair within ``cut`` never merge at or below it (a merged cluster's mean
+        distance to another is a weighted mean of its parts'), so the components of that graph
+        are clustered apart, each in one tree when it has at most ``refine_max`` pieces. A
+        component over the budget is first clustered at a lower cut (recursively): its clusters
+        there are fewer pieces, exact nodes again, and the loop goes on from them.
+        """
+        budget = self.refine_max
+        labels = np.arange(sizes.size)  # piece of each input piece
+        while True:
+            p = sizes.size
+            if p <= budget:
+                return self._within_budget(means, sizes, cut)[labels]
+            component = threshold_components(means, cut, budget / p, directions)
+            if component is not None:
+                out = np.empty(p, dtype=np.intp)
+                next_label = 0
+                for members in _members(component, int(component.max()) + 1):
+                    sub = self._within_budget(means[members], sizes[members], cut, True)
+                    out[members] = next_label + sub
+                    next_label += int(sub.max()) + 1
+                return relabel(out[labels])
+            if depth >= _MAX_LEVELS:
+                raise _Stuck
+            low, middle = _lower_cut(means, sizes, low, cut, budget)
+            inner = self._clusters_between(means, sizes, low, middle, directions, depth + 1)
+            k = int(inner.max()) + 1
+            if k > _LEVEL_MIN_SHRINK * p and p > _LEVEL_PATIENT_MAX:
+                # Rows whose single-linkage components grow into one long before their
+                # clusters do (distances all alike, as in blobs of independent noise) take
+                # many such levels, each a pass over all pairs.
+                raise _Stuck
+            low = middle
+            means, sizes = _merged_means(means, sizes, inner, k)
+            labels = inner[labels]
+            depth += 1
+
+    def _within_budget(
+        self,
+        means: npt.NDArray[np.float32],
+        sizes: npt.NDArray[np.float64],
+        cut: float,
+        connected: bool = False,
+    ) -> IntArray:
+        """Clusters at ``cut`` of at most ``refine_max`` pieces, from exact trees.
+
+        ``connected``: the pieces are known to make one component within ``cut``, so the
+        exact path's search for components would find nothing to split.
+        """
+        if sizes.size == 1:
+            return np.zeros(1, dtype=np.intp)
+        if np.all(sizes == 1.0):  # single rows: the exact path's kernel
+            if connected:
+                return relabel(fcluster(self._tree(means), t=cut, criterion="distance"))
+            return self._forest(means, cut).cut(cut)
+        merges = _group_average_merges(means * sizes[:, None], sizes, stop_above=cut)
+        return _labels_from_merges(merges, sizes.size)
 
     def _regroup(
         self,
@@ -684,6 +743,63 @@ class AgglomerativeClusterer:
 
     def _merge_small(self, Xn: npt.NDArray[np.float32], labels: IntArray) -> IntArray:
         return merge_small_clusters(Xn, labels, self.min_cluster_size, self.min_cluster_share)
+
+
+class _Stuck(Exception):
+    """The levels of the bounded-memory exact path did not come down to the budget."""
+
+
+def _lower_cut(
+    means: npt.NDArray[np.float32],
+    sizes: npt.NDArray[np.float64],
+    low: float,
+    cut: float,
+    budget: int,
+) -> tuple[float, float]:
+    """A cut between ``low`` and ``cut`` whose components should fit the budget.
+
+    Read off the single-linkage tree of a fixed random sample of the pieces: the height at
+    which its largest component first holds ``_LEVEL_SHARE`` of the budget's share of the
+    sample. A sample is sparser than the whole, so its components form later; the share keeps
+    the guess low, and a guess still too high costs one more level, not a wrong result. Where
+    the tree gives no cut in between, the middle one, if some sampled pair joins below it.
+    Returns the low cut too, raised where all pieces were sampled and none join below it.
+    """
+    from scipy.cluster.hierarchy import linkage as scipy_linkage
+
+    p = sizes.size
+    sample = np.random.default_rng(0).choice(p, size=min(p, _LEVEL_SAMPLE), replace=False)
+    sample.sort()
+    s = sample.size
+    similar = means[sample] @ means[sample].T
+    distances = 1.0 - similar[np.triu_indices(s, 1)].astype(np.float64)
+    tree = np.asarray(scipy_linkage(np.clip(distances, 0.0, 2.0), method="single"))
+    wanted = max(2.0, _LEVEL_SHARE * budget / p * s)
+    over = np.flatnonzero(tree[:, 3] >= wanted)
+    guess = float(tree[over[0], 2]) if over.size else cut
+    if low < guess < cut:
+        return low, guess
+    heights = tree[:, 2]
+    while True:
+        guess = (low + cut) / 2
+        if np.any((heights > low) & (heights <= guess)) or guess - low < CUT_SLACK:
+            return low, guess
+        if s < p:
+            # No two sampled pieces join in between: the sample shows no level to make there
+            # (a pass over all pieces at that cut found nothing to merge on blobs of noise).
+            raise _Stuck
+        low = guess  # all pieces were sampled: nothing merges up to the middle, for certain
+
+
+def _merged_means(
+    means: npt.NDArray[np.float32], sizes: npt.NDArray[np.float64], labels: IntArray, k: int
+) -> tuple[npt.NDArray[np.float32], npt.NDArray[np.float64]]:
+    """Mean row and row count of each label's pieces."""
+    merged_sizes = np.bincount(labels, weights=sizes, minlength=k).astype(np.float64)
+    weighted = means if np.all(sizes == 1.0) else means * sizes[:, None].astype(np.float32)
+    sums = group_sums(weighted, labels, k)
+    sums /= merged_sizes[:, None]
+    return sums.astype(np.float32), merged_sizes
 
 
 def _params(settings: InductionSettings) -> dict[str, Any]:
