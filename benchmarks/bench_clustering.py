@@ -10,7 +10,8 @@ float32 distance kernel), ``one tree`` (the same without the split: the cost on 
 one large component, as real occurrence vectors do, see ``--real``), ``full-square`` (the same
 linkage over a condensed matrix cut from whole square blocks, as before: the accuracy and speed
 reference), ``two-stage`` (the bounded-memory path: exact by levels for average linkage, no
-tree over more than ``refine_max`` rows or pieces) and scikit-learn's
+tree over more than ``refine_max`` rows or pieces), ``approximation`` (that path's fallback
+alone: k-means micro-clusters and subtrees) and scikit-learn's
 ``AgglomerativeClustering``. ``--noise 1.0`` gives overlapping blobs, the hard case for any
 shortcut; ``--refine-max`` forces the two-stage path to levels at sizes where exact is still
 computable (``n/5`` is the share the default ``refine_max`` of 8,000 has at 40,000 points).
@@ -55,7 +56,7 @@ sys.path.insert(0, str(ROOT))  # this checkout's lexbuild, not an installed one
 from lexbuild.senses import agglomerative  # noqa: E402
 from lexbuild.senses.agglomerative import DEFAULT_THRESHOLDS, _linkage  # noqa: E402
 from lexbuild.senses.agglomerative import AgglomerativeClusterer as SenseClusterer  # noqa: E402
-from lexbuild.senses.clustering import normalise_rows  # noqa: E402
+from lexbuild.senses.clustering import blas_threads, normalise_rows, relabel  # noqa: E402
 
 UD_FILES = (
     "fr_sequoia-ud-train.conllu",
@@ -192,6 +193,12 @@ def fidelity(
         (t, int(e.max()) + 1, int(s.max()) + 1, adjusted_rand_score(e, s))
         for t, e, s in zip(thresholds, exact, two, strict=True)
     ]
+
+
+def _approximate(model: Any, X: np.ndarray) -> np.ndarray:
+    """Labels of the approximation alone, as ``fit`` would relabel them."""
+    with blas_threads():
+        return relabel(model._fit_approximate(normalise_rows(X)))
 
 
 def approximate_fidelity(
@@ -350,6 +357,9 @@ def main(argv: list[str] | None = None) -> None:
         m, t, mem = _measure(SenseClusterer(exact_max=1, **common, **two_stage).fit, X)
         rows["two-stage"] = (m.labels_, t, mem)
         path = "the approximation" if m.approximate_ else "exact by levels"
+        # The approximation alone (Ward's path; average linkage's where the levels give up).
+        alone = SenseClusterer(exact_max=1, **common, **two_stage)
+        rows["approximation"] = _measure(_approximate, alone, X)
         if n <= args.sklearn_max:
             agg = AgglomerativeClustering(
                 n_clusters=None,

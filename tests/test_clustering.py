@@ -404,6 +404,7 @@ def test_levels_equal_scipy_average_under_a_small_budget(
         found = model.fit(X).labels_
         expected = fcluster(Z, t=threshold, criterion="distance")
         assert adjusted_rand_score(expected, found) == 1.0, threshold
+        assert not model.approximate_
         assert len(levels) >= 2, threshold  # the levels really ran
         assert np.bincount(expected).max() > 60 or threshold == 0.5
 
@@ -421,6 +422,7 @@ def test_levels_fall_back_to_the_approximation_when_they_cannot_shrink() -> None
     assert model._fit_levels(normalise_rows(X)) is None
     exact = SenseClusterer(threshold=0.3, **NO_MERGE).fit(X).labels_
     assert adjusted_rand_score(exact, model.fit(X).labels_) == 1.0
+    assert model.approximate_  # and fit says so
 
 
 @pytest.mark.parametrize("cut", [0.3, 0.6])

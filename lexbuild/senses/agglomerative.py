@@ -69,7 +69,7 @@ _MAX_LEVELS = 16
 _LEVEL_SAMPLE = 2000
 _LEVEL_SHARE = 0.5
 # A level over more pieces than the second number must leave at most the first share of them
-# (the real vectors' levels left 0.54-0.86, bench_clustering.py --real): below, passes are
+# (measured on the real vectors of bench_clustering.py --real: 0.54-0.86): below, passes are
 # cheap (20,000 x 768 rows: about 1.5 s) and slow levels may go on.
 _LEVEL_MIN_SHRINK = 0.9
 _LEVEL_PATIENT_MAX = 20_000
@@ -462,16 +462,22 @@ class AgglomerativeClusterer:
             np.sqrt(condensed, out=condensed)
         return _linkage(condensed, self.linkage)
 
-    def _forest(self, Xn: npt.NDArray[np.float32], top: float) -> _Forest:
+    def _forest(
+        self,
+        Xn: npt.NDArray[np.float32],
+        top: float,
+        directions: npt.NDArray[np.float32] | str | None = "fit",
+    ) -> _Forest:
         """The tree of the rows, as trees of the components within ``top`` where that pays.
 
         Only average linkage splits: a Ward merge can join clusters with no pair within its
-        height (two far points around a third close to their midpoint).
+        height (two far points around a third close to their midpoint). ``directions``: as
+        for ``threshold_components`` (found once by callers that split many subsets).
         """
         n = Xn.shape[0]
         component = None
         if self.linkage == "average" and n >= _SPLIT_MIN_ROWS:
-            component = threshold_components(Xn, top, _SPLIT_LARGEST_SHARE)
+            component = threshold_components(Xn, top, _SPLIT_LARGEST_SHARE, directions)
         if component is None:
             whole = np.arange(n)
             return _Forest([whole], [self._tree(Xn) if n >= 2 else None], n, np.inf)
@@ -509,9 +515,11 @@ class AgglomerativeClusterer:
                 tree = np.asarray(scipy_linkage(cents, method="ward"))
             else:
                 tree = np.empty((0, 4))
-            labels, _ = self._regroup(Xn, micro, tree, sizes, float(self.threshold))
+            labels, _ = self._regroup(Xn, micro, tree, sizes, None, float(self.threshold))
             return labels
-        labels, spans = self._regroup(Xn, micro, _group_average_merges(sums, sizes, np.inf), sizes)
+        directions = bounding_directions(Xn)
+        tree = _group_average_merges(sums, sizes, np.inf)
+        labels, spans = self._regroup(Xn, micro, tree, sizes, directions)
         for _ in range(_MAX_PASSES - 1):
             if not spans:
                 break
@@ -520,7 +528,7 @@ class AgglomerativeClusterer:
                 break
             sizes = np.bincount(labels, minlength=m).astype(np.float64)
             tree = _group_average_merges(group_sums(Xn, labels, m), sizes)
-            again, spans = self._regroup(Xn, labels, tree, sizes)
+            again, spans = self._regroup(Xn, labels, tree, sizes, directions)
             if _same_partition(again, labels):
                 break
             labels = again
@@ -565,13 +573,13 @@ class AgglomerativeClusterer:
         while True:
             p = sizes.size
             if p <= budget:
-                return self._within_budget(means, sizes, cut)[labels]
+                return self._within_budget(means, sizes, cut, directions)[labels]
             component = threshold_components(means, cut, budget / p, directions)
             if component is not None:
                 out = np.empty(p, dtype=np.intp)
                 next_label = 0
                 for members in _members(component, int(component.max()) + 1):
-                    sub = self._within_budget(means[members], sizes[members], cut, True)
+                    sub = self._within_budget(means[members], sizes[members], cut, None, True)
                     out[members] = next_label + sub
                     next_label += int(sub.max()) + 1
                 return relabel(out[labels])
@@ -595,6 +603,7 @@ class AgglomerativeClusterer:
         means: npt.NDArray[np.float32],
         sizes: npt.NDArray[np.float64],
         cut: float,
+        directions: npt.NDArray[np.float32] | None,
         connected: bool = False,
     ) -> IntArray:
         """Clusters at ``cut`` of at most ``refine_max`` pieces, from exact trees.
@@ -607,7 +616,7 @@ class AgglomerativeClusterer:
         if np.all(sizes == 1.0):  # single rows: the exact path's kernel
             if connected:
                 return relabel(fcluster(self._tree(means), t=cut, criterion="distance"))
-            return self._forest(means, cut).cut(cut)
+            return self._forest(means, cut, directions).cut(cut)
         merges = _group_average_merges(means * sizes[:, None], sizes, stop_above=cut)
         return _labels_from_merges(merges, sizes.size)
 
@@ -617,6 +626,7 @@ class AgglomerativeClusterer:
         leaf: IntArray,
         tree: npt.NDArray[np.float64],
         leaf_sizes: npt.NDArray[np.float64],
+        directions: npt.NDArray[np.float32] | None,
         keep_whole_below: float = -np.inf,
     ) -> tuple[IntArray, bool]:
         """Labels from exact clustering inside the subtrees of ``tree`` over the leaves.
@@ -631,7 +641,7 @@ class AgglomerativeClusterer:
         members_of = _members(group, len(refine))
         top = float(self.threshold)
         forests = [
-            self._forest(Xn[members], top) if exact and members.size >= 2 else None
+            self._forest(Xn[members], top, directions) if exact and members.size >= 2 else None
             for members, exact in zip(members_of, refine, strict=True)
         ]
         rejoin = self.linkage == "average" and len(refine) > 1

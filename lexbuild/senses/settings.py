@@ -61,7 +61,7 @@ class InductionSettings:
     min_cluster_size: int = 3
     min_cluster_share: float = 0.05
     cap: int = 2000  # occurrences clustered per verb; the rest go to the nearest centroid
-    exact_max: int = 20000  # agglomerative: above this, the two-stage path runs
+    exact_max: int = 20000  # agglomerative: above this, the bounded-memory path runs
     min_occurrences: int = 1  # verbs seen fewer times are left out
     examples: int = 3
     example_words: tuple[int, int] = (6, 40)  # "moderate length", in words
