@@ -201,6 +201,19 @@ def test_assign_dimension_mismatch() -> None:
         assign_to_centroids(np.ones((2, 3)), np.ones((2, 4)))
 
 
+def _spy(monkeypatch: pytest.MonkeyPatch, owner: Any, name: str) -> list[Any]:
+    """Results of every call of ``owner.name``, which still runs (a recorder, not a mock)."""
+    results: list[Any] = []
+    real = getattr(owner, name)
+
+    def recorded(*args: Any) -> Any:
+        results.append(real(*args))
+        return results[-1]
+
+    monkeypatch.setattr(owner, name, recorded)
+    return results
+
+
 def _overlapping(n: int, dim: int, k: int, random_state: int) -> np.ndarray:
     """Blobs whose spread equals their centres' norm: cosine distance ~0.5 inside a blob, so
     a cut near 0.5 runs through the blobs (the hard case for the two-stage path)."""
@@ -388,14 +401,7 @@ def test_levels_equal_scipy_average_under_a_small_budget(
     # largest exact cluster outgrows the budget.
     from lexbuild.senses import agglomerative
 
-    levels: list[float] = []
-    real_lower_cut = agglomerative._lower_cut
-
-    def recorded(*args: Any) -> float:
-        levels.append(real_lower_cut(*args))
-        return levels[-1]
-
-    monkeypatch.setattr(agglomerative, "_lower_cut", recorded)
+    levels = _spy(monkeypatch, agglomerative, "_lower_cut")
     X = _overlapping(600, 64, 4, random_state)
     Z = linkage(pdist(X.astype(np.float64), "cosine"), "average")
     for threshold in (0.5, 0.6, 0.8):
@@ -434,22 +440,8 @@ def test_bounded_components_are_the_single_linkage_clusters(
     # grouping it needs ran, and some blocks were skipped); no close pair may be missed.
     from lexbuild.senses import components
 
-    grouped: list[int] = []
-    real_grouping = components._grouped_projection
-
-    def recorded(*args: Any) -> Any:
-        grouped.append(1)
-        return real_grouping(*args)
-
-    blocks_multiplied: list[int] = []
-    real_runs = components._runs
-
-    def counted(blocks: Any) -> Any:
-        blocks_multiplied.append(int(blocks.size))
-        return real_runs(blocks)
-
-    monkeypatch.setattr(components, "_grouped_projection", recorded)
-    monkeypatch.setattr(components, "_runs", counted)
+    grouped = _spy(monkeypatch, components, "_grouped_projection")
+    runs = _spy(monkeypatch, components, "_runs")
     monkeypatch.setattr(components, "BLOCK_ELEMENTS", 200_000)  # blocks of 49 rows
     X, _ = _blobs(500, 8, 200, 0.5, random_state=24)
     # A few rows halfway between two blobs join them at the higher cut only.
@@ -462,7 +454,8 @@ def test_bounded_components_are_the_single_linkage_clusters(
     assert grouped
     rows = components.BLOCK_ELEMENTS // len(X)
     blocks = -(-len(X) // rows)
-    assert 0 < sum(blocks_multiplied) < blocks * (blocks + 1) // 2 // 2  # most were skipped
+    multiplied = sum(stop - first for spans in runs for first, stop in spans)
+    assert 0 < multiplied < blocks * (blocks + 1) // 2 // 2  # most were skipped
     assert found is not None
     assert adjusted_rand_score(expected, found) == 1.0
     assert 1 < len(set(expected)) < len(expected)  # (from scipy: the cuts really split)
