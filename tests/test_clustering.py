@@ -431,6 +431,23 @@ def test_levels_fall_back_to_the_approximation_when_they_cannot_shrink() -> None
     assert model.approximate_  # and fit says so
 
 
+def test_levels_give_up_when_a_level_over_many_pieces_barely_shrinks(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    # The overlapping blobs cut at their own spread: the first level keeps 576 of 600 pieces.
+    # Over few pieces the levels go on (exact: test above); counted as many, they give up
+    # rather than pay pass after pass, and the approximation takes over.
+    from lexbuild.senses import agglomerative
+    from lexbuild.senses.clustering import normalise_rows
+
+    X = normalise_rows(_overlapping(600, 64, 4, random_state=0))
+    model = SenseClusterer(threshold=0.5, exact_max=1, refine_max=60, **NO_MERGE)
+    assert model._fit_levels(X) is not None
+    monkeypatch.setattr(agglomerative, "_LEVEL_PATIENT_MAX", 100)
+    assert model._fit_levels(X) is None
+    assert model.fit(X).approximate_
+
+
 @pytest.mark.parametrize("cut", [0.3, 0.6])
 def test_bounded_components_are_the_single_linkage_clusters(
     cut: float, monkeypatch: pytest.MonkeyPatch

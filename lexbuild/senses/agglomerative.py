@@ -30,7 +30,12 @@ from lexbuild.senses.clustering import (
     normalise_rows,
     relabel,
 )
-from lexbuild.senses.components import CUT_SLACK, bounding_directions, threshold_components
+from lexbuild.senses.components import (
+    CUT_SLACK,
+    Directions,
+    bounding_directions,
+    threshold_components,
+)
 from lexbuild.senses.registry import ClustererSpec
 from lexbuild.senses.settings import InductionSettings
 
@@ -404,9 +409,13 @@ class AgglomerativeClusterer:
                 raw = np.zeros(1, dtype=np.intp)
             elif n <= self.exact_max:
                 raw = self._fit_exact(Xn)
+            elif self.linkage == "ward":
+                raw = self._fit_approximate(Xn)
             else:
-                exact = self._fit_levels(Xn) if self.linkage == "average" else None
-                raw = self._fit_approximate(Xn) if exact is None else exact
+                # Found once: the levels and, where they give up, the approximation use them.
+                directions = bounding_directions(Xn)
+                exact = self._fit_levels(Xn, directions)
+                raw = self._fit_approximate(Xn, directions) if exact is None else exact
         self.approximate_ = n > self.exact_max and exact is None
         labels = relabel(raw)
         fitted(self, Xn, self._merge_small(Xn, labels))
@@ -466,7 +475,7 @@ class AgglomerativeClusterer:
         self,
         Xn: npt.NDArray[np.float32],
         top: float,
-        directions: npt.NDArray[np.float32] | str | None = "fit",
+        directions: Directions = "fit",
     ) -> _Forest:
         """The tree of the rows, as trees of the components within ``top`` where that pays.
 
@@ -488,7 +497,9 @@ class AgglomerativeClusterer:
     def _fit_exact(self, Xn: npt.NDArray[np.float32]) -> IntArray:
         return self._forest(Xn, float(self.threshold)).cut(float(self.threshold))
 
-    def _fit_approximate(self, Xn: npt.NDArray[np.float32]) -> IntArray:
+    def _fit_approximate(
+        self, Xn: npt.NDArray[np.float32], directions: Directions = "fit"
+    ) -> IntArray:
         """k-means micro-clusters, a tree over them, exact clustering inside its subtrees.
 
         The tree over the micro-clusters (average linkage from their sums, or Ward on their
@@ -517,7 +528,8 @@ class AgglomerativeClusterer:
                 tree = np.empty((0, 4))
             labels, _ = self._regroup(Xn, micro, tree, sizes, None, float(self.threshold))
             return labels
-        directions = bounding_directions(Xn)
+        if isinstance(directions, str):
+            directions = bounding_directions(Xn)
         tree = _group_average_merges(sums, sizes, np.inf)
         labels, spans = self._regroup(Xn, micro, tree, sizes, directions)
         for _ in range(_MAX_PASSES - 1):
@@ -534,7 +546,9 @@ class AgglomerativeClusterer:
             labels = again
         return labels
 
-    def _fit_levels(self, Xn: npt.NDArray[np.float32]) -> IntArray | None:
+    def _fit_levels(
+        self, Xn: npt.NDArray[np.float32], directions: Directions = "fit"
+    ) -> IntArray | None:
         """Exact average-linkage clusters at the threshold, no tree larger than ``refine_max``.
 
         The path beyond ``exact_max`` for average linkage, exact at any n. None where the levels
@@ -542,7 +556,8 @@ class AgglomerativeClusterer:
         or blobs of independent noise larger than it); the approximation then runs.
         """
         ones = np.ones(Xn.shape[0])
-        directions = bounding_directions(Xn)
+        if isinstance(directions, str):
+            directions = bounding_directions(Xn)
         try:
             return self._clusters_between(Xn, ones, 0.0, float(self.threshold), directions, 0)
         except _Stuck:

@@ -19,6 +19,7 @@ is used only where it rules out most pairs: of a sample first, then of the first
 from __future__ import annotations
 
 from collections.abc import Iterator
+from typing import Literal
 
 import numpy as np
 import numpy.typing as npt
@@ -27,9 +28,12 @@ from scipy.sparse.csgraph import connected_components
 
 from lexbuild.senses.clustering import relabel
 
-__all__ = ["bounding_directions", "threshold_components"]
+__all__ = ["CUT_SLACK", "Directions", "bounding_directions", "threshold_components"]
 
 IntArray = npt.NDArray[np.intp]
+#: Directions to bound products on (``bounding_directions``), None for no bound, or "fit" to
+#: find them from the rows at hand.
+Directions = npt.NDArray[np.float32] | Literal["fit"] | None
 
 #: Elements of the similarity block computed at once (~16 MB of float32): fixes the rows per
 #: block, which are also the units the bound skips.
@@ -58,7 +62,7 @@ def threshold_components(
     X: npt.NDArray[np.float32],
     cut: float,
     largest_share: float = 1.0,
-    directions: npt.NDArray[np.float32] | str | None = "fit",
+    directions: Directions = "fit",
 ) -> IntArray | None:
     """Connected components of the graph joining rows ``i, j`` with ``1 - X_i . X_j <= cut``.
 
@@ -66,8 +70,7 @@ def threshold_components(
     the mean distance between the two groups). Only the joins between components found so far
     are kept, so memory stays O(n + block). Returns None as soon as one component holds more
     than ``largest_share`` of the rows; blocks of rows are visited in a fixed random order, so
-    a component that large shows early. ``directions``: those of ``bounding_directions``
-    (None: no bound), or "fit" to find them from ``X``.
+    a component that large shows early.
     """
     n = X.shape[0]
     min_similarity = np.float32(1.0 - cut - CUT_SLACK)
