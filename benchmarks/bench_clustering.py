@@ -180,11 +180,23 @@ def real_vectors(ud: Path, real_max: int) -> tuple[np.ndarray, list[tuple[str, n
     return np.vstack([m for _, m in per_verb]), per_verb
 
 
+def _exact(X: np.ndarray, thresholds: list[float]) -> list[np.ndarray]:
+    return SenseClusterer(exact_max=X.shape[0], **NO_MERGE).sweep(X, thresholds)
+
+
 def fidelity(
-    X: np.ndarray, thresholds: list[float], refine_max: int, n_micro: int, random_state: int
+    X: np.ndarray,
+    thresholds: list[float],
+    refine_max: int,
+    n_micro: int,
+    random_state: int,
+    exact: list[np.ndarray] | None = None,
 ) -> list[tuple[float, int, int, float]]:
-    """(threshold, exact k, two-stage k, ARI two-stage vs exact) for each threshold."""
-    exact = SenseClusterer(exact_max=X.shape[0], **NO_MERGE).sweep(X, thresholds)
+    """(threshold, exact k, two-stage k, ARI two-stage vs exact) for each threshold.
+
+    ``exact``: the exact labels per threshold where the caller has them already.
+    """
+    exact = _exact(X, thresholds) if exact is None else exact
     two = SenseClusterer(
         exact_max=1, refine_max=refine_max, n_micro=n_micro, random_state=random_state,
         **NO_MERGE,
@@ -195,6 +207,50 @@ def fidelity(
     ]
 
 
+def component_search(X: np.ndarray, cut: float) -> str:
+    """The search for components at ``cut`` with the bound that skips far blocks and without.
+
+    The search runs in full (no early stop) both ways; the block pairs the bound let through
+    are counted on the block numbers it hands to the product.
+    """
+    from lexbuild.senses import components
+
+    Xn = normalise_rows(X)
+    through: list[int] = []
+    real_runs = components._runs
+
+    def counted(blocks: np.ndarray) -> list[tuple[int, int]]:
+        through.append(int(blocks.size))
+        return real_runs(blocks)
+
+    components._runs = counted
+    try:
+        with blas_threads():
+            started = time.perf_counter()
+            bounded = components.threshold_components(Xn, cut)
+            bounded_s = time.perf_counter() - started
+            started = time.perf_counter()
+            plain = components.threshold_components(Xn, cut, directions=None)
+            plain_s = time.perf_counter() - started
+    finally:
+        components._runs = real_runs
+    assert bounded is not None and plain is not None
+    same = adjusted_rand_score(plain, bounded)
+    rows = max(1, components.BLOCK_ELEMENTS // Xn.shape[0])
+    blocks = -(-Xn.shape[0] // rows)
+    if len(through) == blocks:
+        share = f"{sum(through) / (blocks * (blocks + 1) / 2):.0%} of the block pairs let through"
+    elif through:
+        share = f"bound dropped after {len(through)} of {blocks} blocks: it let too many through"
+    else:
+        share = "bound not used: too few blocks, or a sample showed it would skip too little"
+    return (
+        f"component search at t={cut}: {bounded_s:.2f} s with the bound ({share}), "
+        f"{plain_s:.2f} s over all pairs (x{plain_s / bounded_s:.2f}); same components: "
+        f"ARI {same:.4f}"
+    )
+
+
 def _approximate(model: Any, X: np.ndarray) -> np.ndarray:
     """Labels of the approximation alone, as ``fit`` would relabel them."""
     with blas_threads():
@@ -202,18 +258,21 @@ def _approximate(model: Any, X: np.ndarray) -> np.ndarray:
 
 
 def approximate_fidelity(
-    X: np.ndarray, thresholds: list[float], refine_max: int, n_micro: int, random_state: int
+    X: np.ndarray,
+    exact: list[np.ndarray],
+    thresholds: list[float],
+    refine_max: int,
+    n_micro: int,
+    random_state: int,
 ) -> list[tuple[float, float]]:
-    """(threshold, ARI of the approximation vs exact) for each threshold."""
-    exact = SenseClusterer(exact_max=X.shape[0], **NO_MERGE).sweep(X, thresholds)
-    Xn = normalise_rows(X)
+    """(threshold, ARI of the approximation vs the exact labels) for each threshold."""
     out = []
     for t, e in zip(thresholds, exact, strict=True):
         model = SenseClusterer(
             threshold=t, exact_max=1, refine_max=refine_max, n_micro=n_micro,
             random_state=random_state, **NO_MERGE,
         )
-        out.append((t, adjusted_rand_score(e, model._fit_approximate(Xn))))
+        out.append((t, adjusted_rand_score(e, _approximate(model, X))))
     return out
 
 
@@ -237,7 +296,7 @@ def run_real(args: argparse.Namespace, thresholds: list[float]) -> None:
         f"  one tree: distances in float64 {float64_s:.2f} s, in float32 {float32_s:.2f} s "
         f"(x{float64_s / float32_s:.1f}); {_load()}"
     )
-    exact = SenseClusterer(exact_max=n, **NO_MERGE).sweep(X, thresholds)
+    exact = _exact(X, thresholds)
     # The same exact path on the rows in another order: float32 products round differently in
     # other blocks, and average linkage's near-tied merges follow (the floor for any comparison
     # with one exact run, the two-stage path's included).
@@ -284,11 +343,15 @@ def run_real(args: argparse.Namespace, thresholds: list[float]) -> None:
     model, two_s, two_mib = _measure(forced.fit, X)
     path = "the approximation" if model.approximate_ else "exact by levels"
     print(f"  time at t={cut}: {two_s:.2f} s {two_mib:.0f} MiB ({path}); {_load()}")
-    for t, ke, ks, ari in fidelity(X, thresholds, refine, args.n_micro, args.random_state):
+    for t, ke, ks, ari in fidelity(
+        X, thresholds, refine, args.n_micro, args.random_state, exact
+    ):
         print(f"  t={t:.2f} exact k={ke:<4} two-stage k={ks:<4} ARI vs exact {ari:.4f}")
     # The approximation alone (Ward's path, and average linkage's where the levels cannot
     # come down to the budget): what exactness by levels replaced.
-    approximate = approximate_fidelity(X, thresholds, refine, args.n_micro, args.random_state)
+    approximate = approximate_fidelity(
+        X, exact, thresholds, refine, args.n_micro, args.random_state
+    )
     cells = "  ".join(f"t={t:.2f} ARI {a:.4f}" for t, a in approximate)
     print(f"  the approximation alone: {cells}")
     print("per verb, two-stage forced (refine_max=n/5, n_micro=n/20):")
@@ -381,6 +444,7 @@ def main(argv: list[str] | None = None) -> None:
                 notes = "; ".join(part for part in (notes, path) if part)
             k = len(set(labels.tolist()))
             print(f"{n:>7} {name:<12} {t:>8.2f} {mem:>9.1f} {k:>4}  {notes}", flush=True)
+        print(f"{n:>7} {component_search(X, args.threshold)}", flush=True)
         if n <= args.exact_limit and len(thresholds) > 0:
             refine = two_stage.get("refine_max", SenseClusterer().refine_max)
             for t, ke, ks, ari in fidelity(
