@@ -275,9 +275,9 @@ def test_refinement_groups_partition_the_leaves_within_the_budget() -> None:
 @pytest.mark.parametrize("random_state", [0, 1, 2])
 def test_approximation_is_faithful_on_overlapping_blobs(random_state: int) -> None:
     # Reference: the exact path (itself checked against scipy above). With a subtree budget of a
-    # quarter of the points the approximation (Ward's path, and average linkage's fallback) really
-    # approximates (several subtrees, pieces
-    # rejoined); cut at the blobs' own spread (0.5) exact gives ~70-110 clusters.
+    # quarter of the points the approximation (Ward's path, and average linkage's fallback)
+    # really approximates (several subtrees, pieces rejoined); cut at the blobs' own spread
+    # (0.5) exact gives ~70-110 clusters.
     from lexbuild.senses.clustering import normalise_rows
 
     X = _overlapping(600, 64, 4, random_state)
@@ -453,8 +453,9 @@ def test_bounded_components_are_the_single_linkage_clusters(
     cut: float, monkeypatch: pytest.MonkeyPatch
 ) -> None:
     # Reference: scipy single linkage cut at t gives the components of the graph of pairs
-    # within t. 4,000 rows of 200 columns take the bound that skips far blocks (checked: the
-    # grouping it needs ran, and some blocks were skipped); no close pair may be missed.
+    # within t. 4,008 rows of 200 columns in blocks of 49 rows (82 blocks) take the bound that
+    # skips far blocks (checked: the grouping it needs ran, and most block pairs were skipped);
+    # no close pair may be missed.
     from lexbuild.senses import components
 
     grouped = _spy(monkeypatch, components, "_grouped_projection")
