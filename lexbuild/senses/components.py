@@ -3,7 +3,7 @@
 Average linkage never merges two sets of rows with no pair within the cut (a merge at height
 h joins clusters whose mean pairwise distance is h), so the exact path and the bounded-memory
 levels of ``agglomerative`` both start from these components. Finding them takes one pass over
-all pairs, the costly part of both (40,000 x 768 rows: 6.9 s on two cores,
+all pairs, the costly part of both (40,000 x 768 rows: 7.0-7.1 s on two cores, printed by
 benchmarks/bench_clustering.py). On enough rows, block pairs that cannot hold a close pair are
 skipped on a bound that is exact arithmetic, so no close pair is ever missed:
 
