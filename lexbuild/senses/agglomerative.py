@@ -74,7 +74,7 @@ _MAX_LEVELS = 16
 _LEVEL_SAMPLE = 2000
 _LEVEL_SHARE = 0.5
 # A level over more pieces than the second number must leave at most the first share of them
-# (measured on the real vectors of bench_clustering.py --real: 0.54-0.86): below, passes are
+# (the real vectors of bench_clustering.py --real, counted apart: 0.54-0.86): below, passes are
 # cheap (20,000 x 768 rows: about 1.5 s) and slow levels may go on.
 _LEVEL_MIN_SHRINK = 0.9
 _LEVEL_PATIENT_MAX = 20_000
