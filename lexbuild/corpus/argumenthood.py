@@ -16,7 +16,7 @@ The evidence, each term a log-odds-like number added to the score (argument when
 * **association** of the verb with the slot against the slot's rate with all verbs: signed
   log-likelihood ratio G² (Dunning 1993) of the 2x2 table (this verb / other verbs, with / without
   the slot), scaled and capped; the binomial tail P(X >= k) of the same counts (Brent 1993) is
-  reported beside it;
+  reported beside it; a pair seen once has none (its verdict rests on the rest);
 * a **back-off** for sparse verbs (Korhonen 2002): the share of the slot's tokens, over all
   verbs, that fall in significantly associated pairs (G² >= 3.84, p < 0.05): a preposition
   selected by many verbs (de, à) starts higher than one that goes with any verb (dans, pendant);
@@ -119,6 +119,10 @@ class DecisionSettings:
 
     association_scale: float = 8.0  # G² divided by this ...
     association_cap: float = 3.0  # ... and capped at +/- this
+    # A pair seen fewer times has no association evidence: one token of a rare preposition
+    # with a verb seen once is "perfectly associated" (G² and the binomial tail both say so),
+    # whatever it is. A frequency threshold as in collocation extraction (common practice).
+    association_min_tokens: int = 2
     backoff_weight: float = 4.0  # (backoff share - backoff_centre) * weight
     backoff_centre: float = 0.5
     class_weight: float = 2.0
@@ -243,7 +247,7 @@ def decide(counts: ObliqueCounts, settings: DecisionSettings = DecisionSettings(
         k_eff = min(k, n)  # a verb token with two PPs of the slot counts once
         value = log_likelihood(k_eff, n, max(per_slot[slot] - k, 0), max(total_verbs - n, 0))
         g2[verb, slot] = value
-        if value >= _SIGNIFICANT and k >= 2:  # a rare slot seen once is "significant" by chance
+        if value >= _SIGNIFICANT and k >= settings.association_min_tokens:
             significant[slot] += k
     backoff = {slot: significant[slot] / per_slot[slot] for slot in sorted(per_slot)}
     # How far the slot's corpus-wide behaviour is measured: the back-off (per slot) and the
@@ -263,11 +267,9 @@ def decide(counts: ObliqueCounts, settings: DecisionSettings = DecisionSettings(
 
     def unlabelled(verb: str, slot: str) -> tuple[float, list[tuple[str, float]]]:
         k = counts.pairs[verb, slot]
+        association = _clip(g2[verb, slot] / settings.association_scale, settings.association_cap)
         evidence = [
-            (
-                "association",
-                _clip(g2[verb, slot] / settings.association_scale, settings.association_cap),
-            ),
+            ("association", association if k >= settings.association_min_tokens else 0.0),
             (
                 "backoff",
                 (backoff[slot] - settings.backoff_centre) * settings.backoff_weight * support[slot],

@@ -271,6 +271,7 @@ _EXPLETIVE_SUBJECT = {"expl:subj"}
 _SUBJECTS = _SUBJECT | _PASSIVE_SUBJECT | _EXPLETIVE_SUBJECT
 _CAUSEE = {"obj:agent", "iobj:agent", "obl:agent"}
 _ADJUNCT_BASES = {"advmod", "advcl"}
+_ADJECTIVAL_PARTICIPLE_DEPENDENTS = {"punct", "cc", "advmod"}
 
 # Subtypes that say the same thing in different treebanks and parsers -> the one the rules read.
 _RELATION_ALIASES = {
@@ -676,7 +677,9 @@ def _dependents(verb: int, tree: _Tree) -> list[int]:
 def _participle_modifier(token: Token) -> str:
     """'pass' for a past participle modifying a noun (reduced passive relative), 'act' for a
     present participle doing so, '' otherwise."""
-    if token.deprel != "acl" or "VerbForm=Part" not in token.feats:
+    # UD English writes a verbal participle modifying a noun as amod (EWT "the attached file"),
+    # UD French as acl: the same construction.
+    if token.deprel not in ("acl", "amod") or "VerbForm=Part" not in token.feats:
         return ""
     if "Voice=Pass" in token.feats or "Tense=Past" in token.feats:
         return "pass"
@@ -684,14 +687,11 @@ def _participle_modifier(token: Token) -> str:
 
 
 def _is_predicate(token: Token, include_auxiliaries: bool) -> bool:
-    if token.upos == "VERB":
-        return True
-    # An AUX that heads its clause ("have" as a main verb), never aux or copula itself.
-    return (
-        include_auxiliaries
-        and token.upos == "AUX"
-        and token.deprel.split(":", 1)[0] not in ("aux", "cop")
-    )
+    # An auxiliary or copula is a function word whatever its tag (parsers tag some VERB); an
+    # AUX that heads its clause ("have" as a main verb) counts on request.
+    if token.deprel.split(":", 1)[0] in ("aux", "cop"):
+        return False
+    return token.upos == "VERB" or (include_auxiliaries and token.upos == "AUX")
 
 
 def label_admits(oblique: Oblique, profile: LanguageProfile) -> bool:
@@ -732,6 +732,8 @@ def extract_occurrences(
         dependents = _dependents(verb, tree)
         relations = {tree.relations[k] for k in tree.kids[verb]}
         modifier = _participle_modifier(token)
+        if modifier and relations <= _ADJECTIVAL_PARTICIPLE_DEPENDENTS:
+            continue  # an adjectival use: see the rules above
         agreement = _subject_agreement(verb, dependents, tree)
         reflexives = [
             k for k in tree.kids[verb] if _is_reflexive(k, verb, tree, profile, agreement)
