@@ -20,6 +20,7 @@ from hypothesis import strategies as st
 from scipy.stats import binom, chi2_contingency
 
 from lexbuild.corpus.argumenthood import (
+    DecisionSettings,
     ObliqueCounts,
     apply,
     binomial_tail,
@@ -202,6 +203,23 @@ def test_explained_verdict_names_its_evidence(labelled: list[Occurrence]) -> Non
     assert verdict.g2 > 3.84 and verdict.p_value < 0.05  # strongly associated
     pendant = [v for (verb, slot), v in decision.verdicts.items() if slot == "obl:PP[pendant]"]
     assert pendant and not any(v.argument for v in pendant)  # "pendant" is never selected
+
+
+def test_a_pair_seen_once_has_no_association(stripped: list[Occurrence]) -> None:
+    # One token of a preposition with a verb seen once is "associated" by G² whatever it is;
+    # collocation extraction sets a frequency threshold for that reason (common practice).
+    counts = ObliqueCounts().update(stripped)
+    decision = counts.decide()
+    once = [v for v in decision.verdicts.values() if v.tokens == 1]
+    assert len(once) > 1000
+    assert sum(v.g2 >= 3.84 for v in once) > 0.25 * len(once)  # G² says "significant"
+    assert all(dict(v.evidence)["association"] == 0.0 for v in once)
+    assert all(dict(v.evidence)["association"] != 0.0 for v in decision.verdicts.values()
+               if v.tokens >= 2 and v.g2 != 0.0)  # fmt: skip
+    # Without the threshold those single tokens decide a few hundred verdicts.
+    loose = counts.decide(DecisionSettings(association_min_tokens=1))
+    changed = sum(loose.verdicts[v.verb, v.slot].argument != v.argument for v in once)
+    assert changed >= 100
 
 
 def test_significance_test_replaces_the_share_cut_off(labelled: list[Occurrence]) -> None:

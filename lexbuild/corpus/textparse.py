@@ -79,9 +79,10 @@ Labels (spaCy -> UD)
       subordinator "si" (``elision_repairs``); a determiner written like an object clitic
       (le, la, les, l') right before a verb that heads a clause is that clitic, PRON ``obj``,
       and "nous"/"vous" before a finite verb of their person with no subject is its ``nsubj``
-      (``clitic_repairs``); in a quotation incise ("... », indique un communiqué") the one
+      (``clitic_repairs``); in a quotation incise ("... », indique un communiqué") or after a
+      relative word that is not the subject ("un milieu où règne l'obscurité"), the one
       nominal object after a subjectless finite verb is its inverted ``nsubj``
-      (``incise_subject_repairs``). Lemmas: a word tagged ADP keeps its form ("entre", "sous",
+      (``postverbal_subject_repairs``). Lemmas: a word tagged ADP keeps its form ("entre", "sous",
       "durant", which the lemmatiser reads as verbs or nouns; ``adposition_lemma``), and a
       word tagged VERB gets an infinitive from the lemmatiser's own verb tables (``verb_lemma``):
       spaCy's French rules have no "-e -> -er", so "donne" stayed "donne"; verb lemmas agree
@@ -165,13 +166,13 @@ __all__ = [
     "clitic_repairs",
     "doc_to_conllu",
     "elision_repairs",
-    "incise_subject_repairs",
     "inverted_subject_repairs",
     "lexical_repairs",
     "load_pipeline",
     "nominal_root_repairs",
     "parse_texts",
     "participle_feats",
+    "postverbal_subject_repairs",
     "ud_relations",
     "verb_conjunct_repairs",
     "verb_lemma",
@@ -694,6 +695,8 @@ class _Lexicon:
     # Subject clitics, which a hyphen joins to the verb before them when inverted ("a-t-il",
     # "faut-il", "réussira-t-elle").
     subject_clitics: frozenset[str] = frozenset()
+    # Relative words that are not a subject: after them the subject may follow the verb.
+    relative_words: frozenset[str] = frozenset()
     # Third-person object clitics written like the definite article ("il la voit"): a
     # determiner of a verb is one of them.
     object_clitics: frozenset[str] = frozenset()
@@ -755,6 +758,7 @@ _LEXICONS = {
         ),
         copular=_forms("devenir redevenir rester demeurer sembler paraître"),
         relative_place=_forms("où"),
+        relative_words=_forms("où que qu' dont"),
         subject_clitics=_forms("je tu il elle on nous vous ils elles"),
         object_clitics=_forms("le la les l'"),
         person_clitics={
@@ -779,6 +783,7 @@ _SUBJECT_RELATIONS = {"nsubj", "nsubj:pass", "expl:subj", "csubj", "csubj:pass"}
 
 
 _MOODS = ("Ind", "Cnd", "Sub")  # the moods of a verb with a subject
+_EUPHONIC_T = "-t"  # French "a-t-il": spaCy splits "-t" and "-il"
 
 
 def _clitic_form(word: str) -> str:
@@ -798,40 +803,45 @@ def inverted_subject_repairs(
     heads: Sequence[int],
     deps: Sequence[str],
     language: str,
-) -> tuple[list[int], list[str]]:
-    """Heads and relations of inverted subject clitics (UD heads, 0-based, -1 root).
+) -> tuple[list[str], list[int], list[str]]:
+    """UPOS, heads and relations of inverted subject clitics (UD heads, 0-based, -1 root).
 
-    A subject clitic joined by a hyphen to the word before it ("a-t-il", "faut-il") is the
-    subject of that verb, or of the verb its auxiliary serves (UD French GSD and Sequoia;
-    the small pipeline hangs most as ``dep``, ``nmod`` or ``obj``): ``expl:subj`` beside a
-    nominal subject (complex inversion, "le gouvernement réussira-t-il") and for an expletive
-    form ("il": ``lexical_repairs`` makes it ``nsubj`` unless the verb is impersonal), else
-    ``nsubj`` (``nsubj:pass`` beside a passive auxiliary).
+    A subject clitic joined by a hyphen to the verb before it ("faut-il", "a-t-il") is the
+    subject of that verb, or of the verb its auxiliary serves (UD French GSD and Sequoia; the
+    small pipeline hangs most as ``dep``, ``nmod`` or ``obj``): ``expl:subj`` beside a
+    nominal subject (complex inversion, "le phare tiendra-t-il") and for an expletive form
+    ("il": ``lexical_repairs`` makes it ``nsubj`` unless the verb is impersonal), else
+    ``nsubj`` (``nsubj:pass`` beside a passive auxiliary). spaCy splits off the euphonic
+    "-t" as a word of its own, which it tags VERB or calls the subject: it becomes an ``X``
+    hung from the clitic as ``dep``.
     """
     lexicon = _LEXICONS.get(_primary(language))
-    new_heads, new = list(heads), list(deps)
+    new_upos, new_heads, new = list(upos), list(heads), list(deps)
     if lexicon is None:
-        return new_heads, new
+        return new_upos, new_heads, new
     kids = _dependents(heads)
     for i in range(1, len(words)):
         clitic = _clitic_form(words[i])
         if not words[i].startswith("-") or clitic not in lexicon.subject_clitics:
             continue
-        host = i - 1
-        if upos[host] == "PUNCT":
+        euphonic = i - 1 if words[i - 1].lower() == _EUPHONIC_T else -1
+        host = i - 1 if euphonic < 0 else i - 2
+        if host < 0 or upos[host] == "PUNCT":
             continue
         if clitic in lexicon.person_clitics and _feature(feats[host], "Mood") not in _MOODS:
             continue  # "attardons-nous", "aidez-vous": the object of an imperative
         verb = heads[host] if deps[host].startswith(("aux", "cop")) and heads[host] >= 0 else host
-        if verb == i or _descends(verb, i, new_heads):
+        if verb in (i, euphonic) or _descends(verb, i, new_heads):
             continue
-        others = {new[k] for k in kids[verb] if k != i}
+        others = {new[k] for k in kids[verb] if k not in (i, euphonic)}
         if others & {"nsubj", "nsubj:pass", "csubj"} or clitic in lexicon.expletives:
             relation = "expl:subj"
         else:
             relation = "nsubj:pass" if "aux:pass" in others else "nsubj"
         new_heads[i], new[i] = verb, relation
-    return new_heads, new
+        if euphonic >= 0:
+            new_upos[euphonic], new_heads[euphonic], new[euphonic] = "X", i, "dep"
+    return new_upos, new_heads, new
 
 
 def lexical_repairs(
@@ -1096,7 +1106,7 @@ def adposition_lemma(form: str, lemma: str) -> str:
     return lemma if form.endswith(_ELISION_MARKS) else form.lower()
 
 
-def incise_subject_repairs(
+def postverbal_subject_repairs(
     words: Sequence[str],
     upos: Sequence[str],
     feats: Sequence[str],
@@ -1104,14 +1114,16 @@ def incise_subject_repairs(
     deps: Sequence[str],
     language: str,
 ) -> list[str]:
-    """UD relations with the inverted subject of a quotation incise ("... ", a assuré l'un
-    d'eux", "« ... », indique un communiqué"): a finite verb right after a comma or quotation
-    mark, with a quotation mark earlier in the sentence, no subject and one nominal object
-    after it, takes that object as its ``nsubj`` (French inverts the subject there; the
-    parser reads it as an object). UD heads, 0-based, -1 root; the heads stay.
+    """UD relations with the subject French puts after its verb (UD heads, 0-based, -1 root;
+    the heads stay): a finite verb with no subject and one nominal object after it takes that
+    object as its ``nsubj`` (the parser reads it as an object) in a quotation incise (the verb
+    right after a comma or quotation mark, a quotation mark earlier in the sentence: "... »,
+    indique un communiqué") and in a relative clause opened by a relative word that is not
+    its subject ("un milieu où règne l'obscurité", "la proie que guettent les photographes").
     """
+    lexicon = _LEXICONS.get(_primary(language))
     new = list(deps)
-    if _primary(language) not in _LEXICONS:
+    if lexicon is None:
         return new
     kids = _dependents(heads)
     for verb, tag in enumerate(upos):
@@ -1119,9 +1131,16 @@ def incise_subject_repairs(
             continue
         group = [verb, *(k for k in kids[verb] if k < verb and deps[k].startswith(("aux", "expl")))]
         first = min(group)
-        if first == 0 or words[first - 1] not in {",", *_QUOTES}:
-            continue
-        if not any(w in _QUOTES for w in words[:first]):
+        relative = deps[verb].startswith("acl") and any(
+            k < first and words[k].lower() in lexicon.relative_words
+            for k in kids[verb]
+        )
+        incise = (
+            first > 0
+            and words[first - 1] in {",", *_QUOTES}
+            and any(w in _QUOTES for w in words[:first])
+        )
+        if not (relative or incise):
             continue
         finite = any(
             "VerbForm=Fin" in feats[k] and "Mood=Imp" not in feats[k]
@@ -1130,7 +1149,9 @@ def incise_subject_repairs(
         )
         if not finite or any(deps[k] in _SUBJECT_RELATIONS for k in kids[verb]):
             continue
-        objects = [k for k in kids[verb] if deps[k] == "obj" and k > verb and upos[k] in _NOMINAL]
+        objects = [
+            k for k in kids[verb] if deps[k] == "obj" and k > verb and upos[k] in _NOMINAL
+        ]
         if len(objects) == 1:
             new[objects[0]] = "nsubj"
     return new
@@ -1310,7 +1331,7 @@ def _sentence_lines(sent: Span, language: str) -> tuple[str, list[str]] | None:
     lemmas = [t.lemma_ for t in tokens]
     lemmas, upos, deps = elision_repairs(words, lemmas, upos, deps, language)
     upos = nonverbal_upos(words, upos, feats, deps, language)
-    heads, deps = inverted_subject_repairs(words, upos, feats, heads, deps, language)
+    upos, heads, deps = inverted_subject_repairs(words, upos, feats, heads, deps, language)
     heads, deps = nominal_root_repairs(upos, feats, heads, deps)
     heads = verb_conjunct_repairs(upos, feats, heads, deps)
     heads, deps = participle_adjunct_repairs(upos, feats, heads, deps)
@@ -1326,7 +1347,7 @@ def _sentence_lines(sent: Span, language: str) -> tuple[str, list[str]] | None:
     ]
     upos = retagged
     upos, feats, deps = clitic_repairs(words, upos, feats, heads, deps, language)
-    deps = incise_subject_repairs(words, upos, feats, heads, deps, language)
+    deps = postverbal_subject_repairs(words, upos, feats, heads, deps, language)
     tables = _verb_tables(sent.doc, language)
     if tables is not None:
         lemmas = [
