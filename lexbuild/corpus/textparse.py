@@ -126,7 +126,10 @@ Agreement with gold trees (``benchmarks/parse_agreement.py``, measured once, 202
     case as obl (mapping version 7, same day): GSD test 0.633, slot F1 0.777 (P .804 / R
     .751); GSD dev 0.612, slot F1 0.770 (P .820 / R .726). Mapping version 8 (same day):
     GSD test 0.635, slot F1 0.780 (P .805 / R .757); GSD dev 0.616, slot F1 0.776 (P .826 /
-    R .732).
+    R .732). Mapping version 9 (2026-12-04), with a pair seen once given no association in the
+    oblique decision and adjectival participles no occurrence (lexbuild.corpus.argumenthood,
+    occurrences): GSD test 0.662, slot F1 0.801 (P .830 / R .774); GSD dev 0.641, slot F1 0.789
+    (P .838 / R .746) (README, "Arguments and adjuncts").
 
     By relation (P / R / F1): nsubj .835/.765/.798, obj .740/.734/.737, obl:arg
     .398/.500/.443, obl:mod .474/.371/.416, xcomp .658/.670/.664, ccomp .622/.479/.541,
