@@ -1398,7 +1398,8 @@ def doc_to_conllu(
     """CoNLL-U text of a parsed paragraph and the number of sentences written.
 
     ``one_sentence`` writes the whole doc as one sentence (one root per spaCy sentence), to
-    compare with gold trees sentence by sentence.
+    compare with gold trees sentence by sentence. Verb lemmas are repaired (``verb_lemma``)
+    when the pipeline came from ``load_pipeline``, which shares the lemmatiser's verb tables.
     """
     return _sentences_to_conllu(_doc_sentences(doc, one_sentence), stem, first_number, newpar)
 
@@ -1525,6 +1526,8 @@ def parse_texts(
         raise ValueError(f"workers must be at least 1, got {workers}")
     files = _resolve_texts(paths)
     output = Path(output)
+    if nlp is not None:
+        _share_verb_tables(nlp)  # a pipeline not loaded by load_pipeline gets them too
     # Parts already made are found without loading the pipeline (which takes seconds).
     pipeline_id = _pipeline_id(nlp) if nlp is not None else _installed_pipeline_id(pipeline)
     report = ParseReport(output=output, pipeline="")
