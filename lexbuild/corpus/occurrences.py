@@ -6,7 +6,8 @@ of the lexicon model except the ``Slot`` type of a frame.
 Conventions every consumer can rely on:
 
 * one occurrence per UPOS ``VERB`` word (``include_auxiliaries`` adds AUX words heading their
-  clause, never auxiliaries or copulas);
+  clause), never an auxiliary or copula whatever its tag, nor a participle used as an
+  adjective (modifying a noun with no dependent but punct, cc or advmod);
 * a pronominal verb keeps its base lemma and gets a ``refl:CLITIC[se]`` slot (s'agir is lemma
   ``agir`` with ``subj:EXPL refl:CLITIC[se] obl:PP[de]``); an impersonal subject is
   ``subj:EXPL``;
@@ -261,6 +262,10 @@ def profile_for(language: str) -> LanguageProfile:
 # verb is raised under an impersonal verb ("il semble s'agir de"), the modified noun when a
 # present participle modifies it, else subj:NP.
 # Adjuncts (obliques not admitted, advmod, advcl...) are counted, not slotted.
+# A participle modifying a noun (acl, or amod as UD English writes it) with no dependent but
+# punct, cc or advmod ("les filets réparés") is an adjectival use and no occurrence: treebanks
+# and parsers tag it ADJ or VERB inconsistently (benchmarks/parse_agreement.py counts how
+# often), and many are lexicalised adjectives ("à un moment donné").
 #
 # Every walk over the tree is linear in the sentence's length (chains of conjuncts or of
 # xcomp are followed once, with memos), so a 20,000-word sentence costs no more per word.
@@ -733,7 +738,7 @@ def extract_occurrences(
         relations = {tree.relations[k] for k in tree.kids[verb]}
         modifier = _participle_modifier(token)
         if modifier and relations <= _ADJECTIVAL_PARTICIPLE_DEPENDENTS:
-            continue  # an adjectival use: see the rules above
+            continue  # an adjectival use (see the rules above)
         agreement = _subject_agreement(verb, dependents, tree)
         reflexives = [
             k for k in tree.kids[verb] if _is_reflexive(k, verb, tree, profile, agreement)
