@@ -216,10 +216,10 @@ def test_a_pair_seen_once_has_no_association(stripped: list[Occurrence]) -> None
     assert all(dict(v.evidence)["association"] == 0.0 for v in once)
     assert all(dict(v.evidence)["association"] != 0.0 for v in decision.verdicts.values()
                if v.tokens >= 2 and v.g2 != 0.0)  # fmt: skip
-    # Without the threshold those single tokens decide a few hundred verdicts.
+    # Without the threshold (the decision of before) single tokens decide 82 verdicts.
     loose = counts.decide(DecisionSettings(association_min_tokens=1))
     changed = sum(loose.verdicts[v.verb, v.slot].argument != v.argument for v in once)
-    assert changed >= 100
+    assert changed >= 75
 
 
 def test_significance_test_replaces_the_share_cut_off(labelled: list[Occurrence]) -> None:

@@ -121,7 +121,8 @@ class DecisionSettings:
     association_cap: float = 3.0  # ... and capped at +/- this
     # A pair seen fewer times has no association evidence: one token of a rare preposition
     # with a verb seen once is "perfectly associated" (G² and the binomial tail both say so),
-    # whatever it is. A frequency threshold as in collocation extraction (common practice).
+    # whatever it is. A frequency threshold as in collocation extraction (common practice);
+    # 1 gives the decision of before 2026-12-04. (The back-off always counts pairs of 2+.)
     association_min_tokens: int = 2
     backoff_weight: float = 4.0  # (backoff share - backoff_centre) * weight
     backoff_centre: float = 0.5
@@ -247,7 +248,7 @@ def decide(counts: ObliqueCounts, settings: DecisionSettings = DecisionSettings(
         k_eff = min(k, n)  # a verb token with two PPs of the slot counts once
         value = log_likelihood(k_eff, n, max(per_slot[slot] - k, 0), max(total_verbs - n, 0))
         g2[verb, slot] = value
-        if value >= _SIGNIFICANT and k >= settings.association_min_tokens:
+        if value >= _SIGNIFICANT and k >= 2:  # a rare slot seen once is "significant" by chance
             significant[slot] += k
     backoff = {slot: significant[slot] / per_slot[slot] for slot in sorted(per_slot)}
     # How far the slot's corpus-wide behaviour is measured: the back-off (per slot) and the
