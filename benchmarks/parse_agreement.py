@@ -105,12 +105,19 @@ slots that do not match, paired by the first character of their head word: gold 
 predicted slot ("-": none there; in brackets: a slot that is right as a slot, counted on another
 head), the N most frequent with an example.
 
+After the frames: the share of the verbs found on both sides with the same lemma; the
+(verb, oblique) pairs the decision admits on each side, how many of them seen once, and the
+label trust it measured; the participles tagged VERB that modify a noun with no dependent of
+their own (lexbuild.corpus.occurrences reads them as adjectival) on either side, and how many
+of them the other side does not tag VERB. ``--association-min-tokens 1`` gives single-token
+pairs their association back (the decision before 2026-12-04).
+
 ``--cache DIR`` keeps the pipeline's raw parses (spaCy ``DocBin``, keyed by the gold file,
 its size and the pipeline) in DIR and reuses them, so that a change to the mapping is measured
 without parsing again.
 
     python benchmarks/parse_agreement.py [GOLD.conllu] [--pipeline NAME] [--limit N]
-        [--obliques evidence|labels] [--errors N] [--cache DIR]
+        [--obliques evidence|labels] [--errors N] [--cache DIR] [--association-min-tokens N]
 """
 
 from __future__ import annotations
@@ -125,7 +132,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING
 
-from lexbuild.corpus.argumenthood import ObliqueCounts, apply
+from lexbuild.corpus.argumenthood import Decision, DecisionSettings, ObliqueCounts, apply
 from lexbuild.corpus.conllu import Sentence, iter_sentences
 from lexbuild.corpus.occurrences import Occurrence, extract_occurrences, profile_for, word_spans
 from lexbuild.corpus.textparse import DEFAULT_PIPELINE, doc_to_conllu, load_pipeline
@@ -167,18 +174,68 @@ def relation_items(sentence: Sentence) -> Counter[tuple[int, str, str]]:
 
 
 def decided_occurrences(
-    sentences: list[Sentence], language: str, obliques: str
-) -> list[list[Occurrence]]:
-    """Each sentence's occurrences, obliques decided over all the sentences as one corpus."""
+    sentences: list[Sentence],
+    language: str,
+    obliques: str,
+    settings: DecisionSettings | None = None,
+) -> tuple[list[list[Occurrence]], Decision | None]:
+    """Each sentence's occurrences, obliques decided over all the sentences as one corpus,
+    and the decision (None when the labels decide)."""
     profile = profile_for(language)
     per_sentence = [extract_occurrences(s, profile) for s in sentences]
     if obliques == "labels":
-        return per_sentence
+        return per_sentence, None
     counts = ObliqueCounts()
     for occurrences in per_sentence:
         counts.update(occurrences)
-    decision = counts.decide()
-    return [list(apply(occurrences, decision, profile)) for occurrences in per_sentence]
+    decision = counts.decide(settings)
+    decided = [list(apply(occurrences, decision, profile)) for occurrences in per_sentence]
+    return decided, decision
+
+
+def _admitted(decision: Decision) -> str:
+    verdicts = [v for v in decision.verdicts.values() if v.argument]
+    once = sum(v.tokens == 1 for v in verdicts)
+    return f"{len(verdicts)} pairs ({once} seen once), label trust {decision.label_trust:.2f}"
+
+
+def lemma_agreement(gold: list[Occurrence], predicted: list[Occurrence]) -> tuple[int, int]:
+    """(verbs found on both sides with the same lemma, verbs found on both sides)."""
+    by_start = {o.char_span[0]: o.lemma for o in predicted if o.char_span[0] >= 0}
+    both = [(o.lemma, by_start[o.char_span[0]]) for o in gold if o.char_span[0] in by_start]
+    return sum(a == b for a, b in both), len(both)
+
+
+def _bare_participles(sentence: Sentence, starts: list[int]) -> set[int]:
+    """First characters of the participles tagged VERB that modify a noun with no dependent
+    but punct, cc or advmod (what lexbuild.corpus.occurrences reads as adjectival)."""
+    kids: dict[int, set[str]] = {}
+    for token in sentence.tokens:
+        kids.setdefault(token.head, set()).add(token.deprel)
+    return {
+        starts[index]
+        for index, token in enumerate(sentence.tokens)
+        if token.upos == "VERB"
+        and token.deprel in ("acl", "amod")
+        and "VerbForm=Part" in token.feats
+        and kids.get(index + 1, set()) <= {"punct", "cc", "advmod"}
+    }
+
+
+def participle_disagreement(gold: Sentence, predicted: Sentence) -> tuple[int, int]:
+    """(such participles of either side that the other side does not tag VERB, all such
+    participles of either side), words matched by their first character."""
+    gold_starts, pred_starts = word_starts(gold), word_starts(predicted)
+    if gold_starts is None or pred_starts is None:
+        return 0, 0
+    verbs = {
+        side: {start for start, t in zip(starts, s.tokens, strict=True) if t.upos == "VERB"}
+        for side, s, starts in (("gold", gold, gold_starts), ("pred", predicted, pred_starts))
+    }
+    gold_bare = _bare_participles(gold, gold_starts)
+    pred_bare = _bare_participles(predicted, pred_starts)
+    differ = len(gold_bare - verbs["pred"]) + len(pred_bare - verbs["gold"])
+    return differ, len(gold_bare | pred_bare)
 
 
 def slot_items(occurrences: list[Occurrence]) -> Counter[tuple[int, str, str]]:
@@ -336,6 +393,12 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--obliques", choices=("evidence", "labels"), default="evidence")
     parser.add_argument("--errors", type=int, default=0, metavar="N", help="error analysis")
     parser.add_argument("--cache", type=Path, help="folder for the raw parses (reused)")
+    parser.add_argument(
+        "--association-min-tokens",
+        type=int,
+        default=DecisionSettings().association_min_tokens,
+        help="pairs seen fewer times have no association (1: the decision before 2026-12-04)",
+    )
     args = parser.parse_args(argv)
 
     gold = list(iter_sentences(args.gold))
@@ -351,11 +414,16 @@ def main(argv: list[str] | None = None) -> int:
         path.write_text("".join(chunks), encoding="utf-8")
         predicted = list(iter_sentences(path))
     assert len(predicted) == len(gold)
-    gold_occurrences = decided_occurrences(gold, args.language, args.obliques)
-    pred_occurrences = decided_occurrences(predicted, args.language, args.obliques)
+    settings = DecisionSettings(association_min_tokens=args.association_min_tokens)
+    gold_occurrences, gold_decision = decided_occurrences(
+        gold, args.language, args.obliques, settings
+    )
+    pred_occurrences, pred_decision = decided_occurrences(
+        predicted, args.language, args.obliques, settings
+    )
 
     totals = {"relations": [0, 0, 0], "slots": [0, 0, 0]}
-    frames = [0, 0]
+    frames, lemmas, participles = [0, 0], [0, 0], [0, 0]
     by_relation: dict[str, list[int]] = {}
     errors = ErrorAnalysis()
     for index, (gold_sentence, pred_sentence) in enumerate(zip(gold, predicted, strict=True)):
@@ -366,6 +434,12 @@ def main(argv: list[str] | None = None) -> int:
         same, verbs = frame_agreement(gold_occurrences[index], pred_occurrences[index])
         frames[0] += same
         frames[1] += verbs
+        for total, (part, whole) in (
+            (lemmas, lemma_agreement(gold_occurrences[index], pred_occurrences[index])),
+            (participles, participle_disagreement(gold_sentence, pred_sentence)),
+        ):
+            total[0] += part
+            total[1] += whole
         for name, gold_items, pred_items in (
             ("relations", relation_items(gold_sentence), relation_items(pred_sentence)),
             (
@@ -396,6 +470,22 @@ def main(argv: list[str] | None = None) -> int:
         print(f"{name:<22}{p:7.3f}{r:7.3f}{f:7.3f}{gold_count:7d}{pred:7d}", file=out)
     print(
         f"whole frames: {frames[0] / max(frames[1], 1):.3f} of {frames[1]} gold verb tokens",
+        file=out,
+    )
+    print(
+        f"verb lemmas: {lemmas[0] / max(lemmas[1], 1):.3f} of {lemmas[1]} verbs found on both "
+        "sides agree",
+        file=out,
+    )
+    if gold_decision is not None and pred_decision is not None:
+        print(
+            f"oblique decision: gold trees admit {_admitted(gold_decision)}; parsed "
+            f"{_admitted(pred_decision)}",
+            file=out,
+        )
+    print(
+        f"participles tagged VERB modifying a noun alone (either side): {participles[0]} of "
+        f"{participles[1]} not VERB on the other side",
         file=out,
     )
     print("by relation (gold >= 20):", file=out)
